@@ -1,0 +1,19 @@
+"""User-facing errors.
+
+Everything a user can get wrong (a spec field, a file, a CLI value) raises :class:`InputError` with
+a one-line message that names the field or file and says what would fix it. The CLI prints that
+line and exits with code 2; nothing else in the package catches it.
+"""
+
+
+class InputError(ValueError):
+    """Bad user input: the message names the field or file and the fix, on one line."""
+
+    def __init__(self, where: str, problem: str, fix: str = ""):
+        self.where = where
+        self.problem = problem
+        self.fix = fix
+        text = f"{where}: {problem}"
+        if fix:
+            text += f" ({fix})"
+        super().__init__(text.replace("\n", " "))

@@ -1,0 +1,137 @@
+"""Family registry: named, documented, deterministic instance generators.
+
+A family turns (parameters, random stream) into an :class:`Instance`. Generators are deterministic
+per (parameters, seed): they draw only from the stream they are given. Each family states its
+problem kind, its size keys, the dimension that projections act on, and the number of points the
+JL theory counts for it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import numpy as np
+
+from calib.errors import InputError
+
+
+@dataclass
+class Instance:
+    """One generated or loaded problem.
+
+    Attributes
+    ----------
+    family : str
+    params : dict
+        Full parameters (defaults filled in), including size keys.
+    index : int
+        Instance index within its (family, params) cell.
+    kind : str
+        "lp", "sdp", "qp" or "points".
+    problem : object
+        The problem container (e.g. :class:`calib.problems.StandardLP`).
+    info : dict
+        Ground truth known by construction (planted point, certificate, expected feasibility...).
+    """
+
+    family: str
+    params: dict
+    index: int
+    kind: str
+    problem: Any
+    info: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Family:
+    """A registered generator.
+
+    Attributes
+    ----------
+    name : str
+    kind : str
+    description : str
+        What it models, one paragraph.
+    size_keys : tuple of str
+        Parameters that define the size (e.g. ("rows", "cols")).
+    defaults : dict
+        Every parameter with its default (size keys included).
+    param_doc : dict
+        Parameter -> "meaning, units, range".
+    build : callable
+        (params: dict, rng: Generator) -> problem, info
+    projected_dim : callable
+        params -> the dimension m that a projection shrinks (used for k fractions).
+    n_points : callable
+        params -> number of points the JL bounds count for this family.
+    check : callable
+        params -> None; raises InputError for out-of-range parameters.
+    """
+
+    name: str
+    kind: str
+    description: str
+    size_keys: tuple
+    defaults: dict
+    param_doc: dict
+    build: Callable[[dict, np.random.Generator], tuple]
+    projected_dim: Callable[[dict], int]
+    n_points: Callable[[dict], int]
+    check: Callable[[dict], None] = lambda params: None
+
+    def resolve(self, params: dict, where: str) -> dict:
+        """Fill defaults, reject unknown keys, and validate; returns the full parameter dict."""
+        unknown = sorted(set(params) - set(self.defaults))
+        if unknown:
+            raise InputError(where, f"unknown parameter {unknown[0]!r} for family {self.name!r}",
+                             f"known parameters: {', '.join(sorted(self.defaults))}")
+        full = {**self.defaults, **params}
+        missing = [key for key in self.size_keys if full.get(key) is None]
+        if missing:
+            raise InputError(where, f"family {self.name!r} needs size key {missing[0]!r}", f"give {', '.join(self.size_keys)}")
+        try:
+            self.check(full)
+        except InputError as error:
+            raise InputError(f"{where}.{error.where}", error.problem, error.fix) from None
+        return full
+
+    def make(self, params: dict, index: int, rng: np.random.Generator) -> Instance:
+        problem, info = self.build(params, rng)
+        return Instance(family=self.name, params=params, index=index, kind=self.kind, problem=problem, info=info)
+
+
+REGISTRY: dict[str, Family] = {}
+
+
+def register(family: Family) -> Family:
+    if family.name in REGISTRY:
+        raise ValueError(f"family {family.name!r} registered twice")
+    REGISTRY[family.name] = family
+    return family
+
+
+def get(name: str, where: str = "family") -> Family:
+    if name not in REGISTRY:
+        raise InputError(where, f"unknown family {name!r}", f"choose one of {', '.join(sorted(REGISTRY))} (see `calib families`)")
+    return REGISTRY[name]
+
+
+def require(condition: bool, where: str, problem: str, fix: str) -> None:
+    """Raise :class:`InputError` unless ``condition`` holds (parameter checks in families)."""
+    if not condition:
+        raise InputError(where, problem, fix)
+
+
+def positive_int(params: dict, key: str, minimum: int = 1) -> None:
+    value = params[key]
+    require(isinstance(value, int) and not isinstance(value, bool) and value >= minimum,
+            key, f"must be an integer >= {minimum}, got {value!r}", f"set {key} to an integer >= {minimum}")
+
+
+def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed_low: bool = False) -> None:
+    value = params[key]
+    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
+    ok = ok and (low <= value if closed_low else low < value) and value <= high
+    bracket = "[" if closed_low else "("
+    require(ok, key, f"must lie in {bracket}{low}, {high}], got {value!r}", f"pick {key} in that range")

@@ -1,0 +1,55 @@
+"""Random projection families and their registry.
+
+``make(name, k, m, seed)`` is the public edge: it validates the parameters once and returns a
+drawn :class:`~calib.projectors.base.Projector` with ``.apply(X)`` and ``.matrix()``.
+"""
+
+from __future__ import annotations
+
+from typing import Sequence, Union
+
+import numpy as np
+
+from calib.errors import InputError
+from calib.projectors.base import Projector
+from calib.projectors.gaussian import GaussianProjector
+
+SeedLike = Union[int, Sequence[int], np.random.Generator]
+
+#: name -> projector class. Add a family by implementing ``_draw``/``_apply`` and listing it here.
+REGISTRY: dict[str, type[Projector]] = {
+    cls.name: cls
+    for cls in (GaussianProjector,)
+}
+
+
+def names() -> list[str]:
+    """Registered projector names, sorted."""
+    return sorted(REGISTRY)
+
+
+def check_name(name: str, where: str = "projector") -> str:
+    """Return ``name`` if it is registered, else raise :class:`InputError` listing the choices."""
+    if name not in REGISTRY:
+        raise InputError(where, f"unknown projector {name!r}", f"choose one of {', '.join(names())}")
+    return name
+
+
+def make(name: str, k: int, m: int, seed: SeedLike, **options) -> Projector:
+    """Draw projector ``name`` of shape (k, m) from ``seed``.
+
+    ``seed`` is an integer, a sequence of integers (entropy for ``numpy.random.default_rng``) or a
+    Generator. ``k`` must satisfy 1 <= k; families that sample rows without replacement (SRHT)
+    additionally need k <= their padded dimension.
+
+    >>> T = make("gaussian", 3, 5, seed=1)
+    >>> T.apply(np.ones(5)).shape
+    (3,)
+    """
+    check_name(name)
+    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+        raise InputError("k", f"must be a positive integer, got {k!r}", "use k >= 1")
+    if isinstance(m, bool) or not isinstance(m, (int, np.integer)) or m < 1:
+        raise InputError("m", f"must be a positive integer, got {m!r}", "the projected dimension is at least 1")
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    return REGISTRY[name](int(k), int(m), rng, **options)

@@ -1,0 +1,142 @@
+"""HiGHS adapter for LPs in standard form (one solver thread, quiet).
+
+Statuses are mapped by :data:`STATUS_TABLE`, which keeps HiGHS's own code and message. Facts this
+relies on (checked against highspy 1.16): ``run()`` returns kOk even for infeasible models, so the
+model status decides; the thread scheduler is global per process, so every Highs object here uses
+``threads = 1``; the first ``Highs()`` in a process prints a banner on stdout, which is silenced.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from typing import Optional
+
+import highspy
+import numpy as np
+import scipy.sparse as sp
+
+from calib.problems import StandardLP
+from calib.solvers.result import SolveResult
+
+_MS = highspy.HighsModelStatus
+
+#: HiGHS model status -> calib status.
+STATUS_TABLE: dict = {
+    _MS.kOptimal: "optimal",
+    _MS.kInfeasible: "infeasible",
+    _MS.kUnbounded: "unbounded",
+    _MS.kUnboundedOrInfeasible: "infeasible_or_unbounded",
+    _MS.kTimeLimit: "time_limit",
+    _MS.kIterationLimit: "iteration_limit",
+    _MS.kInterrupt: "time_limit",
+    _MS.kHighsInterrupt: "time_limit",
+    _MS.kObjectiveBound: "inaccurate",
+    _MS.kObjectiveTarget: "inaccurate",
+    _MS.kSolutionLimit: "inaccurate",
+    _MS.kUnknown: "inaccurate",
+    _MS.kNotset: "error",
+    _MS.kLoadError: "error",
+    _MS.kModelError: "error",
+    _MS.kPresolveError: "error",
+    _MS.kSolveError: "error",
+    _MS.kPostsolveError: "error",
+    _MS.kModelEmpty: "error",
+    _MS.kMemoryLimit: "error",
+}
+
+#: Options applied to every solve. ``threads`` must stay the same within a process.
+DEFAULT_OPTIONS = {
+    "output_flag": False,
+    "threads": 1,
+    "random_seed": 0,
+    "primal_feasibility_tolerance": 1e-9,
+    "dual_feasibility_tolerance": 1e-9,
+}
+
+_banner_silenced = False
+
+
+def new_highs(options: Optional[dict] = None) -> "highspy.Highs":
+    """A quiet ``highspy.Highs`` with :data:`DEFAULT_OPTIONS` plus ``options``."""
+    global _banner_silenced
+    if not _banner_silenced:
+        _banner_silenced = True
+        saved = os.dup(1)
+        try:
+            with open(os.devnull, "w") as sink:
+                os.dup2(sink.fileno(), 1)
+                h = highspy.Highs()
+        finally:
+            os.dup2(saved, 1)
+            os.close(saved)
+    else:
+        h = highspy.Highs()
+    for name, value in {**DEFAULT_OPTIONS, **(options or {})}.items():
+        status = h.setOptionValue(name, value)
+        if status == highspy.HighsStatus.kError:
+            raise ValueError(f"HiGHS rejected option {name}={value!r}")
+    return h
+
+
+def _to_highs_lp(lp: StandardLP) -> "highspy.HighsLp":
+    A = sp.csc_array(lp.A) if sp.issparse(lp.A) else sp.csc_array(np.asarray(lp.A))
+    A.sum_duplicates()
+    hlp = highspy.HighsLp()
+    hlp.num_col_ = lp.n_cols
+    hlp.num_row_ = lp.n_rows
+    hlp.col_cost_ = lp.c
+    hlp.col_lower_ = np.zeros(lp.n_cols)
+    hlp.col_upper_ = np.full(lp.n_cols, highspy.kHighsInf)
+    hlp.row_lower_ = lp.b
+    hlp.row_upper_ = lp.b
+    hlp.offset_ = float(lp.offset)
+    hlp.a_matrix_.format_ = highspy.MatrixFormat.kColwise
+    hlp.a_matrix_.start_ = A.indptr.astype(np.int32)
+    hlp.a_matrix_.index_ = A.indices.astype(np.int32)
+    hlp.a_matrix_.value_ = A.data
+    return hlp
+
+
+def solve_lp(lp: StandardLP, time_limit: float = 60.0, options: Optional[dict] = None,
+             warm_basis: Optional["highspy.HighsBasis"] = None) -> SolveResult:
+    """Solve min c^T x + offset s.t. A x = b, x >= 0 with HiGHS (simplex, so a basis is returned).
+
+    ``time_limit`` is in seconds. Returns a :class:`SolveResult`; ``basis`` holds the indices of
+    basic structural columns. Never raises for infeasible or unbounded models.
+    """
+    used = {"solver": "simplex", "time_limit": float(time_limit), **(options or {})}
+    h = new_highs(used)
+    h.passModel(_to_highs_lp(lp))
+    if warm_basis is not None:
+        h.setBasis(warm_basis)
+    start = time.perf_counter()
+    h.run()
+    seconds = time.perf_counter() - start
+    return _collect(h, lp.n_cols, seconds, {**DEFAULT_OPTIONS, **used})
+
+
+def _collect(h: "highspy.Highs", n_cols: int, seconds: float, options: dict) -> SolveResult:
+    model_status = h.getModelStatus()
+    status = STATUS_TABLE.get(model_status, "error")
+    info = h.getInfo()
+    result = SolveResult(
+        status=status, solver="highs", solver_code=int(model_status),
+        solver_message=h.modelStatusToString(model_status),
+        iterations=int(max(info.simplex_iteration_count, 0) + max(info.ipm_iteration_count, 0)),
+        seconds=seconds, options=options,
+    )
+    if status == "optimal":
+        solution = h.getSolution()
+        result.x = np.asarray(solution.col_value, dtype=float)
+        result.dual = np.asarray(solution.row_dual, dtype=float)
+        result.objective = float(info.objective_function_value)
+        basis = h.getBasis()
+        if basis.valid:
+            col_status = basis.col_status
+            result.basis = np.array([j for j in range(n_cols) if col_status[j] == highspy.HighsBasisStatus.kBasic], dtype=np.int64)
+    return result
+
+
+def basis_of(lp_result_highs: "highspy.Highs") -> "highspy.HighsBasis":  # pragma: no cover - thin
+    return lp_result_highs.getBasis()
