@@ -1,0 +1,55 @@
+"""Command-line entry point: ``calib COMMAND ...`` (also ``python -m calib``).
+
+User errors (:class:`calib.errors.InputError`) print one line ``calib: error: ...`` on stderr and
+exit with code 2, with no traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import pkgutil
+import sys
+from typing import Optional, Sequence
+
+from calib import __version__
+from calib.errors import InputError
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse with one-line errors (exit code 2)."""
+
+    def error(self, message: str):  # noqa: D401 - argparse hook
+        self.exit(2, f"calib: error: {self.prog}: {message} (see `{self.prog} --help`)\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    import calib.commands as commands
+
+    parser = _Parser(prog="calib", description="Calibrate random-projection sizes for LPs, SDPs and QPs: "
+                     "run sweeps, store every measurement, publish safe-k tables.")
+    parser.add_argument("--version", action="version", version=f"calib {__version__}")
+    subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    for module in sorted(pkgutil.iter_modules(commands.__path__), key=lambda mod: mod.name):
+        importlib.import_module(f"calib.commands.{module.name}").register(subparsers)
+    return parser
+
+
+def main(argv: Optional[Sequence[str]] = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return 2
+    try:
+        return int(args.func(args) or 0)
+    except InputError as error:
+        print(f"calib: error: {error}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("calib: interrupted; everything finished so far is stored (run the same command again to resume)", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
