@@ -1,6 +1,6 @@
 """Random LPs in standard form with ground truth known by construction.
 
-``lp-planted``: a feasible, bounded LP. A point x0 >= 0 with a chosen support is planted and
+``lp-planted``: a feasible, bounded LP (optionally with nearly redundant rows: ``rank``). A point x0 >= 0 with a chosen support is planted and
 b = A x0; costs c = A^T y0 + z0 with z0 >= 0 make y0 dual feasible, so the LP is bounded (weak
 duality). With ``cost = "nonnegative"`` the costs are instead c >= 0, which keeps every row
 projection bounded too (0 is dual feasible for TA).
@@ -20,8 +20,15 @@ from calib.problems import StandardLP
 from calib.theory import lp_points
 
 
-def _matrix(rows: int, cols: int, density: float, rng: np.random.Generator):
-    """Standard normal entries; sparse (CSR) with the given density when density < 1."""
+def _matrix(rows: int, cols: int, density: float, rng: np.random.Generator, rank=None, noise: float = 0.0):
+    """Standard normal entries; sparse (CSR) with the given density when density < 1.
+
+    With ``rank`` r < rows the dense matrix is U V / sqrt(r) + noise * N (U: rows x r, V: r x cols,
+    N: rows x cols, all standard normal): rows that are nearly redundant combinations of r rows.
+    """
+    if rank is not None and rank < rows:
+        low = rng.standard_normal((rows, rank)) @ rng.standard_normal((rank, cols)) / np.sqrt(rank)
+        return low + noise * rng.standard_normal((rows, cols))
     if density >= 1.0:
         return rng.standard_normal((rows, cols))
     A = sp.random_array((rows, cols), density=density, format="csr", rng=rng, data_sampler=rng.standard_normal)
@@ -41,7 +48,7 @@ def _check_common(params: dict) -> None:
 
 def _build_planted(params: dict, rng: np.random.Generator):
     rows, cols = params["rows"], params["cols"]
-    A = _matrix(rows, cols, params["density"], rng)
+    A = _matrix(rows, cols, params["density"], rng, params["rank"], params["noise"])
     support = max(1, int(round(params["support"] * cols)))
     x0 = np.zeros(cols)
     x0[rng.choice(cols, size=support, replace=False)] = rng.uniform(0.5, 1.5, size=support)
@@ -73,6 +80,10 @@ def _build_farkas(params: dict, rng: np.random.Generator):
 
 def _check_planted(params: dict) -> None:
     _check_common(params)
+    if params["rank"] is not None:
+        positive_int(params, "rank")
+        require(params["density"] == 1.0, "rank", "a low-rank matrix is dense", "set density = 1.0 or drop rank")
+    fraction(params, "noise", 0.0, 10.0, closed_low=True)
     fraction(params, "support")
     require(params["cost"] in ("dual", "nonnegative"), "cost", f"must be 'dual' or 'nonnegative', got {params['cost']!r}", "pick one of the two cost models")
 
@@ -95,8 +106,10 @@ register(Family(
     description="Random feasible, bounded LP min c^T x, Ax = b, x >= 0 with N(0,1) entries, a planted "
                 "feasible point and costs backed by a planted dual-feasible vector.",
     size_keys=("rows", "cols"),
-    defaults={"rows": None, "cols": None, "density": 1.0, "support": 0.5, "cost": "dual"},
+    defaults={"rows": None, "cols": None, "density": 1.0, "support": 0.5, "cost": "dual", "rank": None, "noise": 0.0},
     param_doc={**_LP_DOC,
+               "rank": "if set (integer < rows): A = U V / sqrt(rank) + noise * N, rows nearly redundant",
+               "noise": "full-rank perturbation added to a low-rank A, in [0, 10]; ignored without rank",
                "support": "fraction of positive entries of the planted point x0, in (0, 1]",
                "cost": "'dual' (c = A^T y0 + z0, mixed signs) or 'nonnegative' (c > 0)"},
     build=_build_planted,

@@ -1,0 +1,349 @@
+"""Sweep specifications: TOML in, a validated :class:`Spec` out, expanded into trials.
+
+Layout (every key documented in README.md, section "Sweep specs")::
+
+    [campaign]
+    name = "quickstart"        # letters, digits, '-', '_'; names the store file
+    root_seed = 20261201       # one integer root seed for the whole campaign
+    replicates = 10            # independent projector draws per (instance, projector, k)
+
+    [[families]]               # one table per family
+    name = "lp-planted"        # a registered family (`calib families`)
+    sizes = [{rows = 60, cols = 120}]
+    instances = 3              # instances per size
+    params = {support = 0.5}   # optional, non-size parameters
+
+    [sweep]
+    projectors = ["gaussian", {name = "sparse-jl", s = 4}]
+    k = [8, 16, 32]            # or {fractions = [0.1, 0.2]} of the projected dimension,
+                               # or {eps = [0.5, 0.3], rule = "dasgupta-gupta"}
+    retrievals = ["basis-lstsq"]
+
+    [solver]
+    time_limit_s = 60          # per solve, seconds
+
+Validation collects every problem with its field path (``families[0].sizes[1].rows``) and the
+fix, and raises one :class:`SpecError` listing them all.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Optional
+
+from calib.errors import InputError
+from calib.keys import canonical_json, stable_id, stable_key
+
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_-]{0,63}$")
+
+
+class SpecError(InputError):
+    """One or more problems in a spec; the message lists each with its field path."""
+
+    def __init__(self, source: str, problems: list[tuple[str, str, str]]):
+        self.problems = problems
+        parts = [f"{path}: {problem}" + (f" ({fix})" if fix else "") for path, problem, fix in problems]
+        count = f"{len(problems)} problems: " if len(problems) > 1 else ""
+        super().__init__(source, count + "; ".join(parts))
+
+
+@dataclass(frozen=True)
+class ProjectorChoice:
+    name: str
+    options: tuple = ()  # sorted (key, value) pairs
+
+    @property
+    def label(self) -> str:
+        if not self.options:
+            return self.name
+        return f"{self.name}(" + ",".join(f"{key}={value}" for key, value in self.options) + ")"
+
+    @property
+    def key(self) -> int:
+        return stable_key({"name": self.name, "options": dict(self.options)})
+
+
+@dataclass(frozen=True)
+class KGrid:
+    """How k is chosen: absolute values, fractions of the projected dimension, or eps with a rule."""
+
+    mode: str  # "absolute" | "fractions" | "eps"
+    values: tuple
+    rule: Optional[str] = None
+
+
+@dataclass(frozen=True)
+class FamilyCell:
+    name: str
+    sizes: tuple  # of dicts (full params, defaults filled)
+    instances: int
+
+
+@dataclass
+class Spec:
+    name: str
+    root_seed: int
+    replicates: int
+    families: list[FamilyCell]
+    projectors: list[ProjectorChoice]
+    k_grid: KGrid
+    retrievals: list[str]
+    solver: dict
+    source: str = ""
+    raw: dict = field(default_factory=dict, repr=False)
+
+    @property
+    def fingerprint(self) -> str:
+        """Hash of the canonical spec content: equal specs give equal fingerprints."""
+        return stable_id(self.raw, 32)
+
+
+class _Collector:
+    def __init__(self) -> None:
+        self.problems: list[tuple[str, str, str]] = []
+
+    def add(self, path: str, problem: str, fix: str = "") -> None:
+        self.problems.append((path, problem, fix))
+
+    def table(self, raw: dict, key: str, path: str) -> dict:
+        value = raw.get(key)
+        if value is None:
+            self.add(path, "missing table", f"add a [{key}] table")
+            return {}
+        if not isinstance(value, dict):
+            self.add(path, f"must be a table, got {type(value).__name__}", f"write it as [{key}]")
+            return {}
+        return value
+
+    def integer(self, table: dict, key: str, path: str, minimum: int, default: Any = None) -> Optional[int]:
+        value = table.get(key, default)
+        if value is None:
+            self.add(path, "missing", f"set {key} to an integer >= {minimum}")
+            return None
+        if isinstance(value, bool) or not isinstance(value, int):
+            self.add(path, f"must be an integer, got {value!r}", f"set {key} to an integer >= {minimum}")
+            return None
+        if value < minimum:
+            self.add(path, f"must be >= {minimum}, got {value}", f"set {key} to an integer >= {minimum}")
+            return None
+        return value
+
+    def unknown_keys(self, table: dict, allowed: set, path: str) -> None:
+        for key in sorted(set(table) - allowed):
+            self.add(f"{path}.{key}", "unknown key", f"allowed keys: {', '.join(sorted(allowed))}")
+
+
+def load_spec(path: str | Path) -> Spec:
+    """Read and validate a TOML spec file; raises :class:`InputError`/:class:`SpecError`."""
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(str(path), "no such spec file", "give the path to a TOML sweep spec")
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as error:
+        raise InputError(str(path), f"not valid TOML: {error}", "fix the syntax at the position shown") from None
+    return parse_spec(raw, source=str(path))
+
+
+def parse_spec(raw: dict, source: str = "spec") -> Spec:
+    """Validate a spec dictionary (the parsed TOML) into a :class:`Spec`."""
+    from calib import families as family_registry
+
+    errors = _Collector()
+    errors.unknown_keys(raw, {"campaign", "families", "sweep", "solver"}, "spec")
+    campaign = errors.table(raw, "campaign", "campaign")
+    errors.unknown_keys(campaign, {"name", "root_seed", "replicates", "description"}, "campaign")
+    name = campaign.get("name")
+    if not isinstance(name, str) or not _NAME.match(name):
+        errors.add("campaign.name", f"must be 1-64 letters, digits, '-' or '_', got {name!r}", 'e.g. name = "covering-small"')
+    root_seed = errors.integer(campaign, "root_seed", "campaign.root_seed", 0)
+    replicates = errors.integer(campaign, "replicates", "campaign.replicates", 1, default=1)
+
+    cells = _parse_families(raw.get("families"), errors, family_registry)
+    sweep = errors.table(raw, "sweep", "sweep")
+    errors.unknown_keys(sweep, {"projectors", "k", "retrievals"}, "sweep")
+    projectors = _parse_projectors(sweep.get("projectors"), errors)
+    k_grid = _parse_k(sweep.get("k"), errors)
+    kinds = {family_registry.get(cell.name).kind for cell in cells}
+    retrievals = _parse_retrievals(sweep.get("retrievals"), kinds, errors)
+    solver = _parse_solver(raw.get("solver", {}), errors)
+    if not errors.problems:
+        _check_grid(cells, k_grid, errors, family_registry)
+    if errors.problems:
+        raise SpecError(source, errors.problems)
+    return Spec(name=name, root_seed=root_seed, replicates=replicates, families=cells, projectors=projectors,
+                k_grid=k_grid, retrievals=retrievals, solver=solver, source=source,
+                raw=raw)
+
+
+def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
+    if not isinstance(value, list) or not value:
+        errors.add("families", "missing or empty", "add at least one [[families]] table")
+        return []
+    cells, seen = [], set()
+    for index, table in enumerate(value):
+        path = f"families[{index}]"
+        if not isinstance(table, dict):
+            errors.add(path, "must be a table", "write it as [[families]]")
+            continue
+        errors.unknown_keys(table, {"name", "sizes", "instances", "params"}, path)
+        name = table.get("name")
+        try:
+            family = registry.get(name, f"{path}.name")
+        except InputError as error:
+            errors.add(error.where, error.problem, error.fix)
+            continue
+        instances = errors.integer(table, "instances", f"{path}.instances", 1, default=1)
+        params = table.get("params", {})
+        if not isinstance(params, dict):
+            errors.add(f"{path}.params", "must be a table", "write params = {key = value}")
+            params = {}
+        sizes = table.get("sizes", [{}] if not family.size_keys else None)
+        if not isinstance(sizes, list) or not sizes:
+            errors.add(f"{path}.sizes", "missing or empty", f"give a list of sizes like [{{{', '.join(k + ' = ...' for k in family.size_keys)}}}]")
+            continue
+        resolved = []
+        for size_index, size in enumerate(sizes):
+            size_path = f"{path}.sizes[{size_index}]"
+            if not isinstance(size, dict):
+                errors.add(size_path, "must be a table", "write {rows = 100, cols = 200}")
+                continue
+            try:
+                resolved.append(family.resolve({**params, **size}, size_path))
+            except InputError as error:
+                errors.add(error.where, error.problem, error.fix)
+        key = (name, canonical_json(resolved))
+        if key in seen:
+            errors.add(path, f"duplicate family entry {name!r} with the same sizes", "merge or remove the duplicate")
+        seen.add(key)
+        if instances is not None:
+            cells.append(FamilyCell(name=name, sizes=tuple(resolved), instances=instances))
+    return cells
+
+
+def _parse_projectors(value, errors: _Collector) -> list[ProjectorChoice]:
+    from calib import projectors
+
+    if not isinstance(value, list) or not value:
+        errors.add("sweep.projectors", "missing or empty", f"list some of {', '.join(projectors.names())}")
+        return []
+    choices = []
+    for index, entry in enumerate(value):
+        path = f"sweep.projectors[{index}]"
+        if isinstance(entry, str):
+            entry = {"name": entry}
+        if not isinstance(entry, dict) or not isinstance(entry.get("name"), str):
+            errors.add(path, "must be a name or a table with a name", 'e.g. "gaussian" or {name = "sparse-jl", s = 4}')
+            continue
+        try:
+            projectors.check_name(entry["name"], path)
+        except InputError as error:
+            errors.add(error.where, error.problem, error.fix)
+            continue
+        options = tuple(sorted((key, val) for key, val in entry.items() if key != "name"))
+        choice = ProjectorChoice(entry["name"], options)
+        if choice in choices:
+            errors.add(path, f"duplicate projector {choice.label!r}", "list each projector once")
+        choices.append(choice)
+    return choices
+
+
+def _number_list(values, path: str, errors: _Collector, check, fix: str) -> tuple:
+    if not isinstance(values, list) or not values:
+        errors.add(path, "must be a non-empty list", fix)
+        return ()
+    good = []
+    for index, value in enumerate(values):
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or not check(value):
+            errors.add(f"{path}[{index}]", f"invalid value {value!r}", fix)
+        else:
+            good.append(value)
+    if len(set(good)) != len(good):
+        errors.add(path, "has duplicate values", "list each value once")
+    return tuple(good)
+
+
+def _parse_k(value, errors: _Collector) -> KGrid:
+    from calib.theory import RULES
+
+    if isinstance(value, list):
+        ints = _number_list(value, "sweep.k", errors, lambda v: isinstance(v, int) and v >= 1, "k values are integers >= 1")
+        return KGrid("absolute", tuple(sorted(ints)))
+    if isinstance(value, dict):
+        if set(value) == {"fractions"}:
+            fr = _number_list(value["fractions"], "sweep.k.fractions", errors, lambda v: 0 < v <= 1, "fractions lie in (0, 1]")
+            return KGrid("fractions", tuple(sorted(fr)))
+        if "eps" in value and set(value) <= {"eps", "rule"}:
+            rule = value.get("rule", "dasgupta-gupta")
+            if rule not in RULES:
+                errors.add("sweep.k.rule", f"unknown rule {rule!r}", f"choose one of {', '.join(sorted(RULES))}")
+            eps = _number_list(value["eps"], "sweep.k.eps", errors, lambda v: 0 < v < 1, "eps values lie in (0, 1)")
+            return KGrid("eps", tuple(sorted(eps, reverse=True)), rule)
+    errors.add("sweep.k", f"cannot read {value!r}", "use k = [8, 16], k = {fractions = [0.1, 0.2]} or k = {eps = [0.3], rule = \"dasgupta-gupta\"}")
+    return KGrid("absolute", ())
+
+
+def _parse_retrievals(value, kinds: set, errors: _Collector) -> list[str]:
+    from calib.reduce import HANDLERS
+
+    known = sorted({name for kind in kinds if kind in HANDLERS for name in HANDLERS[kind].retrievals})
+    for kind in sorted(kinds - set(HANDLERS)):
+        errors.add("families", f"no reduction for problem kind {kind!r} yet", "remove those families from this spec")
+    if value is None:
+        return known[:1]
+    if not isinstance(value, list) or not value:
+        errors.add("sweep.retrievals", "must be a non-empty list", f"choose from {', '.join(known)}")
+        return []
+    for index, name in enumerate(value):
+        if name not in known:
+            errors.add(f"sweep.retrievals[{index}]", f"unknown retrieval {name!r}", f"choose from {', '.join(known)}")
+    if len(set(value)) != len(value):
+        errors.add("sweep.retrievals", "has duplicates", "list each retrieval once")
+    return list(value)
+
+
+def _parse_solver(value, errors: _Collector) -> dict:
+    if not isinstance(value, dict):
+        errors.add("solver", "must be a table", "write [solver] with time_limit_s = 60")
+        return {}
+    errors.unknown_keys(value, {"time_limit_s"}, "solver")
+    limit = value.get("time_limit_s", 60.0)
+    if isinstance(limit, bool) or not isinstance(limit, (int, float)) or not (0 < limit < 1e6):
+        errors.add("solver.time_limit_s", f"must be a positive number of seconds, got {limit!r}", "e.g. time_limit_s = 60")
+        limit = 60.0
+    return {"time_limit_s": float(limit)}
+
+
+def _check_grid(cells, k_grid: KGrid, errors: _Collector, registry) -> None:
+    for index, cell in enumerate(cells):
+        for size_index, params in enumerate(cell.sizes):
+            if not k_values(k_grid, registry.get(cell.name), params)[0]:
+                errors.add(f"families[{index}].sizes[{size_index}]", "no k of the grid fits this size (every k exceeds the projected dimension)",
+                           "add smaller k values or use k = {fractions = [...]}")
+
+
+def k_values(k_grid: KGrid, family, params: dict) -> tuple[list[int], list[str]]:
+    """The k values of the grid for one size, each with its provenance label.
+
+    Values above the projected dimension m are dropped (no reduction); fractions round up and are
+    at least 1; eps values go through the named rule with the family's point count.
+    """
+    from calib.theory import k_from_eps
+
+    m = family.projected_dim(params)
+    pairs: dict[int, str] = {}
+    for value in k_grid.values:
+        if k_grid.mode == "absolute":
+            k, label = int(value), ""
+        elif k_grid.mode == "fractions":
+            k, label = max(1, math.ceil(value * m - 1e-9)), f"fraction={value}"
+        else:
+            k, label = k_from_eps(k_grid.rule, family.n_points(params), value), f"eps={value} ({k_grid.rule})"
+        if k <= m and k not in pairs:
+            pairs[k] = label
+    ks = sorted(pairs)
+    return ks, [pairs[k] for k in ks]
