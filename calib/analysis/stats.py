@@ -1,11 +1,17 @@
-"""Binomial confidence bounds for success rates.
+"""Binomial confidence bounds for success rates (vectorised over arrays of counts).
 
-One-sided Clopper–Pearson lower bound at confidence 1 - alpha for x successes in n trials:
-the alpha quantile of Beta(x, n - x + 1) (0 when x = 0). When x = n it has the closed form
-alpha^(1/n).
+One-sided Clopper–Pearson lower bound at confidence 1 - alpha for x successes in n trials: the
+alpha quantile of Beta(x, n - x + 1), 0 when x = 0; when x = n it has the closed form
+alpha^(1/n). The upper bound is the 1 - alpha quantile of Beta(x + 1, n - x), 1 when x = n.
 
 Reference: C. J. Clopper and E. S. Pearson, "The use of confidence or fiducial limits illustrated
 in the case of the binomial", Biometrika 26(4):404–413, 1934.
+
+One-sided Wilson score lower bound with z = Phi^-1(confidence):
+(p + z²/2n - z sqrt(p(1-p)/n + z²/4n²)) / (1 + z²/n).
+
+Reference: E. B. Wilson, "Probable inference, the law of succession, and statistical
+inference", Journal of the American Statistical Association 22(158):209–212, 1927.
 """
 
 from __future__ import annotations
@@ -15,26 +21,51 @@ from scipy import stats
 
 
 def clopper_pearson_lower(successes, trials, confidence: float = 0.95):
-    """One-sided lower confidence bound on a binomial proportion (vectorised).
+    """One-sided Clopper–Pearson lower confidence bound on a binomial proportion.
 
     >>> round(float(clopper_pearson_lower(30, 30, 0.95)), 6)  # 0.05 ** (1/30)
-    0.905217
+    0.904966
     >>> float(clopper_pearson_lower(0, 10))
     0.0
     """
     x = np.asarray(successes, dtype=float)
     n = np.asarray(trials, dtype=float)
-    alpha = 1.0 - confidence
     with np.errstate(invalid="ignore", divide="ignore"):
-        bound = stats.beta.ppf(alpha, x, n - x + 1)
+        bound = stats.beta.ppf(1.0 - confidence, x, n - x + 1)
     return np.where(x <= 0, 0.0, bound)
 
 
+def clopper_pearson_upper(successes, trials, confidence: float = 0.95):
+    """One-sided Clopper–Pearson upper confidence bound on a binomial proportion.
+
+    >>> round(float(clopper_pearson_upper(0, 30, 0.95)), 6)  # 1 - 0.05 ** (1/30)
+    0.095034
+    >>> float(clopper_pearson_upper(10, 10))
+    1.0
+    """
+    x = np.asarray(successes, dtype=float)
+    n = np.asarray(trials, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        bound = stats.beta.ppf(confidence, x + 1, n - x)
+    return np.where(x >= n, 1.0, bound)
+
+
+def clopper_pearson_interval(successes, trials, confidence: float = 0.95):
+    """Two-sided Clopper–Pearson interval (lower, upper) at the given confidence.
+
+    >>> low, high = clopper_pearson_interval(5, 10, 0.95)
+    >>> round(float(low), 4), round(float(high), 4)
+    (0.1871, 0.8129)
+    """
+    one_sided = 1.0 - (1.0 - confidence) / 2.0
+    return clopper_pearson_lower(successes, trials, one_sided), clopper_pearson_upper(successes, trials, one_sided)
+
+
 def wilson_lower(successes, trials, confidence: float = 0.95):
-    """One-sided Wilson score lower bound (E. B. Wilson, JASA 22(158):209–212, 1927).
+    """One-sided Wilson score lower bound.
 
     >>> round(float(wilson_lower(9, 10, 0.95)), 4)
-    0.6452
+    0.6523
     """
     x = np.asarray(successes, dtype=float)
     n = np.asarray(trials, dtype=float)

@@ -1,4 +1,4 @@
-"""``calib tables STORE``: safe-k tables (JSON/CSV) from a campaign store."""
+"""``calib tables STORE``: safe-k tables (JSON/CSV) from a campaign store, timings apart."""
 
 from __future__ import annotations
 
@@ -7,21 +7,31 @@ from pathlib import Path
 
 
 def add_predicate_options(parser: argparse.ArgumentParser) -> None:
-    """Options that choose the success predicate and the confidence target (shared by commands)."""
+    """Options that choose the success predicate, the tolerance ladder, eps and the confidence target."""
+    from calib.analysis.success import PRESETS
+
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
-    group.add_argument("--preset", default="bound", choices=["bound", "solution"],
+    group.add_argument("--preset", default="bound", choices=sorted(PRESETS),
                        help="'bound': the projected optimum is within --tol-gap of the original (default); "
-                            "'solution': the retrieved point meets --tol-obj, --tol-feas and --tol-sign")
+                            "'solution': the retrieved point meets --tol-obj, --tol-feas and --tol-sign; "
+                            "'classify': only the feasibility verdict must match; "
+                            "'distortion': point sets, worst pairwise distortion within --tol-distortion")
     group.add_argument("--tol-gap", type=float, metavar="TAU", help="relative gap of the projected optimum (bound preset: 0.05)")
     group.add_argument("--tol-obj", type=float, metavar="TAU", help="relative objective error of the retrieved point (solution preset: 0.05)")
     group.add_argument("--tol-feas", type=float, metavar="TAU", help="relative feasibility error ||Ax-b||/max(1,||b||) (solution preset: 0.05)")
     group.add_argument("--tol-sign", type=float, metavar="TAU", help="relative sign violation ||min(x,0)||/max(1,||x||) (solution preset: 0.05)")
-    group.add_argument("--tol-distortion", type=float, metavar="TAU", help="worst pairwise distortion for point sets")
+    group.add_argument("--tol-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
+    group.add_argument("--tau", type=float, nargs="+", metavar="TAU",
+                       help="a ladder of primary tolerances: one analysis per value, each setting the tolerance(s) of the preset "
+                            "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
     group.add_argument("--delta", type=float, default=0.1, help="target success rate is 1 - delta (default 0.1)")
-    group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound (default 0.95)")
+    group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound and the intervals (default 0.95)")
+    group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
+                                                 "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
 
 
 def predicate_from(args: argparse.Namespace):
+    """(predicate, confidence) from the parsed options."""
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
@@ -30,50 +40,92 @@ def predicate_from(args: argparse.Namespace):
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
 
-def register(subparsers) -> None:
-    parser = subparsers.add_parser(
-        "tables", help="write safe-k tables from a store",
-        description="Decide success from the stored metrics with the chosen tolerances, then write per "
-                    "(family, size, projector, retrieval) the success rate, its one-sided Clopper-Pearson lower "
-                    "bound at each k, and the safe k. Prints a summary; writes JSON and/or CSV when asked.")
-    parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
-    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON")
-    parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per cell and k)")
-    add_predicate_options(parser)
-    parser.set_defaults(func=run)
-
-
-def run(args: argparse.Namespace) -> int:
-    from calib.analysis.tables import build_table, write_table
+def analyse(args: argparse.Namespace):
+    """(table, tidy rows, store meta) of ``args.store`` under the parsed analysis options."""
+    from calib.analysis.tables import build_table, load_rows
     from calib.sweep.store import Store
 
     predicate, confidence = predicate_from(args)
     store = Store.open_existing(args.store)
     try:
-        table = build_table(store, predicate, confidence)
+        rows = load_rows(store)
+        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows)
+        meta = store.meta()
     finally:
         store.close()
+    return table, rows, meta
+
+
+def register(subparsers) -> None:
+    parser = subparsers.add_parser(
+        "tables", help="write safe-k tables from a store",
+        description="Decide success from the stored metrics with the chosen tolerances, then write per "
+                    "(family, size, projector, retrieval) the success rate with its one-sided Clopper-Pearson and "
+                    "Wilson lower bounds at each k, the safe k, the logistic transition (k50, k at 1-delta), the law "
+                    "k = a + C ln n across sizes and the published bounds beside them. Prints a summary; writes JSON "
+                    "and/or CSV when asked. Timings go to their own file (--timings): they differ between runs, "
+                    "the table does not.")
+    parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
+    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v1.json)")
+    parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
+    parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
+    add_predicate_options(parser)
+    parser.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from calib.analysis.tables import write_table
+    from calib.analysis.timing import timing_frame, write_timings
+
+    table, rows, _ = analyse(args)
     write_table(table, args.json, args.csv)
+    if args.timings is not None:
+        write_timings(timing_frame(rows, table["analyses"][0]), args.timings)
     print(render_summary(table))
-    for path in (args.json, args.csv):
+    for path in (args.json, args.csv, args.timings):
         if path is not None:
             print(f"wrote {path}")
     return 0
 
 
+def _transition_text(transition: dict) -> str:
+    if transition["k50"] is None:
+        return f"no logistic fit: {transition['reason']}"
+    low, high = transition["k50_interval"]
+    return f"k50 = {transition['k50']:.3g} [{low:.3g}, {high:.3g}], k at target = {transition['k_target']:.3g}"
+
+
+def _law_text(law: dict) -> str:
+    fit = law["safe_k_law"]
+    if fit["a"] is None:
+        return f"  law: {fit['reason']}"
+    se = f" ± {fit['C_se']:.3g}" if fit["C_se"] is not None else ""
+    rules = ", ".join(f"{name} C = {rule['C']:.4g}" for name, rule in law["theory"]["rules"].items())
+    eps = f" (bounds at eps = {law['theory']['eps']:g}: {rules})" if law["theory"]["eps"] is not None else ""
+    return f"  law: safe k = {fit['a']:.3g} + {fit['C']:.3g}{se} ln n over n in [{fit['n_min']}, {fit['n_max']}]{eps}"
+
+
 def render_summary(table: dict) -> str:
-    """A plain-text view: one block per cell, one line per k."""
+    """A plain-text view: per tolerance, one block per cell (one line per k), then the laws."""
     target = table["target"]
-    lines = [f"campaign {table['campaign']['name']}: predicate {table['predicate']['name']}, "
-             f"target rate {target['success_rate']:.2f} at {target['confidence']:.0%} confidence"]
-    for entry in table["entries"]:
-        safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
-        note = f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else ""
-        lines.append(f"\n{entry['family']} {entry['size']} | {entry['projector']} | {entry['retrieval']} | m={entry['projected_dim']}"
-                     f" -> safe k = {safe}{note}")
-        for point in entry["grid"]:
-            mark = "pass" if point["passes"] else "fail"
-            lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
-                         f"  lower={point['lower_bound']:.3f}  {mark}")
+    lines = [f"campaign {table['campaign']['name']}: target rate {target['success_rate']:.2f} at "
+             f"{target['confidence']:.0%} confidence"]
+    for analysis in table["analyses"]:
+        lines.append(f"\n=== predicate {analysis['predicate']['name']} (tau = {analysis['tau']})")
+        for excluded in analysis["excluded"]:
+            lines.append(f"  left out {excluded['family']}: {excluded['reason']}")
+        for entry in analysis["entries"]:
+            safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
+            note = f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else ""
+            lines.append(f"\n{entry['family']} {entry['size']} | {entry['projector']} | {entry['retrieval']} | "
+                         f"m={entry['projected_dim']} n={entry['n_points']} -> safe k = {safe}{note}")
+            lines.append(f"   {_transition_text(entry['transition'])}")
+            for point in entry["grid"]:
+                mark = "pass" if point["passes"] else "fail"
+                lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
+                             f"  lower={point['lower_bound']:.3f}  {mark}")
+        for law in analysis["laws"]:
+            lines.append(f"\n{law['family']} | {law['projector']} | {law['retrieval']}")
+            lines.append(_law_text(law))
     lines.append("\n" + table["notice"])
     return "\n".join(lines)

@@ -1,0 +1,86 @@
+"""The published bounds beside the measurements: which eps, which k, which constant.
+
+How a success predicate is turned into the eps of the theory (written into every table):
+
+- point sets: the distortion tolerance is eps itself (both bound the relative change of squared
+  pairwise distances, as in Dasgupta–Gupta);
+- LPs, SDPs and QPs: no theorem ties an objective or feasibility tolerance to eps, so eps is a
+  stated choice: ``--eps`` when given, else the predicate's primary tolerance tau (a convention:
+  "the bound at eps = tau"). Predicates without a tolerance (``classify``) need ``--eps``.
+
+Every rule of :data:`calib.theory.RULES` maps (n, eps) -> k. Its constant C_rule in k = C ln n is
+read off the rule itself as (k(e^35) - k(e^5)) / 30, which is exact for rules linear in ln n up to
+their rounding (error <= 1/30). The ratios reported are bound k / measured safe k per size and
+C_rule / C_fitted per law: how far below the theory the measurements sit.
+"""
+
+from __future__ import annotations
+
+from typing import Optional
+
+import numpy as np
+
+from calib import theory
+from calib.analysis.success import Predicate, primary_tau
+
+_LOG_SPAN = (5.0, 35.0)
+
+EPS_CONVENTION = ("point sets: eps is the distortion tolerance; LPs, SDPs, QPs: eps is --eps when given, else "
+                  "the predicate's primary tolerance tau (a stated convention, not a theorem)")
+EPS_FROM_DISTORTION = "the predicate's distortion tolerance (for point sets eps is the distortion tolerance)"
+EPS_FROM_USER = "--eps given at analysis time (a stated choice; no theorem ties this tolerance to eps)"
+EPS_FROM_TAU = ("the predicate's primary tolerance tau (convention: the bound at eps = tau; no theorem ties "
+                "an LP/SDP/QP tolerance to eps; choose another with --eps)")
+
+
+def theory_eps(predicate: Predicate, kind: str, eps: Optional[float] = None) -> tuple[Optional[float], str]:
+    """(eps, how it was chosen) for rows of ``kind`` under ``predicate``; eps None with the reason.
+
+    >>> theory_eps(Predicate("distortion", gap=None, distortion=0.2, classify=False), "points")[0]
+    0.2
+    >>> theory_eps(Predicate("bound", gap=0.05), "lp")[0]
+    0.05
+    >>> theory_eps(Predicate("bound", gap=0.05), "lp", eps=0.3)[0]
+    0.3
+    """
+    if kind == "points":
+        if predicate.distortion is None:
+            return None, "the predicate has no distortion tolerance"
+        chosen, source = predicate.distortion, EPS_FROM_DISTORTION
+    elif eps is not None:
+        chosen, source = eps, EPS_FROM_USER
+    else:
+        chosen, source = primary_tau(predicate), EPS_FROM_TAU
+        if chosen is None:
+            return None, "the predicate has no tolerance to map to eps: pass --eps"
+    if not 0.0 < chosen < 1.0:
+        return None, f"eps = {chosen:g} lies outside (0, 1), where the bounds hold"
+    return float(chosen), source
+
+
+def bound_k(n_points: int, eps: float) -> dict[str, int]:
+    """k of every published rule for ``n_points`` points at ``eps``.
+
+    >>> bound_k(1001, 0.5)["dasgupta-gupta"]
+    332
+    """
+    return {name: int(rule(np.asarray(float(n_points)), np.asarray(eps))) for name, rule in sorted(theory.RULES.items())}
+
+
+def rule_constants(eps: float) -> dict[str, float]:
+    """C_rule of every published rule at ``eps`` (k ~= C_rule ln n); see the module text.
+
+    >>> round(rule_constants(0.5)["dasgupta-gupta"], 1)  # 4 / (1/8 - 1/24) = 48
+    48.0
+    """
+    low, high = (np.asarray(np.exp(x)) for x in _LOG_SPAN)
+    eps = np.asarray(eps)
+    return {name: float(rule(high, eps) - rule(low, eps)) / (_LOG_SPAN[1] - _LOG_SPAN[0])
+            for name, rule in sorted(theory.RULES.items())}
+
+
+def ratio(bound: float, measured: Optional[float]) -> Optional[float]:
+    """bound / measured, None when nothing positive was measured."""
+    if measured is None or not np.isfinite(measured) or measured <= 0:
+        return None
+    return float(bound) / float(measured)

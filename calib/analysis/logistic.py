@@ -1,0 +1,141 @@
+"""Logistic fit of success on ln k: the phase-transition midpoint k50 and the k at a target rate.
+
+Model: P(success | k) = 1 / (1 + exp(-(b0 + b1 ln k))), fitted by maximum likelihood on the
+binomial counts of each swept k (Newton–Raphson, which for the logit link is iteratively
+reweighted least squares). The covariance of (b0, b1) is the inverse Fisher information at the
+optimum, as in any logistic-regression package.
+
+Derived quantities, with a delta-method interval on the ln k scale at the requested confidence
+(two-sided), mapped back by exp:
+
+- k50 = exp(-b0 / b1), the k where the fitted success is one half;
+- k at rate p: exp((logit(p) - b0) / b1).
+
+The maximum-likelihood estimate does not exist when the outcomes are separated by k: no success,
+no failure, or every failure at a smaller k than every success (complete separation), or the two
+touching at a single k (quasi-complete separation). Those cells get no fit and a stated reason,
+with the bracket of k where the transition must lie.
+
+Reference: A. Albert and J. A. Anderson, "On the existence of maximum likelihood estimates in
+logistic regression models", Biometrika 71(1):1–10, 1984 (separation).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Optional
+
+import numpy as np
+from scipy import special, stats
+
+_MAX_ITERATIONS = 100
+_STEP_TOLERANCE = 1e-10
+
+
+@dataclass(frozen=True)
+class LogisticFit:
+    """A fitted transition, or the reason there is none (``intercept`` is None then).
+
+    ``covariance`` is the 2x2 covariance of (intercept, slope); ``bracket`` is (low, high) in k
+    where the transition lies when the fit does not exist (either side may be None: unbounded).
+    """
+
+    intercept: Optional[float] = None
+    slope: Optional[float] = None
+    covariance: Optional[np.ndarray] = None
+    reason: str = ""
+    bracket: tuple = (None, None)
+    iterations: int = 0
+
+    @property
+    def ok(self) -> bool:
+        return self.intercept is not None
+
+    def success_at(self, k):
+        """Fitted success probability at ``k`` (array-like)."""
+        return special.expit(self.intercept + self.slope * np.log(np.asarray(k, dtype=float)))
+
+    def log_k_at(self, rate: float) -> float:
+        """ln k where the fitted success equals ``rate`` (0 < rate < 1)."""
+        return (special.logit(rate) - self.intercept) / self.slope
+
+    def k_at(self, rate: float, confidence: float = 0.95) -> tuple[float, float, float]:
+        """(k, low, high): k at the given success rate with its delta-method interval.
+
+        The gradient of g = (logit(rate) - b0) / b1 is (-1/b1, -g/b1); the variance of g is
+        grad' Cov grad; the interval is exp(g -/+ z sd) with z the two-sided normal quantile.
+        """
+        g = self.log_k_at(rate)
+        gradient = np.array([-1.0 / self.slope, -g / self.slope])
+        sd = float(np.sqrt(max(gradient @ self.covariance @ gradient, 0.0)))
+        z = stats.norm.ppf(0.5 + confidence / 2.0)
+        return float(np.exp(g)), float(np.exp(g - z * sd)), float(np.exp(g + z * sd))
+
+
+def separation(k, successes, trials) -> Optional[tuple[str, tuple]]:
+    """(reason, bracket) when no finite maximum-likelihood fit exists, else None.
+
+    >>> separation([4, 8, 16], [0, 0, 5], [5, 5, 5])[0]
+    'complete separation: every trial fails up to k=8 and succeeds from k=16; the transition lies between'
+    >>> separation([4, 8, 16], [0, 2, 5], [5, 5, 5])[1]
+    (8.0, 8.0)
+    >>> separation([4, 8, 16], [1, 2, 5], [5, 5, 5]) is None
+    True
+    """
+    k = np.asarray(k, dtype=float)
+    successes = np.asarray(successes, dtype=float)
+    failures = np.asarray(trials, dtype=float) - successes
+    if np.unique(k).size < 2:
+        return "only one swept k: no slope to fit", (None, None)
+    if successes.sum() == 0:
+        return "no success at any swept k: the transition lies above the grid", (float(k.max()), None)
+    if failures.sum() == 0:
+        return "every trial succeeds: the transition lies below the grid", (None, float(k.min()))
+    highest_failure = float(k[failures > 0].max())
+    lowest_success = float(k[successes > 0].min())
+    if highest_failure < lowest_success:
+        return (f"complete separation: every trial fails up to k={highest_failure:g} and succeeds from "
+                f"k={lowest_success:g}; the transition lies between"), (highest_failure, lowest_success)
+    if highest_failure == lowest_success:
+        return (f"quasi-complete separation: k={lowest_success:g} is the only k with both outcomes; the "
+                f"transition lies there"), (lowest_success, lowest_success)
+    return None
+
+
+def fit_logistic(k, successes, trials) -> LogisticFit:
+    """Maximum-likelihood fit of success on ln k from binomial counts per k.
+
+    >>> fit = fit_logistic([4, 8, 16, 32], [1, 4, 8, 10], [10, 10, 10, 10])
+    >>> round(float(fit.k_at(0.5)[0]), 3)  # k50; statsmodels Logit gives the same
+    9.124
+    """
+    k = np.asarray(k, dtype=float)
+    successes = np.asarray(successes, dtype=float)
+    trials = np.asarray(trials, dtype=float)
+    separated = separation(k, successes, trials)
+    if separated is not None:
+        reason, bracket = separated
+        return LogisticFit(reason=reason, bracket=bracket)
+    # centre ln k for conditioning; map back at the end
+    x = np.log(k)
+    centre = float(np.average(x, weights=trials))
+    design = np.column_stack([np.ones_like(x), x - centre])
+    beta = np.zeros(2)
+    for iteration in range(1, _MAX_ITERATIONS + 1):
+        p = special.expit(design @ beta)
+        weights = trials * p * (1 - p)
+        information = design.T @ (design * weights[:, None])
+        step = np.linalg.solve(information, design.T @ (successes - trials * p))
+        beta = beta + step
+        if np.max(np.abs(step)) < _STEP_TOLERANCE:
+            break
+    else:
+        return LogisticFit(reason=f"Newton iterations did not converge in {_MAX_ITERATIONS} steps")
+    p = special.expit(design @ beta)
+    information = design.T @ (design * (trials * p * (1 - p))[:, None])
+    shift = np.array([[1.0, -centre], [0.0, 1.0]])  # (b0, b1) = shift @ (c0, c1)
+    covariance = shift @ np.linalg.inv(information) @ shift.T
+    intercept, slope = shift @ beta
+    if slope <= 0:
+        return LogisticFit(reason=f"fitted success does not rise with k (slope {slope:.3g}): no transition to locate")
+    return LogisticFit(float(intercept), float(slope), covariance, iterations=iteration)

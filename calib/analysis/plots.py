@@ -1,0 +1,196 @@
+"""Figures of a safe-k table (matplotlib, Agg canvas: no display, no pyplot global state).
+
+Three figures per family, for one analysis (one tolerance) of the table:
+
+- ``success-<family>``: success rate against k, one panel per size, one line per projector and
+  retrieval, with the two-sided Clopper–Pearson band at the table's confidence, the logistic fit,
+  the target rate and the safe k;
+- ``law-<family>``: safe k against n with the fitted law k = a + C ln n (dashed where it
+  extrapolates) and the published bounds at the table's eps;
+- ``speedup-<family>``: error (median of the error metric, or the failure rate when the predicate
+  checks no metric) against the speed-up of sketch + projected solve + retrieval over the original
+  solve, one point per k, the safe k ringed.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+from scipy import special
+
+from calib import theory
+from calib.analysis.stats import clopper_pearson_interval
+
+_PANEL = (4.2, 3.2)
+_DPI = 96
+
+
+@dataclass(frozen=True)
+class Plot:
+    """One rendered figure: id (stable, used as HTML anchor), title, caption, PNG bytes."""
+
+    fig_id: str
+    title: str
+    caption: str
+    png: bytes
+
+
+def _png(figure: Figure) -> bytes:
+    FigureCanvasAgg(figure)
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=_DPI, bbox_inches="tight", metadata={"Software": None})
+    return buffer.getvalue()
+
+
+def _panels(count: int, title: str) -> tuple[Figure, list]:
+    columns = min(3, count)
+    rows = math.ceil(count / columns)
+    figure = Figure(figsize=(_PANEL[0] * columns, _PANEL[1] * rows + 0.4))
+    axes = figure.subplots(rows, columns, squeeze=False).ravel()
+    for unused in axes[count:]:
+        unused.set_visible(False)
+    figure.suptitle(title)
+    return figure, list(axes[:count])
+
+
+def _log_x(ax) -> None:
+    """Log-scaled x axis with plain labels at 1, 2, 5 x 10^j and no minor labels."""
+    ax.set_xscale("log")
+    axis = ax.xaxis
+    axis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+    axis.set_major_formatter(FuncFormatter(lambda value, _: f"{value:g}"))
+    axis.set_minor_formatter(NullFormatter())
+
+
+def _line_label(entry: dict) -> str:
+    return f"{entry['projector']} / {entry['retrieval']}"
+
+
+def _families(analysis: dict) -> list[str]:
+    return sorted({entry["family"] for entry in analysis["entries"]})
+
+
+def success_plot(analysis: dict, family: str, target: dict) -> Plot:
+    """Success vs k for one family (see the module text)."""
+    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
+    panels = sorted({(entry["n_points"], entry["size"], str(entry["class_params"])) for entry in entries})
+    figure, axes = _panels(len(panels), f"{family}: success rate against k ({analysis['predicate']['name']}, tau = {analysis['tau']})")
+    colours = {label: f"C{i}" for i, label in enumerate(sorted({_line_label(entry) for entry in entries}))}
+    for ax, (n, size, params) in zip(axes, panels):
+        for entry in (e for e in entries if (e["n_points"], e["size"], str(e["class_params"])) == (n, size, params)):
+            colour = colours[_line_label(entry)]
+            k = np.array([point["k"] for point in entry["grid"]], dtype=float)
+            successes = np.array([point["successes"] for point in entry["grid"]])
+            trials = np.array([point["trials"] for point in entry["grid"]])
+            low, high = clopper_pearson_interval(successes, trials, target["confidence"])
+            ax.fill_between(k, low, high, color=colour, alpha=0.2, linewidth=0)
+            ax.plot(k, successes / trials, "o-", color=colour, markersize=3, label=_line_label(entry))
+            fit = entry["transition"]
+            if fit["k50"] is not None:
+                curve = np.geomspace(k.min(), k.max(), 200)
+                ax.plot(curve, special.expit(fit["intercept"] + fit["slope"] * np.log(curve)), "--", color=colour, linewidth=1)
+            if entry["safe_k"] is not None:
+                ax.axvline(entry["safe_k"], color=colour, linestyle=":", linewidth=1)
+        ax.axhline(target["success_rate"], color="grey", linewidth=0.8)
+        _log_x(ax)
+        ax.set_ylim(-0.03, 1.03)
+        ax.set_title(f"{size}  (n = {n})", fontsize=9)
+        ax.set_xlabel("k")
+        ax.set_ylabel("success rate")
+    axes[0].legend(fontsize=7, loc="lower right")
+    caption = (f"Dots: measured success rate; band: two-sided Clopper-Pearson interval at {target['confidence']:.0%}; "
+               f"dashed: logistic fit on ln k; grey line: target {target['success_rate']:g}; dotted: safe k.")
+    return Plot(f"success-{family}", f"Success against k: {family}", caption, _png(figure))
+
+
+def law_plot(analysis: dict, family: str) -> Plot:
+    """Safe k vs n with the fitted law and the published bounds for one family."""
+    laws = [law for law in analysis["laws"] if law["family"] == family]
+    figure = Figure(figsize=(6.4, 4.4))
+    ax = figure.subplots()
+    n_all = [point["n"] for law in laws for point in law["safe_k_law"]["points"]]
+    span = np.geomspace(max(2.0, min(n_all) / 2.0), max(n_all) * 2.0, 200)
+    for i, law in enumerate(laws):
+        colour = f"C{i}"
+        fit = law["safe_k_law"]
+        label = f"{law['projector']} / {law['retrieval']}" + (f" {law['class_params']}" if len(laws) > 1 else "")
+        measured = [(point["n"], point["safe_k"]) for point in fit["points"] if point["safe_k"] is not None]
+        if measured:
+            ax.plot(*zip(*measured), "o", color=colour, label=f"safe k: {label}")
+        if fit["a"] is not None:
+            inside = (span >= fit["n_min"]) & (span <= fit["n_max"])
+            values = fit["a"] + fit["C"] * np.log(span)
+            ax.plot(span[inside], values[inside], "-", color=colour, label=f"k = {fit['a']:.3g} + {fit['C']:.3g} ln n")
+            ax.plot(span[~inside & (span < fit["n_min"])], values[~inside & (span < fit["n_min"])], "--", color=colour)
+            ax.plot(span[~inside & (span > fit["n_max"])], values[~inside & (span > fit["n_max"])], "--", color=colour)
+    eps = laws[0]["theory"]["eps"] if laws else None
+    if eps is not None:
+        for j, (name, rule) in enumerate(sorted(theory.RULES.items())):
+            ax.plot(span, rule(span, np.asarray(eps)), ":", color=f"C{len(laws) + j}", label=f"{name} at eps = {eps:g}")
+    _log_x(ax)
+    ax.set_yscale("log")
+    ax.set_xlabel("n (points the JL theory counts)")
+    ax.set_ylabel("k")
+    ax.set_title(f"{family}: safe k against n" + ("" if eps is not None else " (no eps: bounds not drawn)"), fontsize=10)
+    ax.legend(fontsize=7)
+    caption = ("Dots: measured safe k per size; solid: least-squares law over the measured sizes, dashed where it "
+               "extrapolates; dotted: published bounds at the eps the table states (" +
+               (laws[0]["theory"]["eps_source"] if laws else "") + ").")
+    return Plot(f"law-{family}", f"Safe k against n: {family}", caption, _png(figure))
+
+
+def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
+    """Error vs speed-up for one family, one point per (cell, k)."""
+    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
+    measured = [entry for entry in entries if any(point["error_median"] is not None for point in entry["grid"])]
+    metric = measured[0]["error_metric"] if measured else None
+    figure = Figure(figsize=(6.4, 4.4))
+    ax = figure.subplots()
+    labels = sorted({f"{entry['projector']} / {entry['retrieval']} / {entry['size']}" for entry in entries})
+    colours = {label: f"C{i % 10}" for i, label in enumerate(labels)}
+    for entry in entries:
+        label = f"{entry['projector']} / {entry['retrieval']} / {entry['size']}"
+        times = timings[(timings["family"] == family) & (timings["size"] == entry["size"])
+                        & (timings["projector"] == entry["projector"]) & (timings["retrieval"] == entry["retrieval"])]
+        speed = dict(zip(times["k"], times["speedup"]))
+        points = [(speed.get(point["k"]), point["error_median"] if metric else 1.0 - point["rate"], point["k"])
+                  for point in entry["grid"]]
+        points = [(x, y, k) for x, y, k in points if x is not None and np.isfinite(x) and y is not None]
+        if not points:
+            continue
+        xs, ys, ks = zip(*points)
+        ax.plot(xs, ys, "o-", color=colours[label], markersize=3, linewidth=0.8, label=label)
+        for x, y, k in points:
+            if k == entry["safe_k"]:
+                ax.plot([x], [y], "o", markersize=10, markerfacecolor="none", markeredgecolor=colours[label])
+    _log_x(ax)
+    if metric:
+        ax.set_yscale("symlog", linthresh=1e-6)
+    ax.set_ylim(bottom=0.0)
+    ax.set_xlabel("speed-up (original solve / sketch + projected solve + retrieval, medians)")
+    ax.set_ylabel(f"median |{metric}|" if metric else "failure rate")
+    ax.set_title(f"{family}: error against speed-up", fontsize=10)
+    ax.legend(fontsize=7)
+    caption = "One point per swept k; the ringed point is the safe k. Timings vary from run to run."
+    return Plot(f"speedup-{family}", f"Error against speed-up: {family}", caption, _png(figure))
+
+
+def figure_ids(analysis: dict) -> list[str]:
+    """Ids of every figure :func:`all_plots` draws for ``analysis``."""
+    return [f"{kind}-{family}" for family in _families(analysis) for kind in ("success", "law", "speedup")]
+
+
+def all_plots(table: dict, analysis: dict, timings: pd.DataFrame) -> list[Plot]:
+    """Every figure of one analysis, in :func:`figure_ids` order."""
+    plots = []
+    for family in _families(analysis):
+        plots += [success_plot(analysis, family, table["target"]), law_plot(analysis, family),
+                  speedup_plot(analysis, family, timings)]
+    return plots

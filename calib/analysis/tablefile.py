@@ -1,0 +1,78 @@
+"""Safe-k table files: stable bytes, a checksum against edits, and validation on reading.
+
+The JSON Schema of the format ships in the package (``calib/schemas/safe-k-table.v1.json``) so
+other tools can read a table without reading calib's code. A table carries
+``checksum = "sha256:" + sha256(canonical JSON of the table without its checksum)``, where the
+canonical JSON has sorted keys and no whitespace; a table edited by hand no longer matches and is
+refused, as is a table of another format version.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from importlib import resources
+from pathlib import Path
+
+from calib import __version__
+from calib.errors import InputError
+
+SCHEMA_FILE = "safe-k-table.v1.json"
+FORMAT = "calib.safe-k"
+VERSION = 1
+
+
+def schema() -> dict:
+    """The JSON Schema of table format version 1."""
+    return json.loads(resources.files("calib").joinpath("schemas", SCHEMA_FILE).read_text(encoding="utf-8"))
+
+
+def checksum(table: dict) -> str:
+    """sha256 of the canonical JSON of ``table`` without its ``checksum`` field."""
+    body = {key: value for key, value in table.items() if key != "checksum"}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return "sha256:" + hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def seal(table: dict) -> dict:
+    """The table with its checksum set."""
+    return {**table, "checksum": checksum(table)}
+
+
+def dumps(table: dict) -> str:
+    """The file text of a table: indented, sorted keys, trailing newline (equal tables, equal bytes)."""
+    return json.dumps(table, indent=2, sort_keys=True, allow_nan=False) + "\n"
+
+
+def validate(table: dict, where: str) -> None:
+    """Raise :class:`InputError` naming ``where`` unless ``table`` matches the schema."""
+    import jsonschema
+
+    errors = sorted(jsonschema.Draft202012Validator(schema()).iter_errors(table), key=lambda error: list(error.absolute_path))
+    if errors:
+        first = errors[0]
+        at = "/".join(str(part) for part in first.absolute_path) or "(top level)"
+        raise InputError(where, f"does not match the safe-k table schema v{VERSION} at {at}: {first.message}",
+                         "re-create it with `calib tables STORE --json FILE`")
+
+
+def read_table(path: str | Path) -> dict:
+    """Read, version-check, schema-validate and checksum-verify a table file."""
+    path = Path(path)
+    where = str(path)
+    fix = "re-create it with `calib tables STORE --json FILE`"
+    if not path.is_file():
+        raise InputError(where, "no such table file", "give the JSON written by `calib tables --json`")
+    try:
+        table = json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise InputError(where, f"is not JSON ({error})", fix) from None
+    if not isinstance(table, dict) or table.get("format") != FORMAT:
+        raise InputError(where, f"is not a calib safe-k table (format is not {FORMAT!r})", fix)
+    if table.get("format_version") != VERSION:
+        raise InputError(where, f"has table format version {table.get('format_version')!r}; calib {__version__} reads "
+                                f"version {VERSION}", "re-create the table with this calib version")
+    validate(table, where)
+    if table["checksum"] != checksum(table):
+        raise InputError(where, "checksum mismatch: the table was changed after calib wrote it", fix)
+    return table

@@ -1,0 +1,56 @@
+"""Time saved: the original solve against sketch + projected solve + retrieval, per cell and k.
+
+Per (family, size, projector, retrieval, k): the median original solve time over the cell's
+instances (each instance is solved once and cached), the medians of the sketch time (draw T and
+apply it), the projected solve time and the retrieval time over the trials, the median of their
+sum per trial, and the speed-up = median original / median reduced pipeline. Rows of the safe k
+(from a table analysis) are marked, so the speed-up at the safe k can be read off.
+
+Timings differ between two runs of the same campaign, so they are kept out of the safe-k table
+(which must be byte-identical for equal measurements) and written to their own file.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from calib.analysis.tables import CELL_KEYS, num
+from calib.keys import canonical_json
+
+COLUMNS = ["orig_median_s", "sketch_median_s", "solve_median_s", "retrieve_median_s", "reduced_median_s", "speedup"]
+
+
+def _cell_timings(cell: pd.DataFrame) -> pd.Series:
+    orig = cell.drop_duplicates("instance_id")["orig_seconds"].median()
+    ok = cell[cell["status"].eq("ok")]
+    parts = ok[["t_sketch", "t_solve_proj", "t_retrieve"]].apply(pd.to_numeric, errors="coerce")
+    reduced = parts.fillna(0.0).sum(axis=1).median() if not ok.empty else np.nan
+    speedup = orig / reduced if reduced and np.isfinite(reduced) and reduced > 0 else np.nan
+    values = [orig, parts["t_sketch"].median(), parts["t_solve_proj"].median(), parts["t_retrieve"].median(), reduced, speedup]
+    return pd.Series([num(value, 4) for value in values], index=COLUMNS)
+
+
+def timing_frame(rows: pd.DataFrame, analysis: dict) -> pd.DataFrame:
+    """Per (cell, k) medians and speed-up, with the safe k of ``analysis`` marked (``at_safe_k``)."""
+    frame = rows.groupby(CELL_KEYS + ["k"], sort=True).apply(_cell_timings, include_groups=False).reset_index()
+    safe = {(entry["family"], canonical_json(entry["params"]), entry["projector"], entry["retrieval"]): entry["safe_k"]
+            for entry in analysis["entries"]}
+    frame["safe_k"] = [safe.get((row.family, row.params, row.projector, row.retrieval)) for row in frame.itertuples()]
+    frame["at_safe_k"] = frame["safe_k"].eq(frame["k"])
+    frame["safe_k"] = frame["safe_k"].astype("Int64")
+    return frame.drop(columns=["params"])
+
+
+def speedup_at_safe_k(timings: pd.DataFrame) -> pd.DataFrame:
+    """One line per cell that has a safe k: its speed-up there."""
+    return timings[timings["at_safe_k"]][["family", "size", "projector", "retrieval", "k", "reduced_median_s",
+                                         "orig_median_s", "speedup"]].reset_index(drop=True)
+
+
+def write_timings(timings: pd.DataFrame, path) -> None:
+    """CSV of :func:`timing_frame`."""
+    from pathlib import Path
+
+    Path(path).parent.mkdir(parents=True, exist_ok=True)
+    timings.to_csv(path, index=False, lineterminator="\n")

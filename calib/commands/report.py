@@ -1,0 +1,39 @@
+"""``calib report STORE --html FILE``: one self-contained HTML page for a campaign."""
+
+from __future__ import annotations
+
+import argparse
+import json
+from pathlib import Path
+
+from calib.commands.tables import add_predicate_options
+
+
+def register(subparsers) -> None:
+    parser = subparsers.add_parser(
+        "report", help="write a self-contained HTML report of a store",
+        description="Analyse the store as `calib tables` does and write one HTML page (figures embedded) with the "
+                    "safe-k tables, the laws beside the published bounds, success-against-k, safe-k-against-n and "
+                    "error-against-speed-up figures, the timings and the sweep spec.")
+    parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
+    parser.add_argument("--html", type=Path, required=True, metavar="FILE", help="the HTML file to write")
+    add_predicate_options(parser)
+    parser.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from calib.analysis.report import build_report
+    from calib.analysis.timing import timing_frame
+    from calib.commands.tables import analyse
+    from calib.errors import InputError
+
+    table, rows, meta = analyse(args)
+    timings = timing_frame(rows, table["analyses"][0])
+    html = build_report(table, timings, json.loads(meta.get("spec", "{}")))
+    try:
+        args.html.parent.mkdir(parents=True, exist_ok=True)
+        args.html.write_text(html, encoding="utf-8")
+    except OSError as error:
+        raise InputError(str(args.html), f"cannot write the report: {error.strerror}", "choose a writable path") from None
+    print(f"wrote {args.html}")
+    return 0
