@@ -19,6 +19,7 @@ other. An n outside the measured sizes is an extrapolation and is flagged.
 
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import dataclass, field
 from typing import Optional
@@ -69,12 +70,21 @@ def select_analysis(table: dict, tau: Optional[float]) -> tuple[dict, str]:
     return chosen, note
 
 
+def _same(stored, given: str) -> bool:
+    """Whether a stored parameter equals a KEY=VALUE text (numbers compared as numbers)."""
+    try:
+        given = json.loads(given)
+    except (TypeError, ValueError):
+        pass
+    return stored == given
+
+
 def class_entries(analysis: dict, query: Query) -> list[dict]:
     """Entries of the queried class across sizes, sorted by n; InputError when none or ambiguous."""
     def matches(entry: dict) -> bool:
         return (entry["family"] == query.family and entry["projector"] == query.projector
                 and (query.retrieval is None or entry["retrieval"] == query.retrieval)
-                and all(str(entry["class_params"].get(key)) == str(value) for key, value in query.params.items()))
+                and all(_same(entry["class_params"].get(key), value) for key, value in query.params.items()))
 
     found = [entry for entry in analysis["entries"] if matches(entry)]
     if not found:

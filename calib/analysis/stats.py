@@ -20,6 +20,16 @@ import numpy as np
 from scipy import stats
 
 
+def _counts(successes, trials) -> tuple[np.ndarray, np.ndarray]:
+    return np.asarray(successes, dtype=float), np.asarray(trials, dtype=float)
+
+
+def _beta_quantile(q: float, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Beta(a, b) quantile; nan where a or b is 0 (the callers replace those ends)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return stats.beta.ppf(q, a, b)
+
+
 def clopper_pearson_lower(successes, trials, confidence: float = 0.95):
     """One-sided Clopper–Pearson lower confidence bound on a binomial proportion.
 
@@ -28,11 +38,8 @@ def clopper_pearson_lower(successes, trials, confidence: float = 0.95):
     >>> float(clopper_pearson_lower(0, 10))
     0.0
     """
-    x = np.asarray(successes, dtype=float)
-    n = np.asarray(trials, dtype=float)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        bound = stats.beta.ppf(1.0 - confidence, x, n - x + 1)
-    return np.where(x <= 0, 0.0, bound)
+    x, n = _counts(successes, trials)
+    return np.where(x <= 0, 0.0, _beta_quantile(1.0 - confidence, x, n - x + 1))
 
 
 def clopper_pearson_upper(successes, trials, confidence: float = 0.95):
@@ -43,11 +50,8 @@ def clopper_pearson_upper(successes, trials, confidence: float = 0.95):
     >>> float(clopper_pearson_upper(10, 10))
     1.0
     """
-    x = np.asarray(successes, dtype=float)
-    n = np.asarray(trials, dtype=float)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        bound = stats.beta.ppf(confidence, x + 1, n - x)
-    return np.where(x >= n, 1.0, bound)
+    x, n = _counts(successes, trials)
+    return np.where(x >= n, 1.0, _beta_quantile(confidence, x + 1, n - x))
 
 
 def clopper_pearson_interval(successes, trials, confidence: float = 0.95):
@@ -67,8 +71,7 @@ def wilson_lower(successes, trials, confidence: float = 0.95):
     >>> round(float(wilson_lower(9, 10, 0.95)), 4)
     0.6523
     """
-    x = np.asarray(successes, dtype=float)
-    n = np.asarray(trials, dtype=float)
+    x, n = _counts(successes, trials)
     z = stats.norm.ppf(confidence)
     p = x / n
     centre = p + z**2 / (2 * n)

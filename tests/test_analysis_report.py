@@ -1,0 +1,75 @@
+"""The HTML report: self-contained, every figure embedded as a PNG, renders in headless Chromium."""
+
+from __future__ import annotations
+
+import base64
+import io
+import json
+import re
+import subprocess
+from pathlib import Path
+
+import pytest
+from matplotlib import image
+
+from analysis_campaign import run_campaign_in
+from calib.analysis.plots import figure_ids
+from calib.analysis.tables import NOTICE
+from calib.cli import main
+
+CHROMIUM = "/usr/bin/chromium"
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), section 5.2
+
+
+@pytest.fixture(scope="module")
+def report(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    store = run_campaign_in(folder)
+    html = folder / "report.html"
+    table = folder / "table.json"
+    assert main(["report", str(store), "--html", str(html), "--tau", "0.05", "0.1"]) == 0
+    assert main(["tables", str(store), "--json", str(table), "--tau", "0.05", "0.1"]) == 0
+    return html, json.loads(table.read_text())
+
+
+def test_report_embeds_every_figure_as_a_png(report):
+    html_path, table = report
+    html = html_path.read_text()
+    embedded = dict(re.findall(r'<figure id="fig-([^"]+)"><img alt="[^"]*" src="data:image/png;base64,([^"]+)"', html))
+    expected = figure_ids(table["analyses"][0])
+    assert sorted(embedded) == sorted(expected)
+    assert {f"{kind}-lp-planted" for kind in ("success", "law", "speedup")} <= set(embedded)
+    for fig_id, data in embedded.items():
+        png = base64.b64decode(data)
+        assert png.startswith(PNG_SIGNATURE), fig_id
+        pixels = image.imread(io.BytesIO(png), format="png")
+        assert pixels.shape[0] > 100 and pixels.shape[1] > 100 and pixels.std() > 0, fig_id
+
+
+def test_report_is_self_contained_and_carries_tables_spec_and_notice(report):
+    html = report[0].read_text()
+    # no external resource: every src is a data URI, no stylesheet or script is fetched
+    assert all(src.startswith("data:") for src in re.findall(r'src="([^"]*)"', html))
+    assert "<link" not in html and "<script" not in html
+    assert NOTICE.replace("`", "") in html.replace("`", "") and "calib probe" in html
+    assert html.count("Safe k: predicate") == 2  # one section per tolerance of the ladder
+    assert "Scaling law across sizes" in html and "Speed-up at the safe k" in html
+    assert "&quot;root_seed&quot;: 7" in html  # the sweep spec
+
+
+@pytest.mark.skipif(not Path(CHROMIUM).exists(), reason="no /usr/bin/chromium on this machine")
+def test_report_renders_in_headless_chromium(report, tmp_path):
+    html_path, table = report
+    common = [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--allow-file-access-from-files"]
+    dom = subprocess.run(common + ["--dump-dom", html_path.resolve().as_uri()], capture_output=True, text=True,
+                         timeout=120, check=True).stdout
+    for fig_id in figure_ids(table["analyses"][0]):
+        assert f'id="fig-{fig_id}"' in dom
+    shot = tmp_path / "shot.png"
+    subprocess.run(common + [f"--screenshot={shot}", "--window-size=1280,2000", html_path.resolve().as_uri()],
+                   capture_output=True, timeout=120, check=True)
+    assert shot.read_bytes().startswith(PNG_SIGNATURE)
+
+
+def test_report_refuses_a_missing_store(tmp_path):
+    assert main(["report", str(tmp_path / "none.sqlite"), "--html", str(tmp_path / "r.html")]) == 2
