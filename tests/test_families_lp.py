@@ -354,3 +354,19 @@ def test_every_family_documents_every_parameter(name):
 def test_out_of_range_parameters_are_input_errors(name, params, bad):
     with pytest.raises(InputError, match=next(iter(bad))):
         get(name).resolve({**params, **bad}, name)
+
+
+def test_standard_point_inverts_original_point():
+    # common practice: the slack-form lift of a feasible point is feasible and maps back to it
+    # (checked on a model with an upper-only column, a boxed column and ranged, <= and >= rows)
+    from calib.problems import GeneralLP
+
+    A = np.array([[1.0, 2.0, -1.0], [0.5, -1.0, 3.0], [1.0, 1.0, 1.0]])
+    general = GeneralLP(c=[1.0, -1.0, 2.0], A=A, row_lo=[-5.0, -np.inf, 0.0], row_hi=[5.0, 4.0, np.inf],
+                        col_lo=[-np.inf, 0.0, 1.0], col_hi=[2.0, np.inf, 3.0])
+    x = np.array([1.5, 0.25, 1.1])
+    form = general.to_standard()
+    z = form.standard_point(x)
+    assert z.min() >= 0 and np.allclose(form.lp.residual(z), 0.0, atol=1e-12)
+    np.testing.assert_allclose(form.original_point(z), x, atol=1e-12)
+    assert form.lp.objective(z) == pytest.approx(float(np.dot(general.c, x)))

@@ -89,7 +89,7 @@ register(Family(
     param_doc={
         "rows": "nutrient requirement rows m, integer >= 1",
         "cols": "foods n, integer >= 1",
-        "density": "share of nonzero nutrient contents of each core row, in (0, 1]",
+        "density": "share of nonzero nutrient contents in the core rows, in (0, 1]",
         "redundant": "share of requirement rows implied by mixtures of other rows, in [0, 1)",
         "cap": "most servings of any one food (servings), > 0",
     },
