@@ -40,7 +40,7 @@ def test_spec_to_table_and_idempotent_rerun(tmp_path, capsys):
     assert table1.read_bytes() == table2.read_bytes()
 
     table = json.loads(table1.read_text())
-    (entry,) = table["entries"]
+    (entry,) = table["analyses"][0]["entries"]
     assert [point["trials"] for point in entry["grid"]] == [8, 8, 8]
     # rank-4 rows: k >= 4 keeps the LP exactly (see test_lp_core), k = 2 cannot
     assert [point["successes"] for point in entry["grid"]] == [0, 8, 8]

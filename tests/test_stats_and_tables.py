@@ -1,12 +1,10 @@
 """Confidence bounds and the safe-k rule."""
 
-import numpy as np
-import pandas as pd
 import pytest
 from scipy import stats
 
 from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.tables import Confidence, _safe_k
+from calib.analysis.tables import Confidence, safe_k_rule
 from calib.errors import InputError
 
 
@@ -24,16 +22,16 @@ def test_all_successes_closed_form(trials):
     assert float(clopper_pearson_lower(trials, trials, 0.95)) == pytest.approx(0.05 ** (1 / trials), rel=1e-12)
 
 
-def _cell(passes):
-    return pd.DataFrame({"k": [4, 8, 16, 32][: len(passes)], "passes": passes})
+def _rule(passes):
+    return safe_k_rule([4, 8, 16, 32][: len(passes)], passes)
 
 
 def test_safe_k_needs_every_larger_k_to_pass():
-    assert _safe_k(_cell([False, True, False, True]))["safe_k"] == 32
-    assert _safe_k(_cell([False, True, True, True]))["safe_k"] == 8
-    result = _safe_k(_cell([True, True, True, False]))
-    assert result["safe_k"] is None and "largest" in result["safe_k_reason"]
-    assert "may be smaller" in _safe_k(_cell([True, True]))["safe_k_reason"]
+    assert _rule([False, True, False, True])[0] == 32
+    assert _rule([False, True, True, True])[0] == 8
+    safe_k, reason = _rule([True, True, True, False])
+    assert safe_k is None and "largest" in reason
+    assert "may be smaller" in _rule([True, True])[1]
 
 
 def test_confidence_is_validated():

@@ -29,7 +29,7 @@ from scipy import special
 
 from calib.analysis.law import fit_law
 from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.tables import Confidence, safe_k_rule
+from calib.analysis.tables import Confidence, class_namer, safe_k_rule
 from calib.errors import InputError
 
 
@@ -91,9 +91,10 @@ def class_entries(analysis: dict, query: Query) -> list[dict]:
         offered = sorted({f"{entry['family']} / {entry['projector']}" for entry in analysis["entries"]})
         raise InputError("lookup", f"no entries for family {query.family!r} with projector {query.projector!r}",
                          f"the table has: {'; '.join(offered)}")
-    classes = sorted({(entry["retrieval"], str(sorted(entry["class_params"].items()))) for entry in found})
+    name = class_namer(found)
+    classes = sorted({f"retrieval {entry['retrieval']} {name(entry['class_params'])}".strip() for entry in found})
     if len(classes) > 1:
-        raise InputError("lookup", f"{len(classes)} classes match: {'; '.join(f'retrieval {r}, params {p}' for r, p in classes)}",
+        raise InputError("lookup", f"{len(classes)} classes match: {'; '.join(classes)}",
                          "narrow it with --retrieval and --param KEY=VALUE")
     return sorted(found, key=lambda entry: entry["n_points"])
 

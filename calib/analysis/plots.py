@@ -26,7 +26,9 @@ from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 from scipy import special
 
 from calib import theory
+from calib.keys import canonical_json
 from calib.analysis.stats import clopper_pearson_interval
+from calib.analysis.tables import class_namer
 
 _PANEL = (4.2, 3.2)
 _DPI = 96
@@ -52,7 +54,7 @@ def _png(figure: Figure) -> bytes:
 def _panels(count: int, title: str) -> tuple[Figure, list]:
     columns = min(3, count)
     rows = math.ceil(count / columns)
-    figure = Figure(figsize=(_PANEL[0] * columns, _PANEL[1] * rows + 0.4))
+    figure = Figure(figsize=(_PANEL[0] * columns, _PANEL[1] * rows + 0.4), layout="constrained")
     axes = figure.subplots(rows, columns, squeeze=False).ravel()
     for unused in axes[count:]:
         unused.set_visible(False)
@@ -80,11 +82,12 @@ def _families(analysis: dict) -> list[str]:
 def success_plot(analysis: dict, family: str, target: dict) -> Plot:
     """Success vs k for one family (see the module text)."""
     entries = [entry for entry in analysis["entries"] if entry["family"] == family]
-    panels = sorted({(entry["n_points"], entry["size"], str(entry["class_params"])) for entry in entries})
+    name = class_namer(entries)
+    panels = sorted({(entry["n_points"], entry["size"], name(entry["class_params"])) for entry in entries})
     figure, axes = _panels(len(panels), f"{family}: success rate against k ({analysis['predicate']['name']}, tau = {analysis['tau']})")
     colours = {label: f"C{i}" for i, label in enumerate(sorted({_line_label(entry) for entry in entries}))}
     for ax, (n, size, params) in zip(axes, panels):
-        for entry in (e for e in entries if (e["n_points"], e["size"], str(e["class_params"])) == (n, size, params)):
+        for entry in (e for e in entries if (e["n_points"], e["size"], name(e["class_params"])) == (n, size, params)):
             colour = colours[_line_label(entry)]
             k = np.array([point["k"] for point in entry["grid"]], dtype=float)
             successes = np.array([point["successes"] for point in entry["grid"]])
@@ -101,7 +104,7 @@ def success_plot(analysis: dict, family: str, target: dict) -> Plot:
         ax.axhline(target["success_rate"], color="grey", linewidth=0.8)
         _log_x(ax)
         ax.set_ylim(-0.03, 1.03)
-        ax.set_title(f"{size}  (n = {n})", fontsize=9)
+        ax.set_title(f"{size} {params} (n = {n})", fontsize=9)
         ax.set_xlabel("k")
         ax.set_ylabel("success rate")
     axes[0].legend(fontsize=7, loc="lower right")
@@ -113,6 +116,7 @@ def success_plot(analysis: dict, family: str, target: dict) -> Plot:
 def law_plot(analysis: dict, family: str) -> Plot:
     """Safe k vs n with the fitted law and the published bounds for one family."""
     laws = [law for law in analysis["laws"] if law["family"] == family]
+    name = class_namer(laws)
     figure = Figure(figsize=(6.4, 4.4))
     ax = figure.subplots()
     n_all = [point["n"] for law in laws for point in law["safe_k_law"]["points"]]
@@ -120,7 +124,7 @@ def law_plot(analysis: dict, family: str) -> Plot:
     for i, law in enumerate(laws):
         colour = f"C{i}"
         fit = law["safe_k_law"]
-        label = f"{law['projector']} / {law['retrieval']}" + (f" {law['class_params']}" if len(laws) > 1 else "")
+        label = f"{law['projector']} / {law['retrieval']} {name(law['class_params'])}".strip()
         measured = [(point["n"], point["safe_k"]) for point in fit["points"] if point["safe_k"] is not None]
         if measured:
             ax.plot(*zip(*measured), "o", color=colour, label=f"safe k: {label}")
@@ -153,11 +157,16 @@ def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
     metric = measured[0]["error_metric"] if measured else None
     figure = Figure(figsize=(6.4, 4.4))
     ax = figure.subplots()
-    labels = sorted({f"{entry['projector']} / {entry['retrieval']} / {entry['size']}" for entry in entries})
+    name = class_namer(entries)
+
+    def _label(entry: dict) -> str:
+        return f"{entry['projector']} / {entry['retrieval']} / {entry['size']} {name(entry['class_params'])}".strip()
+
+    labels = sorted({_label(entry) for entry in entries})
     colours = {label: f"C{i % 10}" for i, label in enumerate(labels)}
     for entry in entries:
-        label = f"{entry['projector']} / {entry['retrieval']} / {entry['size']}"
-        times = timings[(timings["family"] == family) & (timings["size"] == entry["size"])
+        label = _label(entry)
+        times = timings[(timings["family"] == family) & (timings["params"] == canonical_json(entry["params"]))
                         & (timings["projector"] == entry["projector"]) & (timings["retrieval"] == entry["retrieval"])]
         speed = dict(zip(times["k"], times["speedup"]))
         points = [(speed.get(point["k"]), point["error_median"] if metric else 1.0 - point["rate"], point["k"])

@@ -44,7 +44,7 @@ from calib.sweep.store import Store
 
 CELL_KEYS = ["family", "size", "params", "projector", "retrieval"]
 CLASS_KEYS = ["family", "class_params", "projector", "retrieval"]
-NOTICE = ("Safe-k tables are empirical evidence on the instances measured, not proofs: check a reduction "
+NOTICE = ("Safe-k tables are empirical evidence on the instances measured, not a proof: check a reduction "
           "policy on your own instances (`calib probe`) before relying on it in production.")
 ALL_PASS = "all swept k pass: the safe k may be smaller than the grid shows"
 _DIGITS = 6
@@ -246,6 +246,18 @@ def class_law(entries: list[dict]) -> dict:
         "safe_k_law": safe_json, "k50_law": law_json(k50_law, sizes, n, k50, "k50"),
         "theory": {"eps": eps, "eps_source": source, "rules": rules},
     }
+
+
+def class_namer(items: list[dict]):
+    """class_params -> short text naming only the parameters that differ between the items' classes.
+
+    >>> name = class_namer([{"class_params": {"rank": 12, "cost": "c"}}, {"class_params": {"rank": None, "cost": "c"}}])
+    >>> name({"rank": 12, "cost": "c"})
+    'rank=12'
+    """
+    keys = sorted({key for item in items for key in item["class_params"]})
+    varying = [key for key in keys if len({json.dumps(item["class_params"].get(key)) for item in items}) > 1]
+    return lambda params: " ".join(f"{key}={json.dumps(params.get(key))}" for key in varying)
 
 
 def _class_key(entry: dict) -> tuple:

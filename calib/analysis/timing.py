@@ -39,12 +39,12 @@ def timing_frame(rows: pd.DataFrame, analysis: dict) -> pd.DataFrame:
     frame["safe_k"] = [safe.get((row.family, row.params, row.projector, row.retrieval)) for row in frame.itertuples()]
     frame["at_safe_k"] = frame["safe_k"].eq(frame["k"])
     frame["safe_k"] = frame["safe_k"].astype("Int64")
-    return frame.drop(columns=["params"])
+    return frame
 
 
 def speedup_at_safe_k(timings: pd.DataFrame) -> pd.DataFrame:
     """One line per cell that has a safe k: its speed-up there."""
-    return timings[timings["at_safe_k"]][["family", "size", "projector", "retrieval", "k", "reduced_median_s",
+    return timings[timings["at_safe_k"]][["family", "size", "params", "projector", "retrieval", "k", "reduced_median_s",
                                          "orig_median_s", "speedup"]].reset_index(drop=True)
 
 

@@ -35,8 +35,12 @@ def predicate_from(args: argparse.Namespace):
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
+    from calib.errors import InputError
+
     predicate = make_predicate(args.preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
                                sign=args.tol_sign, distortion=args.tol_distortion)
+    if args.eps is not None and not 0.0 < args.eps < 1.0:
+        raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
 
@@ -107,6 +111,8 @@ def _law_text(law: dict) -> str:
 
 def render_summary(table: dict) -> str:
     """A plain-text view: per tolerance, one block per cell (one line per k), then the laws."""
+    from calib.analysis.tables import class_namer
+
     target = table["target"]
     lines = [f"campaign {table['campaign']['name']}: target rate {target['success_rate']:.2f} at "
              f"{target['confidence']:.0%} confidence"]
@@ -114,10 +120,13 @@ def render_summary(table: dict) -> str:
         lines.append(f"\n=== predicate {analysis['predicate']['name']} (tau = {analysis['tau']})")
         for excluded in analysis["excluded"]:
             lines.append(f"  left out {excluded['family']}: {excluded['reason']}")
+        names = {family: class_namer([entry for entry in analysis["entries"] if entry["family"] == family])
+                 for family in {entry["family"] for entry in analysis["entries"]}}
         for entry in analysis["entries"]:
             safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
             note = f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else ""
-            lines.append(f"\n{entry['family']} {entry['size']} | {entry['projector']} | {entry['retrieval']} | "
+            extra = names[entry["family"]](entry["class_params"])
+            lines.append(f"\n{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | {entry['retrieval']} | "
                          f"m={entry['projected_dim']} n={entry['n_points']} -> safe k = {safe}{note}")
             lines.append(f"   {_transition_text(entry['transition'])}")
             for point in entry["grid"]:
@@ -125,7 +134,8 @@ def render_summary(table: dict) -> str:
                 lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
                              f"  lower={point['lower_bound']:.3f}  {mark}")
         for law in analysis["laws"]:
-            lines.append(f"\n{law['family']} | {law['projector']} | {law['retrieval']}")
+            extra = names[law["family"]](law["class_params"])
+            lines.append(f"\n{law['family']}{' ' + extra if extra else ''} | {law['projector']} | {law['retrieval']}")
             lines.append(_law_text(law))
     lines.append("\n" + table["notice"])
     return "\n".join(lines)

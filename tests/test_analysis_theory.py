@@ -1,0 +1,156 @@
+"""The analysis against published theory: pure-JL point sets (Dasgupta-Gupta) and basis pursuit.
+
+Point sets: no trial handler for point sets exists yet, so the trials are run here with calib's
+own family generator (points-gaussian) and Gaussian projector, the worst pairwise distortion of
+squared distances measured with scipy's pdist, and the rows fed to the same analysis the store
+goes through (calib.analysis.tables.build_analysis).
+
+Basis pursuit: a real campaign of the lp-basis-pursuit family through the runner and the store.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import optimize, stats
+from scipy.spatial.distance import pdist
+
+from calib import projectors, theory
+from calib.analysis.success import make_predicate
+from calib.analysis.tables import Confidence, build_analysis, build_table
+from calib.families import get
+from calib.sweep.runner import run_campaign
+from calib.sweep.spec import load_spec
+from calib.sweep.store import Store
+
+EPS = 0.5
+REPLICATES = 30  # 30 of 30 successes give a one-sided 95% Clopper-Pearson bound of 0.905 >= 0.9
+
+
+def _worst_distortion(points: np.ndarray, squared: np.ndarray, k: int, seed) -> float:
+    T = projectors.make("gaussian", k, points.shape[1], seed)
+    return float(np.max(np.abs(pdist(T.apply(points.T).T, "sqeuclidean") / squared - 1.0)))
+
+
+def _point_rows(name: str, points: np.ndarray, params: dict, ks) -> list[dict]:
+    squared = pdist(points, "sqeuclidean")
+    n, dim = points.shape
+    return [{"family": name, "size": f"points={n},dim={dim}", "params": json.dumps(params, sort_keys=True),
+             "class_params": "{}", "projector": "gaussian", "retrieval": "none", "k": int(k), "k_label": "",
+             "kind": "points", "status": "ok", "orig_status": "ok", "proj_status": "ok",
+             "distortion_max": _worst_distortion(points, squared, int(k), [n, int(k), replicate]),
+             "projected_dim": dim, "n_points": n}
+            for k in ks for replicate in range(REPLICATES)]
+
+
+@pytest.fixture(scope="module")
+def gaussian_cloud_analysis():
+    family = get("points-gaussian")
+    rows = []
+    for n in (16, 64, 256):
+        params = family.resolve({"points": n, "dim": 320}, "test")
+        points = family.make(params, 0, np.random.default_rng([n, 2026])).problem.points
+        bound = int(theory.dasgupta_gupta(n, EPS))
+        rows += _point_rows("points-gaussian", points, params, [round(f * bound) for f in (0.4, 0.55, 0.7, 0.85, 1.0, 1.15)])
+    return build_analysis(pd.DataFrame(rows), make_predicate("distortion", distortion=EPS), Confidence())
+
+
+def test_pure_jl_point_set_transition_lies_below_dasgupta_gupta(gaussian_cloud_analysis):
+    # Dasgupta and Gupta (2003), Theorem 2.1: k >= 4 ln n / (eps^2/2 - eps^3/3) gives an eps-embedding
+    # of n points with probability >= 1/n. The measured transition (k50) must sit below that k, and the
+    # distortion tolerance is the eps of the table (calib.analysis.bounds).
+    for entry in gaussian_cloud_analysis["entries"]:
+        bound = int(theory.dasgupta_gupta(entry["n_points"], EPS))
+        assert entry["theory"]["eps"] == EPS and entry["theory"]["bounds"]["dasgupta-gupta"]["k"] == bound
+        assert entry["transition"]["k50"] < bound
+        assert entry["transition"]["k50_interval"][1] < bound
+    # Not asserted: the safe k (90% at 95% confidence) lies near the bound itself, as it should: the
+    # theorem only promises success 1/n there, and for a Gaussian cloud the pairs are close to
+    # independent, so the union bound behind it is nearly tight.
+
+
+def test_pure_jl_point_set_law_has_a_positive_finite_constant(gaussian_cloud_analysis):
+    # The JL bounds grow like C ln n; the fitted C of the measured k must be positive and finite.
+    (law,) = gaussian_cloud_analysis["laws"]
+    for fit in (law["safe_k_law"], law["k50_law"]):
+        assert fit["C"] is not None and 0 < fit["C"] < math.inf
+    assert law["theory"]["rules"]["dasgupta-gupta"]["C"] == pytest.approx(4 / (EPS**2 / 2 - EPS**3 / 3), abs=1 / 30)
+
+
+def test_orthonormal_point_set_succeeds_at_the_bound_at_least_as_promised():
+    # Dasgupta and Gupta (2003), proof of Theorem 2.1: at their k each pair fails with probability
+    # <= 2/n^2, so all n(n-1)/2 pairs hold with probability >= 1/n. The one-sided 95% Clopper-Pearson
+    # bound of the measured success rate at that k must be >= 1/n. (eps = 0.6 keeps that k below
+    # the dimension n of the orthonormal set.)
+    n, eps = 256, 0.6
+    bound = int(theory.dasgupta_gupta(n, eps))
+    assert bound < n
+    rows = pd.DataFrame(_point_rows("points-orthonormal", np.eye(n), {"points": n, "dim": n}, [bound]))
+    analysis = build_analysis(rows, make_predicate("distortion", distortion=eps), Confidence())
+    (point,) = analysis["entries"][0]["grid"]
+    assert point["k"] == bound and point["lower_bound"] >= 1 / n
+
+
+BASIS_PURSUIT = """
+[campaign]
+name = "bp-transition"
+root_seed = 11
+replicates = 10
+
+[[families]]
+name = "lp-basis-pursuit"
+sizes = [{{measurements = 80, length = {length}}}]
+instances = 3
+params = {{sparsity = {sparsity}, signs = "signed"}}
+
+[sweep]
+projectors = ["gaussian"]
+k = [32, 36, 40, 44, 48, 56]
+retrievals = ["basis-lstsq"]
+
+[solver]
+time_limit_s = 20
+"""
+
+
+def _l1_transition(length: int, sparsity: int) -> float:
+    """length * psi(s/length), psi(rho) = inf_tau rho(1 + tau^2) + (1 - rho) 2 int_tau^inf (u - tau)^2 phi(u) du.
+
+    Statistical dimension of the l1 descent cone at an s-sparse point: Amelunxen, Lotz, McCoy and
+    Tropp, "Living on the edge", Information and Inference 3(3):224-294, 2014, Proposition 4.5 (it
+    reproduces the Donoho-Tanner weak transition for Gaussian measurements) (formula from memory).
+    """
+    rho = sparsity / length
+
+    def excess(tau):
+        tail = 2.0 * ((1 + tau**2) * stats.norm.sf(tau) - tau * stats.norm.pdf(tau))
+        return rho * (1 + tau**2) + (1 - rho) * tail
+
+    return length * optimize.minimize_scalar(excess, bounds=(0.0, 10.0), method="bounded", options={"xatol": 1e-10}).fun
+
+
+def test_basis_pursuit_k50_matches_the_published_phase_transition(tmp_path):
+    # A row projection of basis pursuit with Gaussian A is basis pursuit with a k x N measurement
+    # matrix whose null space is uniformly distributed (rotation invariance of A), i.e. Gaussian
+    # measurements. Success: the projected optimum equals the original one (relative gap <= 1e-5),
+    # i.e. l1 minimisation with k measurements still recovers the planted signal's norm.
+    # Location: N psi(s/N) (ALMT 2014, Prop. 4.5); its stated error is 2 sqrt(N/s) (the statistical
+    # dimension lies in [N psi - 2 sqrt(N/s), N psi]); that is the tolerance on the measured k50.
+    length, sparsity = 200, 10
+    spec = tmp_path / "bp.toml"
+    spec.write_text(BASIS_PURSUIT.format(length=length, sparsity=sparsity))
+    store = Store.open_existing(run_campaign(load_spec(spec), tmp_path / "out").store_path)
+    try:
+        table = build_table(store, make_predicate("bound", gap=1e-5), Confidence())
+    finally:
+        store.close()
+    (entry,) = table["analyses"][0]["entries"]
+    location, tolerance = _l1_transition(length, sparsity), 2 * math.sqrt(length / sparsity)
+    assert location == pytest.approx(40.78, abs=0.01)
+    assert abs(entry["transition"]["k50"] - location) <= tolerance
+    low, high = entry["transition"]["k50_interval"]
+    assert high - low < tolerance  # the measurement is sharp enough for the comparison to mean something
