@@ -70,8 +70,28 @@ def test_points_probe_reports_distortion(capsys):
     (["probe", "lp-planted", "--param", "rows=10", "--param", "cols=20", "--projector", "nope"], "--projector"),
     (["probe", str(NETLIB / "feasible" / "afiro.mps"), "--param", "rows=3"], "--param"),
     (["probe", "missing.mps"], "missing.mps"),
+    (["probe", "qp-random", "--param", "vars=5", "--param", "rows=2", "--time-limit", "0"], "--time-limit"),
 ])
 def test_bad_input_exits_2_with_one_line(argv, where, capsys):
     assert main(argv) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and where in err[0] and "Traceback" not in err[0]
+
+
+def test_saved_instance_probe_uses_the_instance_identity(tmp_path, capsys):
+    # A saved instance is probed with the streams of its own (family, params, index): the same
+    # projected optimum as probing the family itself at that index would give (index 0 here).
+    from calib.instance_io import save_instance
+
+    params = get("lp-planted").resolve({"rows": 15, "cols": 30, "cost": "nonnegative"}, "test")
+    ref = InstanceRef("lp-planted", params, 0, 3)
+    manifest = save_instance(ref.build(), [ref.key, 3], tmp_path)
+    saved, direct = tmp_path / "saved.json", tmp_path / "direct.json"
+    common = ["--k", "8", "--replicates", "2", "--seed", "3", "--retrieval", "basis-lstsq"]
+    assert main(["probe", str(manifest), "--json", str(saved)] + common) == 0
+    assert main(["probe", "lp-planted", "--param", "rows=15", "--param", "cols=30", "--param", "cost=nonnegative",
+                 "--json", str(direct)] + common) == 0
+    capsys.readouterr()
+    first, second = (json.loads(path.read_text())["records"] for path in (saved, direct))
+    # the MPS round trip keeps every double (calib.instance_io), so the projected optimum is the same
+    assert [r["proj_objective"] for r in first] == pytest.approx([r["proj_objective"] for r in second], rel=1e-12)

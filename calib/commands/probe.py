@@ -1,11 +1,13 @@
 """``calib probe TARGET``: what would happen to one model at one k.
 
-TARGET is an MPS file (read as an LP and put in standard form) or a registered family with
-``--param key=value`` parameters (instance 0 of that family). The original is solved once; then
-each replicate draws a projector, solves the projected problem and runs the retrievals, exactly
-as one campaign trial does (:func:`calib.sweep.trial.run_trial`). For a family, the random
-streams are those of a campaign with ``root_seed = --seed``, so a probe reproduces the rows of
-instance 0 of such a campaign. The output lists the metrics of every replicate, then the median
+TARGET is one of: a registered family with ``--param key=value`` parameters (instance 0 of that
+family); an MPS file (read as an LP in standard form: the family ``mps-dir`` with ``dir`` = the
+folder as written and ``name`` = the file name); or a saved instance (the ``STEM.json`` manifest of
+:func:`calib.instance_io.save_instance`, any kind). The original is solved once; then each
+replicate draws a projector, solves the projected problem and runs the retrievals, exactly as one
+campaign trial does (:func:`calib.sweep.trial.run_trial`). The random streams are those of a
+campaign with ``root_seed = --seed`` on the same instance (family, parameters, index), so a probe
+reproduces that campaign's rows. The output lists the metrics of every replicate, then the median
 and maximum of each metric and the success count under the chosen predicate with its one-sided
 Clopper–Pearson lower bound.
 
@@ -43,9 +45,11 @@ def register(subparsers) -> None:
 
     parser = subparsers.add_parser(
         "probe", help="project one instance at one k and show what comes back",
-        description="Solve one instance (an MPS file or a family with parameters), project it at one k for a few "
-                    "replicates, solve, retrieve, and print every metric per replicate and their summary.")
-    parser.add_argument("target", metavar="INSTANCE_OR_FAMILY", help="an MPS file (.mps, .mps.gz) or a family name (`calib families`)")
+        description="Solve one instance (an MPS file, a saved instance or a family with parameters), project it at "
+                    "one k for a few replicates, solve, retrieve, and print every metric per replicate and their "
+                    "summary: what would happen to this model at this k.")
+    parser.add_argument("target", metavar="INSTANCE_OR_FAMILY",
+                        help="an MPS file (.mps, .mps.gz), a saved instance (STEM.json) or a family name (`calib families`)")
     parser.add_argument("--param", action="append", default=[], metavar="KEY=VALUE",
                         help="family parameter (repeatable), e.g. --param rows=200 --param cols=400")
     parser.add_argument("--projector", default="gaussian", help="projector family (default gaussian)")
@@ -95,37 +99,41 @@ def parse_assignments(items: list[str], where: str) -> dict:
 
 
 def resolve_target(args: argparse.Namespace) -> Target:
-    """The instance named by ``args.target`` (an MPS file or a family), built deterministically."""
+    """The instance named by ``args.target``, built deterministically (rules in the module docstring)."""
     from calib import families
     from calib.sweep.trial import InstanceRef
 
     path = Path(args.target)
+    if args.target.lower().endswith(".json"):
+        return _saved_target(path, args)
     if path.is_file() or args.target.lower().endswith(MPS_SUFFIXES):
-        return _mps_target(path, args)
-    if args.target not in families.REGISTRY:
+        if args.param:
+            raise InputError("--param", "parameters apply to families, not to an MPS file", "drop --param")
+        family, given, where = families.get("mps-dir"), {"dir": str(path.parent), "name": path.name}, str(path)
+    elif args.target in families.REGISTRY:
+        family, given, where = families.get(args.target), parse_assignments(args.param, "--param"), "--param"
+    else:
         raise InputError("INSTANCE_OR_FAMILY", f"{args.target!r} is neither an existing file nor a family",
-                         f"give an MPS file or one of {', '.join(sorted(families.REGISTRY))}")
-    family = families.get(args.target)
-    params = family.resolve(parse_assignments(args.param, "--param"), "--param")
+                         f"give an MPS file, a saved instance (.json) or one of {', '.join(sorted(families.REGISTRY))}")
+    params = family.resolve(given, where)
     ref = InstanceRef(family.name, params, 0, args.seed)
     instance = ref.build()
     label = family.name + " " + " ".join(f"{key}={value}" for key, value in sorted(params.items()))
     return Target(label, instance.kind, instance.problem, ref, family.n_points(params))
 
 
-def _mps_target(path: Path, args: argparse.Namespace) -> Target:
-    import hashlib
-
-    from calib.problems import read_mps
+def _saved_target(path: Path, args: argparse.Namespace) -> Target:
+    """A saved instance (:func:`calib.instance_io.load_instance`); streams of its family, params and index."""
+    from calib import families
+    from calib.instance_io import load_instance
     from calib.sweep.trial import InstanceRef
-    from calib.theory import lp_points
 
     if args.param:
-        raise InputError("--param", "parameters apply to families, not to an MPS file", "drop --param")
-    lp = read_mps(path).to_standard().lp
-    digest = hashlib.sha256(path.read_bytes()).hexdigest()
-    ref = InstanceRef("mps-file", {"sha256": digest}, 0, args.seed)
-    return Target(str(path), "lp", lp, ref, lp_points(lp.n_cols))
+        raise InputError("--param", "parameters apply to families, not to a saved instance", "drop --param")
+    instance, _ = load_instance(path)
+    ref = InstanceRef(instance.family, instance.params, instance.index, args.seed)
+    n_points = families.get(instance.family, str(path)).n_points(instance.params)
+    return Target(f"{path} ({instance.family} #{instance.index})", instance.kind, instance.problem, ref, n_points)
 
 
 def choose_k(args: argparse.Namespace, m: int, n_points: int) -> tuple[int, str]:
@@ -157,34 +165,23 @@ def _check_retrievals(args: argparse.Namespace, kind: str) -> list[str]:
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib import projectors
     from calib.reduce import HANDLERS
-    from calib.sweep.spec import ProjectorChoice
     from calib.sweep.trial import Trial, run_trial
 
-    if args.replicates < 1:
-        raise InputError("--replicates", f"must be at least 1, got {args.replicates}", "e.g. --replicates 5")
-    if args.seed < 0:
-        raise InputError("--seed", f"must be a non-negative integer, got {args.seed}", "e.g. --seed 0")
-    if not (math.isfinite(args.time_limit) and args.time_limit > 0):
-        raise InputError("--time-limit", f"must be a positive number of seconds, got {args.time_limit}", "e.g. --time-limit 60")
+    _check_numbers(args)
     predicate, confidence = _predicate(args)
-    projectors.check_name(args.projector, "--projector")
-    choice = ProjectorChoice(args.projector, tuple(sorted(parse_assignments(args.projector_opt, "--projector-opt").items())))
+    choice = _projector_choice(args)
     target = resolve_target(args)
     handler = HANDLERS[target.kind]
     retrievals = _check_retrievals(args, target.kind)
     m = handler.projected_dim(target.problem)
     k, k_source = choose_k(args, m, target.n_points)
+    _check_projector(choice, k, m)
     solver = {"time_limit_s": float(args.time_limit)}
     original = handler.solve_original(target.problem, solver)
     records = []
     for replicate in range(args.replicates):
-        trial = Trial(target.ref, choice, k, replicate)
-        try:
-            rows = run_trial(trial, target.problem, target.kind, original, retrievals, solver)
-        except TypeError as error:  # projector options the family does not take
-            raise InputError("--projector-opt", str(error), f"check the options of projector {args.projector!r}") from None
+        rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver)
         records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
     summary = summarise(records, target.kind, predicate, confidence)
     print(render(target, original, choice, k, k_source, m, records, summary, predicate, confidence))
@@ -196,6 +193,34 @@ def run(args: argparse.Namespace) -> int:
         args.json.write_text(json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", encoding="utf-8")
         print(f"wrote {args.json}")
     return 0
+
+
+def _check_numbers(args: argparse.Namespace) -> None:
+    if args.replicates < 1:
+        raise InputError("--replicates", f"must be at least 1, got {args.replicates}", "e.g. --replicates 5")
+    if args.seed < 0:
+        raise InputError("--seed", f"must be a non-negative integer, got {args.seed}", "e.g. --seed 0")
+    if not (math.isfinite(args.time_limit) and args.time_limit > 0):
+        raise InputError("--time-limit", f"must be a positive number of seconds, got {args.time_limit}", "e.g. --time-limit 60")
+
+
+def _projector_choice(args: argparse.Namespace):
+    from calib import projectors
+    from calib.sweep.spec import ProjectorChoice
+
+    projectors.check_name(args.projector, "--projector")
+    options = parse_assignments(args.projector_opt, "--projector-opt")
+    return ProjectorChoice(args.projector, tuple(sorted(options.items())))
+
+
+def _check_projector(choice, k: int, m: int) -> None:
+    """Draw the projector once so that options it does not take fail here, naming the option."""
+    from calib import projectors
+
+    try:
+        projectors.make(choice.name, k, m, 0, **dict(choice.options))
+    except TypeError as error:
+        raise InputError("--projector-opt", str(error), f"check the options of projector {choice.name!r}") from None
 
 
 def _predicate(args: argparse.Namespace):
@@ -283,9 +308,10 @@ def render(target: Target, original, choice, k: int, k_source: str, m: int, reco
     lines += _stat_lines(projection["metrics"])
     tolerances = ", ".join(f"{key} <= {value:g}" for key, value in predicate.as_dict().items() if key != "name" and value is not None)
     for name, entry in summary["retrievals"].items():
+        verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
         lines.append(f"  {name}: success {entry['successes']}/{entry['trials']} under '{predicate.name}' "
                      f"({tolerances or 'classification only'}), lower bound {entry['success_lower_bound']:.3f} "
-                     f"at confidence {confidence.level:g}")
+                     f"at confidence {confidence.level:g}: {verdict} the target rate {1.0 - confidence.delta:g}")
         lines += _stat_lines(entry["metrics"])
     return "\n".join(lines)
 
