@@ -39,3 +39,20 @@ class PrefixProjector(Projector):
 
     def _apply(self, X):
         return np.asarray((X.T @ self._T.T).T) if sp.issparse(X) else self._T @ X
+
+
+class SparseSignProjector(Projector):
+    """A CountSketch-shaped T (one random +-1 per column, in a random row) that returns sparse output
+    for sparse input, to exercise the handlers on the sparse path the sparse projector families take
+    (Clarkson & Woodruff, "Low rank approximation and regression in input sparsity time", STOC 2013)."""
+
+    name = "test-sparse-sign"
+    keeps_sparse = True
+
+    def _draw(self, rng):
+        rows = rng.integers(0, self.k, self.m)
+        signs = rng.choice([-1.0, 1.0], self.m)
+        self._T = sp.csr_array((signs, (rows, np.arange(self.m))), shape=(self.k, self.m))
+
+    def _apply(self, X):
+        return (self._T @ X).tocsr() if sp.issparse(X) else self._T @ X

@@ -2,15 +2,17 @@
 
 import json
 
+import numpy as np
 import pytest
 
 from calib import projectors
 from calib.metrics import CONDITIONS, FIELDS, KINDS, expected_fields, fills
 from calib.reduce import HANDLERS, retrieval_names
-from reduce_helpers import SOLVER, instance
+from reduce_helpers import SOLVER, SparseSignProjector, instance
 
 SCENARIOS = [  # (family, params, k values): feasible, infeasible, unbounded or infeasible projections
     ("lp-planted", {"rows": 20, "cols": 40}, (4, 12, 20)),
+    ("lp-planted", {"rows": 20, "cols": 40, "density": 0.3, "cost": "nonnegative"}, (10,)),
     ("lp-farkas", {"rows": 12, "cols": 24}, (2, 12)),
     ("sdp-planted", {"order": 6, "constraints": 12}, (4, 12)),
     ("sdp-infeasible", {"order": 5, "constraints": 10}, (2, 10)),
@@ -51,6 +53,20 @@ def test_every_record_fills_exactly_its_documented_fields(family, params, ks):
                 json.dumps(rec, allow_nan=False)  # what the store writes
                 seen_conditions.add(rec["proj_status"])
     assert seen_conditions  # the scenario produced records
+
+
+@pytest.mark.parametrize("family,params", [(family, params) for family, params, _ in SCENARIOS])
+def test_handlers_accept_a_projector_with_sparse_output(family, params):
+    # Sparse projector families return scipy.sparse matrices for sparse input; every handler must
+    # reduce, solve and retrieve with them as with dense output.
+    built = instance(family, params)
+    handler = HANDLERS[built.kind]
+    original = handler.solve_original(built.problem, SOLVER)
+    m = handler.projected_dim(built.problem)
+    T = SparseSignProjector(max(1, m - 1), m, np.random.default_rng(0))
+    names = list(handler.retrievals)
+    for retrieval, rec in zip(names, handler.trial_records(built.problem, original, T, names, SOLVER)):
+        assert expected_fields(built.kind, retrieval, rec) <= {name for name, value in rec.items() if value is not None}
 
 
 def test_retrieval_selection_rule():
