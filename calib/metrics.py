@@ -2,40 +2,132 @@
 
 A trial solves the original problem (cached per instance), projects it, solves the projected
 problem, retrieves an original-space point with each retrieval method and measures it. Every row
-of the store holds one :data:`FIELDS` record; fields a class cannot fill are ``None`` by design
-(listed in :data:`FIELDS` under "classes"), never silently missing.
+of the store holds one :data:`FIELDS` record. Each field states which classes fill it and under
+which condition; a field is ``None`` only where its entry says so (a class or retrieval that has no
+such quantity, or a solve it depends on that did not succeed), never silently missing.
+:func:`expected_fields` turns those statements into the set of fields a given record must fill.
+
+Classes are written as space-separated tokens: a problem kind (``lp``, ``sdp``, ``qp``,
+``points``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
+
+Conditions (:data:`CONDITIONS`): ``always``; ``orig optimal`` / ``proj optimal`` / ``both optimal``
+(the original / projected / both solves ended ``optimal``); ``orig verdict`` / ``proj verdict`` /
+``both verdicts`` (the solver certified feasibility or infeasibility, see
+:attr:`calib.solvers.result.SolveResult.feasible`); ``ratio defined`` (both optimal and the
+original optimum is nonzero).
 
 Relative errors use the denominator max(1, |reference|): relative for large values, absolute for
 values near zero (common practice in optimization benchmarking).
+
+Direction of the projected bound: an LP or SDP whose constraints are aggregated is a relaxation
+(its optimum is a lower bound), a QP restricted to x = T^T u is a restriction (an upper bound).
+``proj_gap`` is measured in the direction the bound errs, so it is >= 0 (up to solver tolerance)
+for every class and the analysis never needs to know which.
 """
 
 from __future__ import annotations
 
 import math
-from typing import Optional
+from typing import NamedTuple, Optional
 
 import numpy as np
 
-#: field -> (meaning, units, classes that fill it)
-FIELDS: dict[str, tuple[str, str, str]] = {
-    "orig_status": ("status of the original solve (calib vocabulary)", "-", "all"),
-    "orig_objective": ("optimal value of the original problem", "objective units", "lp sdp qp"),
-    "proj_status": ("status of the projected solve", "-", "all"),
-    "proj_message": ("the solver's own status text for the projected solve", "-", "all"),
-    "proj_objective": ("optimal value of the projected problem", "objective units", "lp sdp qp"),
-    "proj_gap": ("(orig - proj) / max(1, |orig|): the projected bound's relative gap (>= 0 for a relaxation)", "ratio", "lp sdp qp"),
-    "orig_feasible": ("the original problem is feasible (solver verdict)", "bool", "lp sdp qp"),
-    "proj_feasible": ("the projected problem is feasible (solver verdict)", "bool", "lp sdp qp"),
-    "obj_error": ("|f(x_retrieved) - orig| / max(1, |orig|)", "ratio", "lp sdp qp"),
-    "feas_error": ("||A x_retrieved - b|| / max(1, ||b||) (QP: largest violation of Ax <= b, relative)", "ratio", "lp sdp qp"),
-    "sign_violation": ("||min(x_retrieved, 0)|| / max(1, ||x_retrieved||) (SDP: PSD violation)", "ratio", "lp sdp"),
-    "distortion_max": ("worst pairwise |‖T(p-q)‖²/‖p-q‖² - 1|", "ratio", "points"),
-    "distortion_q99": ("99th percentile of the pairwise distortion", "ratio", "points"),
-    "proj_iterations": ("solver iterations on the projected problem", "count", "lp sdp qp"),
-    "t_sketch": ("draw T plus apply it to the data", "s", "all"),
-    "t_solve_proj": ("solve the projected problem", "s", "lp sdp qp"),
-    "t_retrieve": ("retrieve the original-space point", "s", "lp sdp qp"),
+KINDS = ("lp", "sdp", "qp", "points")
+
+
+class Field(NamedTuple):
+    """Documentation of one metric: meaning, units, classes that fill it, condition."""
+
+    meaning: str
+    units: str
+    classes: str
+    needs: str = "always"
+
+
+_SOLVED = "lp sdp qp"
+_ITERATIVE = "lp:alternating lp:restricted-repair lp:warm-start sdp:alternating"
+
+#: field -> Field(meaning, units, classes that fill it, condition)
+FIELDS: dict[str, Field] = {
+    "orig_status": Field("status of the original solve (calib vocabulary, calib.solvers.result.STATUSES)", "-", _SOLVED),
+    "orig_objective": Field("optimal value of the original problem", "objective units", _SOLVED, "orig optimal"),
+    "orig_feasible": Field("the original problem is feasible (solver verdict)", "bool", _SOLVED, "orig verdict"),
+    "proj_status": Field("status of the projected solve", "-", _SOLVED),
+    "proj_message": Field("the solver's own status text for the projected solve", "-", _SOLVED),
+    "proj_objective": Field("optimal value of the projected problem", "objective units", _SOLVED, "proj optimal"),
+    "proj_feasible": Field("the projected problem is feasible (solver verdict)", "bool", _SOLVED, "proj verdict"),
+    "proj_gap": Field("gap of the projected bound in the direction it errs: (orig - proj) / max(1, |orig|) for a "
+                      "relaxation (lp, sdp), (proj - orig) / max(1, |orig|) for a restriction (qp); >= 0 up to "
+                      "solver tolerance", "ratio", _SOLVED, "both optimal"),
+    "feasibility_agrees": Field("the projected problem gets the original's feasibility verdict; False for a feasible "
+                                "projection of an infeasible lp/sdp (the one-sided error of a relaxation) or an "
+                                "infeasible restriction of a feasible qp", "bool", _SOLVED, "both verdicts"),
+    "proj_iterations": Field("solver iterations on the projected problem", "count", _SOLVED),
+    "obj_error": Field("|f(x_retrieved) - orig| / max(1, |orig|)", "ratio", _SOLVED, "both optimal"),
+    "obj_ratio": Field("f(x_retrieved) / orig: 1 when the retrieved point is optimal; for a minimisation the "
+                       "retrieved value is >= orig when feasible, so the ratio is >= 1 for orig > 0 and <= 1 for "
+                       "orig < 0", "ratio", _SOLVED, "ratio defined"),
+    "feas_error": Field("constraint violation of the retrieved point: lp ||A x - b|| / max(1, ||b||); sdp "
+                        "||A(X) - b|| / max(1, ||b||) (2-norms of the constraint vectors); qp largest violation of "
+                        "A x <= b, the bounds and the ball / max(1, ||b||_inf)", "ratio", _SOLVED, "proj optimal"),
+    "sign_violation": Field("cone violation of the retrieved point: lp ||min(x, 0)|| / max(1, ||x||); sdp "
+                            "||X_-||_F / max(1, ||X||_F) with X_- the negative part of X (sum of its negative "
+                            "eigenvalues times their eigenprojectors), which reduces to the lp formula for a "
+                            "diagonal X", "ratio", "lp sdp", "proj optimal"),
+    "retrieval_iterations": Field("iterations of the retrieval itself: alternating-projection rounds "
+                                  "(lp:alternating, sdp:alternating); simplex iterations summed over the "
+                                  "restricted LPs (lp:restricted-repair); simplex iterations of the warm-started "
+                                  "original solve (lp:warm-start)", "count", _ITERATIVE, "proj optimal"),
+    "widening_rounds": Field("times the restricted column set was doubled before the restricted LP became "
+                             "feasible (0: the projected basis sufficed)", "count", "lp:restricted-repair",
+                             "proj optimal"),
+    "iterations_saved": Field("simplex iterations of the cold original solve minus those of the solve warm-started "
+                              "from the projected basis (negative: the warm start cost iterations)", "count",
+                              "lp:warm-start", "proj optimal"),
+    "distortion_max": Field("worst pairwise |‖T(p-q)‖²/‖p-q‖² - 1| over the pairs checked", "ratio", "points"),
+    "distortion_q99": Field("99th percentile (linear interpolation) of the pairwise distortion over the pairs "
+                            "checked", "ratio", "points"),
+    "pairs_checked": Field("number of point pairs the distortion was measured on (all pairs, or the deterministic "
+                           "sample of calib.reduce.points)", "count", "points"),
+    "t_sketch": Field("draw T plus apply it to the data", "s", "all"),
+    "t_solve_orig": Field("the original solve (cached per instance, measured when it ran)", "s", _SOLVED),
+    "t_solve_proj": Field("solve the projected problem", "s", _SOLVED),
+    "t_retrieve": Field("this retrieval alone (for lp:warm-start, the warm-started original solve)", "s", _SOLVED,
+                        "proj optimal"),
+    "time_saved": Field("t_solve_orig - (t_sketch + t_solve_proj + t_retrieve): wall time the projected pipeline "
+                        "with this retrieval saves against solving the original (negative: it costs more)", "s",
+                        _SOLVED, "proj optimal"),
 }
+
+#: condition name -> predicate on a record (see the module docstring)
+CONDITIONS = {
+    "always": lambda rec: True,
+    "orig optimal": lambda rec: rec.get("orig_status") == "optimal",
+    "proj optimal": lambda rec: rec.get("proj_status") == "optimal",
+    "both optimal": lambda rec: rec.get("orig_status") == "optimal" and rec.get("proj_status") == "optimal",
+    "orig verdict": lambda rec: rec.get("orig_feasible") is not None,
+    "proj verdict": lambda rec: rec.get("proj_feasible") is not None,
+    "both verdicts": lambda rec: rec.get("orig_feasible") is not None and rec.get("proj_feasible") is not None,
+    "ratio defined": lambda rec: (rec.get("orig_status") == "optimal" and rec.get("proj_status") == "optimal"
+                                  and rec.get("orig_objective") not in (None, 0.0)),
+}
+
+
+def fills(name: str, kind: str, retrieval: str) -> bool:
+    """True when ``FIELDS[name]`` says the class ``kind`` with ``retrieval`` fills it.
+
+    >>> fills("widening_rounds", "lp", "restricted-repair"), fills("widening_rounds", "lp", "basis-lstsq")
+    (True, False)
+    >>> fills("t_sketch", "points", "none")
+    True
+    """
+    tokens = FIELDS[name].classes.split()
+    return "all" in tokens or kind in tokens or f"{kind}:{retrieval}" in tokens
+
+
+def expected_fields(kind: str, retrieval: str, rec: dict) -> set:
+    """Fields that ``rec`` (a record of class ``kind`` and ``retrieval``) must hold as non-None."""
+    return {name for name, field in FIELDS.items() if fills(name, kind, retrieval) and CONDITIONS[field.needs](rec)}
 
 
 def rel_diff(value: float, reference: float) -> Optional[float]:

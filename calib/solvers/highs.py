@@ -50,8 +50,6 @@ DEFAULT_OPTIONS = {
     "output_flag": False,
     "threads": 1,
     "random_seed": 0,
-    "primal_feasibility_tolerance": 1e-9,
-    "dual_feasibility_tolerance": 1e-9,
 }
 
 _banner_silenced = False

@@ -1,0 +1,320 @@
+"""``calib probe TARGET``: what would happen to one model at one k.
+
+TARGET is one of: a registered family with ``--param key=value`` parameters (instance 0 of that
+family); an MPS file (read as an LP in standard form: the family ``mps-dir`` with ``dir`` = the
+folder as written and ``name`` = the file name); or a saved instance (the ``STEM.json`` manifest of
+:func:`calib.instance_io.save_instance`, any kind). The original is solved once; then each
+replicate draws a projector, solves the projected problem and runs the retrievals, exactly as one
+campaign trial does (:func:`calib.sweep.trial.run_trial`). The random streams are those of a
+campaign with ``root_seed = --seed`` on the same instance (family, parameters, index), so a probe
+reproduces that campaign's rows. The output lists the metrics of every replicate, then the median
+and maximum of each metric and the success count under the chosen predicate with its one-sided
+Clopper–Pearson lower bound.
+
+k: ``--k K`` directly, or ``--eps E`` through a published bound (``--rule``) with the family's
+point count (for an MPS file: its standard-form columns + 1); default k = ceil(m / 2) of the
+projected dimension m.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from calib.errors import InputError
+
+#: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
+RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "retrieval_iterations", "widening_rounds",
+                    "iterations_saved", "t_retrieve", "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
+#: fields that describe the projection and its solve (shared by the retrievals of one replicate)
+PROJECTION_FIELDS = ("proj_status", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
+                     "proj_iterations", "t_sketch", "t_solve_proj")
+MPS_SUFFIXES = (".mps", ".mps.gz")
+
+
+def register(subparsers) -> None:
+    from calib.commands.tables import add_predicate_options
+    from calib.theory import RULES
+
+    parser = subparsers.add_parser(
+        "probe", help="project one instance at one k and show what comes back",
+        description="Solve one instance (an MPS file, a saved instance or a family with parameters), project it at "
+                    "one k for a few replicates, solve, retrieve, and print every metric per replicate and their "
+                    "summary: what would happen to this model at this k.")
+    parser.add_argument("target", metavar="INSTANCE_OR_FAMILY",
+                        help="an MPS file (.mps, .mps.gz), a saved instance (STEM.json) or a family name (`calib families`)")
+    parser.add_argument("--param", action="append", default=[], metavar="KEY=VALUE",
+                        help="family parameter (repeatable), e.g. --param rows=200 --param cols=400")
+    parser.add_argument("--projector", default="gaussian", help="projector family (default gaussian)")
+    parser.add_argument("--projector-opt", action="append", default=[], metavar="KEY=VALUE",
+                        help="projector option (repeatable), e.g. --projector-opt s=4")
+    size = parser.add_mutually_exclusive_group()
+    size.add_argument("--k", type=int, help="projected size k (default: half the projected dimension, rounded up)")
+    size.add_argument("--eps", type=float, help="distortion eps in (0, 1): k from the bound named by --rule")
+    parser.add_argument("--rule", default="dasgupta-gupta", choices=sorted(RULES), help="bound used with --eps (default dasgupta-gupta)")
+    parser.add_argument("--retrieval", action="append", metavar="R",
+                        help="retrieval method (repeatable; default: every retrieval of the problem kind)")
+    parser.add_argument("--replicates", type=int, default=5, help="independent projector draws (default 5)")
+    parser.add_argument("--seed", type=int, default=0, help="root seed (default 0)")
+    parser.add_argument("--time-limit", type=float, default=60.0, metavar="SECONDS", help="per solve (default 60)")
+    parser.add_argument("--json", type=Path, metavar="FILE", help="also write the records and summary as JSON")
+    add_predicate_options(parser)
+    parser.set_defaults(func=run)
+
+
+@dataclass
+class Target:
+    """One probed instance: its problem, kind, label and the identity its random streams derive from."""
+
+    label: str
+    kind: str
+    problem: Any
+    ref: Any  # calib.sweep.trial.InstanceRef
+    n_points: int
+
+
+def parse_assignments(items: list[str], where: str) -> dict:
+    """``["a=1", "b=x"]`` -> ``{"a": 1, "b": "x"}``; values read as TOML literals, else as text.
+
+    >>> parse_assignments(["rows=20", "density=0.5", "cost=nonnegative", "flag=true"], "--param")
+    {'rows': 20, 'density': 0.5, 'cost': 'nonnegative', 'flag': True}
+    """
+    values = {}
+    for item in items:
+        key, sep, text = item.partition("=")
+        if not sep or not key.strip():
+            raise InputError(where, f"cannot read {item!r}", "write KEY=VALUE, e.g. rows=200")
+        try:
+            values[key.strip()] = tomllib.loads(f"v = {text.strip()}")["v"]
+        except tomllib.TOMLDecodeError:
+            values[key.strip()] = text.strip()
+    return values
+
+
+def resolve_target(args: argparse.Namespace) -> Target:
+    """The instance named by ``args.target``, built deterministically (rules in the module docstring)."""
+    from calib import families
+    from calib.sweep.trial import InstanceRef
+
+    path = Path(args.target)
+    if args.target.lower().endswith(".json"):
+        return _saved_target(path, args)
+    if path.is_file() or args.target.lower().endswith(MPS_SUFFIXES):
+        if args.param:
+            raise InputError("--param", "parameters apply to families, not to an MPS file", "drop --param")
+        family, given, where = families.get("mps-dir"), {"dir": str(path.parent), "name": path.name}, str(path)
+    elif args.target in families.REGISTRY:
+        family, given, where = families.get(args.target), parse_assignments(args.param, "--param"), "--param"
+    else:
+        raise InputError("INSTANCE_OR_FAMILY", f"{args.target!r} is neither an existing file nor a family",
+                         f"give an MPS file, a saved instance (.json) or one of {', '.join(sorted(families.REGISTRY))}")
+    params = family.resolve(given, where)
+    ref = InstanceRef(family.name, params, 0, args.seed)
+    instance = ref.build()
+    label = family.name + " " + " ".join(f"{key}={value}" for key, value in sorted(params.items()))
+    return Target(label, instance.kind, instance.problem, ref, family.n_points(params))
+
+
+def _saved_target(path: Path, args: argparse.Namespace) -> Target:
+    """A saved instance (:func:`calib.instance_io.load_instance`); streams of its family, params and index."""
+    from calib import families
+    from calib.instance_io import load_instance
+    from calib.sweep.trial import InstanceRef
+
+    if args.param:
+        raise InputError("--param", "parameters apply to families, not to a saved instance", "drop --param")
+    instance, _ = load_instance(path)
+    ref = InstanceRef(instance.family, instance.params, instance.index, args.seed)
+    n_points = families.get(instance.family, str(path)).n_points(instance.params)
+    return Target(f"{path} ({instance.family} #{instance.index})", instance.kind, instance.problem, ref, n_points)
+
+
+def choose_k(args: argparse.Namespace, m: int, n_points: int) -> tuple[int, str]:
+    """(k, how it was chosen); InputError when k is not in 1..m."""
+    from calib.theory import k_from_eps
+
+    if args.eps is not None:
+        k = k_from_eps(args.rule, n_points, args.eps)
+        source = f"eps = {args.eps} by {args.rule} with {n_points} points"
+        if k > m:
+            raise InputError("--eps", f"{source} gives k = {k}, above the projected dimension m = {m}",
+                             "raise --eps or give --k directly")
+        return k, source
+    if args.k is None:
+        return math.ceil(m / 2), "default: half the projected dimension"
+    if not 1 <= args.k <= m:
+        raise InputError("--k", f"must lie in 1..{m} (the projected dimension), got {args.k}", f"pick k between 1 and {m}")
+    return args.k, "given"
+
+
+def _check_retrievals(args: argparse.Namespace, kind: str) -> list[str]:
+    from calib.reduce import HANDLERS
+
+    known = list(HANDLERS[kind].retrievals)
+    for name in args.retrieval or []:
+        if name not in known:
+            raise InputError("--retrieval", f"{name!r} is not a retrieval of {kind} problems", f"choose from {', '.join(known)}")
+    return list(dict.fromkeys(args.retrieval)) if args.retrieval else known
+
+
+def run(args: argparse.Namespace) -> int:
+    from calib.reduce import HANDLERS
+    from calib.sweep.trial import Trial, run_trial
+
+    _check_numbers(args)
+    predicate, confidence = _predicate(args)
+    choice = _projector_choice(args)
+    target = resolve_target(args)
+    handler = HANDLERS[target.kind]
+    retrievals = _check_retrievals(args, target.kind)
+    m = handler.projected_dim(target.problem)
+    k, k_source = choose_k(args, m, target.n_points)
+    _check_projector(choice, k, m)
+    solver = {"time_limit_s": float(args.time_limit)}
+    original = handler.solve_original(target.problem, solver)
+    records = []
+    for replicate in range(args.replicates):
+        rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver)
+        records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
+    summary = summarise(records, target.kind, predicate, confidence)
+    print(render(target, original, choice, k, k_source, m, records, summary, predicate, confidence))
+    if args.json is not None:
+        payload = {"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_source": k_source,
+                   "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
+                   "summary": summary}
+        args.json.parent.mkdir(parents=True, exist_ok=True)
+        args.json.write_text(json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", encoding="utf-8")
+        print(f"wrote {args.json}")
+    return 0
+
+
+def _check_numbers(args: argparse.Namespace) -> None:
+    if args.replicates < 1:
+        raise InputError("--replicates", f"must be at least 1, got {args.replicates}", "e.g. --replicates 5")
+    if args.seed < 0:
+        raise InputError("--seed", f"must be a non-negative integer, got {args.seed}", "e.g. --seed 0")
+    if not (math.isfinite(args.time_limit) and args.time_limit > 0):
+        raise InputError("--time-limit", f"must be a positive number of seconds, got {args.time_limit}", "e.g. --time-limit 60")
+
+
+def _projector_choice(args: argparse.Namespace):
+    from calib import projectors
+    from calib.sweep.spec import ProjectorChoice
+
+    projectors.check_name(args.projector, "--projector")
+    options = parse_assignments(args.projector_opt, "--projector-opt")
+    return ProjectorChoice(args.projector, tuple(sorted(options.items())))
+
+
+def _check_projector(choice, k: int, m: int) -> None:
+    """Draw the projector once so that options it does not take fail here, naming the option."""
+    from calib import projectors
+
+    try:
+        projectors.make(choice.name, k, m, 0, **dict(choice.options))
+    except TypeError as error:
+        raise InputError("--projector-opt", str(error), f"check the options of projector {choice.name!r}") from None
+
+
+def _predicate(args: argparse.Namespace):
+    from calib.commands.tables import predicate_from
+
+    if not 0.0 < args.confidence < 1.0 or not 0.0 < args.delta < 1.0:
+        raise InputError("--confidence/--delta", "must lie in (0, 1)", "e.g. --confidence 0.95 --delta 0.1")
+    return predicate_from(args)
+
+
+def _stats(values: list) -> dict:
+    numbers = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)]
+    if not numbers:
+        return {}
+    return {"median": float(np.median(numbers)), "max": float(np.max(numbers)), "n": len(numbers)}
+
+
+def _summary_block(rows: list[dict], fields) -> dict:
+    stats = {field: _stats([row[field] for row in rows]) for field in fields}
+    return {field: value for field, value in stats.items() if value}
+
+
+def summarise(records: list[dict], kind: str, predicate, confidence) -> dict:
+    """The projection's metrics (one row per replicate) and, per retrieval, its metrics, successes and
+    their one-sided Clopper–Pearson lower bound under ``predicate``."""
+    import pandas as pd
+
+    from calib.analysis.stats import clopper_pearson_lower
+    from calib.analysis.success import evaluate
+
+    first = [row for row in records if row["retrieval"] == records[0]["retrieval"]]
+    statuses: dict = {}
+    for row in first:
+        statuses[str(row["proj_status"])] = statuses.get(str(row["proj_status"]), 0) + 1
+    success = evaluate(pd.DataFrame.from_records(records).assign(status="ok", kind=kind), predicate).tolist()
+    out = {"projection": {"proj_status": statuses, "metrics": _summary_block(first, PROJECTION_FIELDS)}, "retrievals": {}}
+    for name in dict.fromkeys(row["retrieval"] for row in records):
+        picked = [ok for row, ok in zip(records, success) if row["retrieval"] == name]
+        successes, trials = int(sum(picked)), len(picked)
+        out["retrievals"][name] = {
+            "metrics": _summary_block([row for row in records if row["retrieval"] == name], RETRIEVAL_FIELDS),
+            "successes": successes, "trials": trials,
+            "success_lower_bound": float(clopper_pearson_lower(successes, trials, confidence.level)),
+        }
+    return out
+
+
+def _fmt(value) -> str:
+    """Short text for a metric value: counts as integers, other numbers with 4 significant digits.
+
+    >>> _fmt(200000.0), _fmt(0.000123456), _fmt(True), _fmt(12)
+    ('200000', '0.0001235', 'True', '12')
+    """
+    if isinstance(value, (bool, str, int)) or value is None:
+        return str(value)
+    if float(value).is_integer() and abs(value) < 1e12:
+        return str(int(value))
+    return f"{value:.4g}"
+
+
+def _pairs(record: dict, fields) -> str:
+    return "  ".join(f"{field} {_fmt(record[field])}" for field in fields if record.get(field) is not None)
+
+
+def render(target: Target, original, choice, k: int, k_source: str, m: int, records: list[dict], summary: dict,
+           predicate, confidence) -> str:
+    """The human-readable report of a probe."""
+    objective = f", objective {_fmt(original.objective)}" if original.ok else ""
+    replicates = sorted({r["replicate"] for r in records})
+    lines = [
+        f"probe: {target.label} ({target.kind}; projected dimension m = {m})",
+        f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
+        f"projector {choice.label}, k = {k} ({k_source}), {len(replicates)} replicates",
+        "",
+    ]
+    for replicate in replicates:
+        rows = [r for r in records if r["replicate"] == replicate]
+        lines.append(f"replicate {replicate}: " + _pairs(rows[0], PROJECTION_FIELDS))
+        width = max(len(r["retrieval"]) for r in rows)
+        lines += [f"  {r['retrieval']:<{width}}  " + (_pairs(r, RETRIEVAL_FIELDS) or "(no point: the projected solve did not succeed)")
+                  for r in rows]
+    projection = summary["projection"]
+    statuses = ", ".join(f"{key} {count}" for key, count in projection["proj_status"].items() if key != "None")
+    lines += ["", "summary (median / max over replicates):", f"  projection: {statuses or 'nothing to solve'}"]
+    lines += _stat_lines(projection["metrics"])
+    tolerances = ", ".join(f"{key} <= {value:g}" for key, value in predicate.as_dict().items() if key != "name" and value is not None)
+    for name, entry in summary["retrievals"].items():
+        verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
+        lines.append(f"  {name}: success {entry['successes']}/{entry['trials']} under '{predicate.name}' "
+                     f"({tolerances or 'classification only'}), lower bound {entry['success_lower_bound']:.3f} "
+                     f"at confidence {confidence.level:g}: {verdict} the target rate {1.0 - confidence.delta:g}")
+        lines += _stat_lines(entry["metrics"])
+    return "\n".join(lines)
+
+
+def _stat_lines(metrics: dict) -> list[str]:
+    return [f"    {field:<22} {_fmt(stats['median'])} / {_fmt(stats['max'])}" for field, stats in metrics.items()]

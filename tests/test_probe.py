@@ -1,0 +1,97 @@
+"""`calib probe`: one instance at one k, through calib.cli.main."""
+
+import json
+from pathlib import Path
+
+import pytest
+
+from calib.cli import main
+from calib.families import get
+from calib.metrics import FIELDS
+from calib.sweep.spec import ProjectorChoice
+from calib.sweep.trial import InstanceRef, Trial, run_trial
+
+NETLIB = Path(__file__).resolve().parents[1] / "calib" / "data" / "netlib"
+TIMES = {name for name in FIELDS if name.startswith("t_") or name == "time_saved"}
+
+
+def test_family_probe_prints_replicates_and_summary_and_matches_a_campaign_trial(tmp_path, capsys):
+    out = tmp_path / "probe.json"
+    argv = ["probe", "lp-planted", "--param", "rows=20", "--param", "cols=40", "--param", "cost=nonnegative",
+            "--k", "12", "--replicates", "3", "--seed", "7", "--json", str(out)]
+    assert main(argv) == 0
+    text = capsys.readouterr().out
+    assert "replicate 2:" in text and "summary (median / max over replicates):" in text
+    for name in ("basis-lstsq", "alternating", "restricted-repair", "warm-start"):
+        assert f"  {name}: success " in text
+    payload = json.loads(out.read_text())
+    assert payload["k"] == 12 and payload["kind"] == "lp" and len(payload["records"]) == 3 * 4
+    # The probe's streams are a campaign's with root_seed = --seed (instance 0): same numbers.
+    params = get("lp-planted").resolve({"rows": 20, "cols": 40, "cost": "nonnegative"}, "test")
+    ref = InstanceRef("lp-planted", params, 0, 7)
+    problem = ref.build().problem
+    from calib.reduce import HANDLERS
+
+    original = HANDLERS["lp"].solve_original(problem, {"time_limit_s": 60.0})
+    rows = run_trial(Trial(ref, ProjectorChoice("gaussian"), 12, 1), problem, "lp", original, ["warm-start"], {"time_limit_s": 60.0})
+    probed = next(r for r in payload["records"] if r["replicate"] == 1 and r["retrieval"] == "warm-start")
+    for name in set(FIELDS) - TIMES:
+        assert probed[name] == rows[0][name], name
+    summary = payload["summary"]["retrievals"]["warm-start"]
+    assert summary["trials"] == 3 and 0 <= summary["successes"] <= 3
+
+
+def test_mps_probe_with_eps_and_one_retrieval(capsys):
+    # afiro: 27 standard-form rows, 51 columns, so 52 points; the ln(n)/eps^2 rule of thumb (common
+    # practice) gives k = ceil(ln 52 / 0.99^2) = ceil(4.03) = 5.
+    path = NETLIB / "feasible" / "afiro.mps"
+    assert main(["probe", str(path), "--eps", "0.99", "--rule", "ln-over-eps2", "--retrieval", "basis-lstsq",
+                 "--replicates", "2"]) == 0
+    text = capsys.readouterr().out
+    assert "k = 5 (eps = 0.99 by ln-over-eps2 with 52 points)" in text
+    assert "warm-start" not in text
+
+
+def test_points_probe_reports_distortion(capsys):
+    assert main(["probe", "points-gaussian", "--param", "points=15", "--param", "dim=40", "--k", "20",
+                 "--replicates", "2", "--tol-distortion", "5"]) == 0
+    text = capsys.readouterr().out
+    assert "distortion_max" in text and "pairs_checked          105 / 105" in text
+
+
+@pytest.mark.parametrize("argv,where", [
+    (["probe", "no-such-family"], "INSTANCE_OR_FAMILY"),
+    (["probe", "lp-planted", "--param", "rows=10"], "--param"),
+    (["probe", "lp-planted", "--param", "rows"], "--param"),
+    (["probe", "lp-planted", "--param", "rows=10", "--param", "cols=20", "--k", "11"], "--k"),
+    (["probe", "lp-planted", "--param", "rows=10", "--param", "cols=20", "--retrieval", "lift"], "--retrieval"),
+    (["probe", "lp-planted", "--param", "rows=10", "--param", "cols=20", "--replicates", "0"], "--replicates"),
+    (["probe", "lp-planted", "--param", "rows=10", "--param", "cols=20", "--eps", "0.1"], "--eps"),
+    (["probe", "lp-planted", "--param", "rows=10", "--param", "cols=20", "--projector", "nope"], "--projector"),
+    (["probe", str(NETLIB / "feasible" / "afiro.mps"), "--param", "rows=3"], "--param"),
+    (["probe", "missing.mps"], "missing.mps"),
+    (["probe", "qp-random", "--param", "vars=5", "--param", "rows=2", "--time-limit", "0"], "--time-limit"),
+])
+def test_bad_input_exits_2_with_one_line(argv, where, capsys):
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and where in err[0] and "Traceback" not in err[0]
+
+
+def test_saved_instance_probe_uses_the_instance_identity(tmp_path, capsys):
+    # A saved instance is probed with the streams of its own (family, params, index): the same
+    # projected optimum as probing the family itself at that index would give (index 0 here).
+    from calib.instance_io import save_instance
+
+    params = get("lp-planted").resolve({"rows": 15, "cols": 30, "cost": "nonnegative"}, "test")
+    ref = InstanceRef("lp-planted", params, 0, 3)
+    manifest = save_instance(ref.build(), [ref.key, 3], tmp_path)
+    saved, direct = tmp_path / "saved.json", tmp_path / "direct.json"
+    common = ["--k", "8", "--replicates", "2", "--seed", "3", "--retrieval", "basis-lstsq"]
+    assert main(["probe", str(manifest), "--json", str(saved)] + common) == 0
+    assert main(["probe", "lp-planted", "--param", "rows=15", "--param", "cols=30", "--param", "cost=nonnegative",
+                 "--json", str(direct)] + common) == 0
+    capsys.readouterr()
+    first, second = (json.loads(path.read_text())["records"] for path in (saved, direct))
+    # the MPS round trip keeps every double (calib.instance_io), so the projected optimum is the same
+    assert [r["proj_objective"] for r in first] == pytest.approx([r["proj_objective"] for r in second], rel=1e-12)
