@@ -1,28 +1,24 @@
 """The analysis against published theory: pure-JL point sets (Dasgupta-Gupta) and basis pursuit.
 
-Point sets: no trial handler for point sets exists yet, so the trials are run here with calib's
-own family generator (points-gaussian) and Gaussian projector, the worst pairwise distortion of
-squared distances measured with scipy's pdist, and the rows fed to the same analysis the store
-goes through (calib.analysis.tables.build_analysis).
-
-Basis pursuit: a real campaign of the lp-basis-pursuit family through the runner and the store.
+Both run real campaigns through the runner and the store (the point-set distortion is measured by
+calib.reduce.points), except the orthonormal set, which no family generates: its trials go
+through the same points handler and then the same analysis (calib.analysis.tables.build_analysis).
 """
 
 from __future__ import annotations
 
-import json
 import math
 
 import numpy as np
 import pandas as pd
 import pytest
 from scipy import optimize, stats
-from scipy.spatial.distance import pdist
 
 from calib import projectors, theory
 from calib.analysis.success import make_predicate
 from calib.analysis.tables import Confidence, build_analysis, build_table
-from calib.families import get
+from calib.conic import PointSet
+from calib.reduce.points import PointsHandler
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
 from calib.sweep.store import Store
@@ -30,39 +26,44 @@ from calib.sweep.store import Store
 EPS = 0.5
 REPLICATES = 30  # 30 of 30 successes give a one-sided 95% Clopper-Pearson bound of 0.905 >= 0.9
 
+POINTS = """
+[campaign]
+name = "jl-cloud"
+root_seed = 2026
+replicates = 30
 
-def _worst_distortion(points: np.ndarray, squared: np.ndarray, k: int, seed) -> float:
-    T = projectors.make("gaussian", k, points.shape[1], seed)
-    return float(np.max(np.abs(pdist(T.apply(points.T).T, "sqeuclidean") / squared - 1.0)))
+[[families]]
+name = "points-gaussian"
+sizes = [{points = 16, dim = 300}, {points = 48, dim = 300}, {points = 128, dim = 300}]
+instances = 1
+
+[sweep]
+projectors = ["gaussian"]
+k = [40, 64, 96, 128, 160, 200, 240, 290]
+"""
 
 
-def _point_rows(name: str, points: np.ndarray, params: dict, ks) -> list[dict]:
-    squared = pdist(points, "sqeuclidean")
-    n, dim = points.shape
-    return [{"family": name, "size": f"points={n},dim={dim}", "params": json.dumps(params, sort_keys=True),
-             "class_params": "{}", "projector": "gaussian", "retrieval": "none", "k": int(k), "k_label": "",
-             "kind": "points", "status": "ok", "orig_status": "ok", "proj_status": "ok",
-             "distortion_max": _worst_distortion(points, squared, int(k), [n, int(k), replicate]),
-             "projected_dim": dim, "n_points": n}
-            for k in ks for replicate in range(REPLICATES)]
+def _analyse(spec_text: str, folder, predicate) -> dict:
+    folder.mkdir(parents=True, exist_ok=True)
+    spec = folder / "spec.toml"
+    spec.write_text(spec_text)
+    store = Store.open_existing(run_campaign(load_spec(spec), folder / "out").store_path)
+    try:
+        return build_table(store, predicate, Confidence())["analyses"][0]
+    finally:
+        store.close()
 
 
 @pytest.fixture(scope="module")
-def gaussian_cloud_analysis():
-    family = get("points-gaussian")
-    rows = []
-    for n in (16, 64, 256):
-        params = family.resolve({"points": n, "dim": 320}, "test")
-        points = family.make(params, 0, np.random.default_rng([n, 2026])).problem.points
-        bound = int(theory.dasgupta_gupta(n, EPS))
-        rows += _point_rows("points-gaussian", points, params, [round(f * bound) for f in (0.4, 0.55, 0.7, 0.85, 1.0, 1.15)])
-    return build_analysis(pd.DataFrame(rows), make_predicate("distortion", distortion=EPS), Confidence())
+def gaussian_cloud_analysis(tmp_path_factory):
+    return _analyse(POINTS, tmp_path_factory.mktemp("points"), make_predicate("distortion", distortion=EPS))
 
 
 def test_pure_jl_point_set_transition_lies_below_dasgupta_gupta(gaussian_cloud_analysis):
     # Dasgupta and Gupta (2003), Theorem 2.1: k >= 4 ln n / (eps^2/2 - eps^3/3) gives an eps-embedding
-    # of n points with probability >= 1/n. The measured transition (k50) must sit below that k, and the
-    # distortion tolerance is the eps of the table (calib.analysis.bounds).
+    # of n points with probability >= 1/n. The measured transition (k50, with its interval) must sit
+    # below that k; the distortion tolerance is the eps of the table (calib.analysis.bounds).
+    assert len(gaussian_cloud_analysis["entries"]) == 3
     for entry in gaussian_cloud_analysis["entries"]:
         bound = int(theory.dasgupta_gupta(entry["n_points"], EPS))
         assert entry["theory"]["eps"] == EPS and entry["theory"]["bounds"]["dasgupta-gupta"]["k"] == bound
@@ -84,15 +85,21 @@ def test_pure_jl_point_set_law_has_a_positive_finite_constant(gaussian_cloud_ana
 def test_orthonormal_point_set_succeeds_at_the_bound_at_least_as_promised():
     # Dasgupta and Gupta (2003), proof of Theorem 2.1: at their k each pair fails with probability
     # <= 2/n^2, so all n(n-1)/2 pairs hold with probability >= 1/n. The one-sided 95% Clopper-Pearson
-    # bound of the measured success rate at that k must be >= 1/n. (eps = 0.6 keeps that k below
+    # bound of the measured success rate at that k must be >= 1/n. (eps = 0.7 keeps that k below
     # the dimension n of the orthonormal set.)
-    n, eps = 256, 0.6
+    n, eps = 192, 0.7
     bound = int(theory.dasgupta_gupta(n, eps))
     assert bound < n
-    rows = pd.DataFrame(_point_rows("points-orthonormal", np.eye(n), {"points": n, "dim": n}, [bound]))
+    points = PointSet(np.eye(n))
+    original = PointsHandler.solve_original(points, {})
+    records = [PointsHandler.trial_records(points, original, projectors.make("gaussian", bound, n, [n, replicate]), ["none"], {})[0]
+               for replicate in range(REPLICATES)]
+    rows = pd.DataFrame(records).assign(
+        family="points-orthonormal", size=f"points={n},dim={n}", params="{}", class_params="{}", projector="gaussian",
+        retrieval="none", k=bound, k_label="", kind="points", status="ok", projected_dim=n, n_points=n)
     analysis = build_analysis(rows, make_predicate("distortion", distortion=eps), Confidence())
     (point,) = analysis["entries"][0]["grid"]
-    assert point["k"] == bound and point["lower_bound"] >= 1 / n
+    assert point["k"] == bound and point["trials"] == REPLICATES and point["lower_bound"] >= 1 / n
 
 
 BASIS_PURSUIT = """
@@ -142,14 +149,8 @@ def test_basis_pursuit_k50_matches_the_published_phase_transition(tmp_path):
     # Location: N psi(s/N) (ALMT 2014, Prop. 4.5); its stated error is 2 sqrt(N/s) (the statistical
     # dimension lies in [N psi - 2 sqrt(N/s), N psi]); that is the tolerance on the measured k50.
     length, sparsity = 200, 10
-    spec = tmp_path / "bp.toml"
-    spec.write_text(BASIS_PURSUIT.format(length=length, sparsity=sparsity))
-    store = Store.open_existing(run_campaign(load_spec(spec), tmp_path / "out").store_path)
-    try:
-        table = build_table(store, make_predicate("bound", gap=1e-5), Confidence())
-    finally:
-        store.close()
-    (entry,) = table["analyses"][0]["entries"]
+    analysis = _analyse(BASIS_PURSUIT.format(length=length, sparsity=sparsity), tmp_path, make_predicate("bound", gap=1e-5))
+    (entry,) = analysis["entries"]
     location, tolerance = _l1_transition(length, sparsity), 2 * math.sqrt(length / sparsity)
     assert location == pytest.approx(40.78, abs=0.01)
     assert abs(entry["transition"]["k50"] - location) <= tolerance

@@ -6,7 +6,7 @@ import argparse
 import json
 from pathlib import Path
 
-from calib.commands.tables import add_predicate_options
+from calib.commands.tables import add_analysis_options
 
 
 def register(subparsers) -> None:
@@ -17,7 +17,7 @@ def register(subparsers) -> None:
                     "error-against-speed-up figures, the timings and the sweep spec.")
     parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
     parser.add_argument("--html", type=Path, required=True, metavar="FILE", help="the HTML file to write")
-    add_predicate_options(parser)
+    add_analysis_options(parser)
     parser.set_defaults(func=run)
 
 

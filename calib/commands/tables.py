@@ -7,7 +7,7 @@ from pathlib import Path
 
 
 def add_predicate_options(parser: argparse.ArgumentParser) -> None:
-    """Options that choose the success predicate, the tolerance ladder, eps and the confidence target."""
+    """Options that choose the success predicate and the confidence target (shared with `probe`)."""
     from calib.analysis.success import PRESETS
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
@@ -21,11 +21,17 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--tol-feas", type=float, metavar="TAU", help="relative feasibility error ||Ax-b||/max(1,||b||) (solution preset: 0.05)")
     group.add_argument("--tol-sign", type=float, metavar="TAU", help="relative sign violation ||min(x,0)||/max(1,||x||) (solution preset: 0.05)")
     group.add_argument("--tol-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
+    group.add_argument("--delta", type=float, default=0.1, help="target success rate is 1 - delta (default 0.1)")
+    group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound and the intervals (default 0.95)")
+
+
+def add_analysis_options(parser: argparse.ArgumentParser) -> None:
+    """The predicate options plus the tolerance ladder and the eps of the bounds (tables, report)."""
+    add_predicate_options(parser)
+    group = parser.add_argument_group("tolerance ladder and theory")
     group.add_argument("--tau", type=float, nargs="+", metavar="TAU",
                        help="a ladder of primary tolerances: one analysis per value, each setting the tolerance(s) of the preset "
                             "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
-    group.add_argument("--delta", type=float, default=0.1, help="target success rate is 1 - delta (default 0.1)")
-    group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound and the intervals (default 0.95)")
     group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
                                                  "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
 
@@ -35,21 +41,20 @@ def predicate_from(args: argparse.Namespace):
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
-    from calib.errors import InputError
-
     predicate = make_predicate(args.preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
                                sign=args.tol_sign, distortion=args.tol_distortion)
-    if args.eps is not None and not 0.0 < args.eps < 1.0:
-        raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
 
 def analyse(args: argparse.Namespace):
     """(table, tidy rows, store meta) of ``args.store`` under the parsed analysis options."""
     from calib.analysis.tables import build_table, load_rows
+    from calib.errors import InputError
     from calib.sweep.store import Store
 
     predicate, confidence = predicate_from(args)
+    if args.eps is not None and not 0.0 < args.eps < 1.0:
+        raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")
     store = Store.open_existing(args.store)
     try:
         rows = load_rows(store)
@@ -73,7 +78,7 @@ def register(subparsers) -> None:
     parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v1.json)")
     parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
     parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
-    add_predicate_options(parser)
+    add_analysis_options(parser)
     parser.set_defaults(func=run)
 
 
