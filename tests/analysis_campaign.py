@@ -37,12 +37,17 @@ time_limit_s = 10
 """
 
 
-def run_campaign_in(folder: Path) -> Path:
-    """Write the spec under ``folder``, run it, and return the store path."""
+def run_spec(text: str, folder: Path) -> Path:
+    """Write the spec ``text`` under ``folder``, run it, and return the store path."""
     from calib.sweep.runner import run_campaign
     from calib.sweep.spec import load_spec
 
     folder.mkdir(parents=True, exist_ok=True)
-    spec_path = folder / "analysis-check.toml"
-    spec_path.write_text(SPEC, encoding="utf-8")
+    spec_path = folder / "spec.toml"
+    spec_path.write_text(text, encoding="utf-8")
     return run_campaign(load_spec(spec_path), folder / "out").store_path
+
+
+def run_campaign_in(folder: Path) -> Path:
+    """Run the shared campaign under ``folder`` and return the store path."""
+    return run_spec(SPEC, folder)

@@ -14,13 +14,12 @@ import pandas as pd
 import pytest
 from scipy import optimize, stats
 
+from analysis_campaign import run_spec
 from calib import projectors, theory
 from calib.analysis.success import make_predicate
 from calib.analysis.tables import Confidence, build_analysis, build_table
 from calib.conic import PointSet
 from calib.reduce.points import PointsHandler
-from calib.sweep.runner import run_campaign
-from calib.sweep.spec import load_spec
 from calib.sweep.store import Store
 
 EPS = 0.5
@@ -44,10 +43,7 @@ k = [40, 64, 96, 128, 160, 200, 240, 290]
 
 
 def _analyse(spec_text: str, folder, predicate) -> dict:
-    folder.mkdir(parents=True, exist_ok=True)
-    spec = folder / "spec.toml"
-    spec.write_text(spec_text)
-    store = Store.open_existing(run_campaign(load_spec(spec), folder / "out").store_path)
+    store = Store.open_existing(run_spec(spec_text, folder))
     try:
         return build_table(store, predicate, Confidence())["analyses"][0]
     finally:
