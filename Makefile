@@ -17,7 +17,9 @@ $(STAMP): pyproject.toml
 demo: venv
 	$(BIN)/calib run instances/quickstart.toml --out results/quickstart
 	$(BIN)/calib tables results/quickstart/quickstart.sqlite \
-	    --json results/quickstart/safe_k.json --csv results/quickstart/safe_k.csv
+	    --json results/quickstart/safe_k.json --csv results/quickstart/safe_k.csv \
+	    --timings results/quickstart/timings.csv
+	$(BIN)/calib report results/quickstart/quickstart.sqlite --html results/quickstart/report.html
 
 test: venv
 	$(BIN)/python -m pytest -q
