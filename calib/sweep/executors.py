@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import os
 import selectors
+import sys
 import threading
 import time
 from collections import deque
@@ -61,6 +62,10 @@ class InlineExecutor:
         self._queue.clear()
 
 
+#: worker states that wait on the worker's pipe (and have a deadline)
+_ACTIVE = ("busy", "starting")
+
+
 class LocalPool:
     """``workers`` sandboxed processes fed from one queue; keeps two tasks per worker submitted."""
 
@@ -92,41 +97,57 @@ class LocalPool:
         self._boxes[self._boxes.index(box)] = self._new()
 
     def next_done(self) -> Done:
-        """Block until a task finishes, times out or crashes its worker (never returns a starting child)."""
+        """Block until a task finishes, times out or crashes its worker."""
         while True:
-            now = time.monotonic()
-            for box in self._boxes:
-                if box.state in ("busy", "starting") and box.deadline <= now:
-                    token = box.job[0] if box.job else None
-                    failure = box.expire()
-                    self._replace(box)
-                    if token is not None:
-                        self._dispatch()
-                        return Done(token, failure)
-                    raise RuntimeError(f"a worker process could not start: {failure.message}")
-            waiting = [box for box in self._boxes if box.state in ("busy", "starting")]
-            if not waiting:
-                raise RuntimeError("next_done() with no task submitted")
-            with selectors.DefaultSelector() as selector:
-                for box in waiting:
-                    selector.register(box.fileno(), selectors.EVENT_READ, box)
-                ready = selector.select(max(0.0, min(box.deadline for box in waiting) - time.monotonic()))
-            for key, _ in ready:
-                box = key.data
+            done = self._expire_overdue() or self._read_one()
+            if done is not None:
+                return done
+
+    def _expire_overdue(self) -> Optional[Done]:
+        now = time.monotonic()
+        for box in self._boxes:
+            if box.state in _ACTIVE and box.deadline <= now:
                 token = box.job[0] if box.job else None
-                result = box.receive()
-                if box.state == "dead":
-                    self._replace(box)
-                    if token is None:
-                        raise RuntimeError(f"a worker process could not start: {result.message}")
-                self._dispatch()
-                if token is not None:
-                    return Done(token, result)
+                return self._settle(box, token, box.expire())
+        return None
+
+    def _read_one(self) -> Optional[Done]:
+        waiting = [box for box in self._boxes if box.state in _ACTIVE]
+        if not waiting:
+            raise RuntimeError("next_done() with no task submitted")
+        with selectors.DefaultSelector() as selector:
+            for box in waiting:
+                selector.register(box.fileno(), selectors.EVENT_READ, box)
+            ready = selector.select(max(0.0, min(box.deadline for box in waiting) - time.monotonic()))
+        for key, _ in ready:
+            box = key.data
+            token = box.job[0] if box.job else None
+            done = self._settle(box, token, box.receive())
+            if done is not None:
+                return done
+        return None
+
+    def _settle(self, box, token: Optional[str], result) -> Optional[Done]:
+        """Replace a dead worker, keep the others busy, and turn a task's result into ``Done``.
+
+        ``token`` is None for a starting worker: its "ready" gives None, its death stops the run.
+        """
+        if box.state == "dead":
+            self._replace(box)
+            if token is None:
+                raise _start_failure(result)
+        self._dispatch()
+        return None if token is None else Done(token, result)
 
     def close(self) -> None:
         self._pending.clear()
         for box in self._boxes:
             box.close()
+
+
+def _start_failure(failure: Failure) -> InputError:
+    return InputError("worker process", f"could not start: {failure.message}",
+                      f"check that `{sys.executable} -c 'import calib.sweep.tasks'` works")
 
 
 _local = threading.local()

@@ -277,11 +277,15 @@ def _parse_projectors(value, errors: _Collector) -> list[ProjectorChoice]:
 
 
 def _projector_problem(name: str, options: dict) -> str:
-    """Why ``name`` with ``options`` cannot be drawn (tried on a tiny shape), or "" when it can."""
+    """Why ``name`` with ``options`` cannot be drawn, or "" when it can.
+
+    Tried once on a small 16 x 64 shape, which every option value meant for real grids should
+    accept; projectors validate their own options at this public edge.
+    """
     from calib import projectors
 
     try:
-        projectors.make(name, 1, 2, seed=0, **options)
+        projectors.make(name, 16, 64, seed=0, **options)
     except (InputError, TypeError, ValueError) as error:
         return f"projector {name!r} rejects options {options}: {error}"
     return ""
