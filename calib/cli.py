@@ -46,6 +46,9 @@ def main(argv: Optional[Sequence[str]] = None) -> int:
     except InputError as error:
         print(f"calib: error: {error}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # output piped into `head` and the like
+        sys.stderr.close()
+        return 0
     except KeyboardInterrupt:
         print("calib: interrupted; everything finished so far is stored (run the same command again to resume)", file=sys.stderr)
         return 130

@@ -203,6 +203,22 @@ class StandardForm:
     def original_point(self, z: np.ndarray) -> np.ndarray:
         return self.shift + self.recover @ z
 
+    def standard_point(self, x: np.ndarray) -> np.ndarray:
+        """The standard-form point z (with its slacks) of an original point x; needs no free column.
+
+        Inverse of :meth:`original_point` on points that satisfy the original rows; shape (n_std,).
+        """
+        n_orig = self.recover.shape[0]
+        sign = self.recover[:, :n_orig].diagonal()
+        if self.recover[:, n_orig:].count_nonzero():
+            raise ValueError("standard_point needs a model without free columns")
+        structural = sign * (np.asarray(x, dtype=float) - self.shift)
+        A = self.lp.A
+        rest = self.lp.b - A[:, :n_orig] @ structural
+        slack_columns = A[:, n_orig:]
+        # each slack column holds one +-1 entry, so S^T r recovers the slack values
+        return np.concatenate([structural, slack_columns.T @ rest])
+
 
 def read_mps(path: Union[str, Path]) -> GeneralLP:
     """Read an MPS file (also .mps.gz) with HiGHS into a :class:`GeneralLP`.

@@ -18,7 +18,7 @@ def clopper_pearson_lower(successes, trials, confidence: float = 0.95):
     """One-sided lower confidence bound on a binomial proportion (vectorised).
 
     >>> round(float(clopper_pearson_lower(30, 30, 0.95)), 6)  # 0.05 ** (1/30)
-    0.905217
+    0.904966
     >>> float(clopper_pearson_lower(0, 10))
     0.0
     """
@@ -34,7 +34,7 @@ def wilson_lower(successes, trials, confidence: float = 0.95):
     """One-sided Wilson score lower bound (E. B. Wilson, JASA 22(158):209–212, 1927).
 
     >>> round(float(wilson_lower(9, 10, 0.95)), 4)
-    0.6452
+    0.6523
     """
     x = np.asarray(successes, dtype=float)
     n = np.asarray(trials, dtype=float)

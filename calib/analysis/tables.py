@@ -88,11 +88,11 @@ def _safe_k(cell: pd.DataFrame) -> pd.Series:
     ks = cell["k"].to_numpy()
     if not passes[-1]:
         reason = "no swept k reaches the target" if not passes.any() else "the largest swept k misses the target"
-        return pd.Series({"safe_k": None, "safe_k_reason": reason})
+        return pd.Series({"safe_k": None, "safe_k_reason": reason}, dtype=object)
     failing = np.flatnonzero(~passes)
     first = failing[-1] + 1 if failing.size else 0
     reason = "all swept k pass: the safe k may be smaller than the grid shows" if first == 0 else ""
-    return pd.Series({"safe_k": int(ks[first]), "safe_k_reason": reason})
+    return pd.Series({"safe_k": int(ks[first]), "safe_k_reason": reason}, dtype=object)
 
 
 def build_table(store: Store, predicate: Predicate, confidence: Confidence) -> dict:

@@ -129,9 +129,22 @@ def positive_int(params: dict, key: str, minimum: int = 1) -> None:
             key, f"must be an integer >= {minimum}, got {value!r}", f"set {key} to an integer >= {minimum}")
 
 
-def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed_low: bool = False) -> None:
+def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed_low: bool = False,
+             closed_high: bool = True) -> None:
     value = params[key]
     ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
-    ok = ok and (low <= value if closed_low else low < value) and value <= high
-    bracket = "[" if closed_low else "("
-    require(ok, key, f"must lie in {bracket}{low}, {high}], got {value!r}", f"pick {key} in that range")
+    ok = ok and (low <= value if closed_low else low < value) and (value <= high if closed_high else value < high)
+    bracket = ("[" if closed_low else "(") + f"{low}, {high}" + ("]" if closed_high else ")")
+    require(ok, key, f"must lie in {bracket}, got {value!r}", f"pick {key} in that range")
+
+
+def positive(params: dict, key: str, high: float = np.inf) -> None:
+    """A finite real number in (0, high]."""
+    value = params[key]
+    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value) and 0 < value <= high
+    require(ok, key, f"must be a finite number in (0, {high}], got {value!r}", f"set {key} to a positive number")
+
+
+def one_of(params: dict, key: str, options: tuple) -> None:
+    value = params[key]
+    require(value in options, key, f"must be one of {', '.join(map(repr, options))}, got {value!r}", f"pick one of {', '.join(map(str, options))}")

@@ -1,0 +1,149 @@
+"""Real LPs read from MPS files: the vendored Netlib subset and a folder of the user's own files.
+
+Both families read the file with :func:`calib.problems.read_mps` and convert it with
+:meth:`GeneralLP.to_standard`, so their size is fixed by the file; the rows of that standard form
+(equalities, then rows with a lower bound, rows with an upper bound, then finite column upper
+bounds, each inequality with its slack) are the rows projections act on. The random stream is not
+used: every instance index gives the same problem.
+
+- ``netlib``: parameter ``name`` picks one problem of ``calib/data/netlib`` (feasible ones carry
+  their published optimum, from ``optima.csv``, in ``info["optimal_value"]``; the ones from the
+  infeasible collection carry ``info["feasible"] = False``).
+- ``mps-dir``: parameters ``dir`` and ``name`` pick ``DIR/NAME`` (``.mps`` or ``.mps.gz`` may be
+  left out). Read errors are :class:`InputError` naming the file.
+"""
+
+from __future__ import annotations
+
+import csv
+import functools
+from pathlib import Path
+
+import numpy as np
+
+from calib.errors import InputError
+from calib.families.base import Family, register, require
+from calib.problems import read_mps
+from calib.theory import lp_points
+
+NETLIB_DIR = Path(__file__).resolve().parent.parent / "data" / "netlib"
+MPS_SUFFIXES = (".mps", ".mps.gz", ".MPS", ".MPS.gz")
+
+
+def netlib_files() -> dict:
+    """Problem name -> (path, feasible) for every vendored Netlib file."""
+    files = {}
+    for folder, feasible in (("feasible", True), ("infeasible", False)):
+        for path in sorted((NETLIB_DIR / folder).glob("*.mps")):
+            files[path.stem] = (path, feasible)
+    return files
+
+
+def netlib_optima() -> dict:
+    """Problem name -> published optimal objective value (Netlib ``lp/data`` summary table)."""
+    with open(NETLIB_DIR / "optima.csv", newline="") as handle:
+        return {row["name"]: float(row["optimal_value"]) for row in csv.DictReader(handle)}
+
+
+@functools.lru_cache(maxsize=64)
+def _standard_shape(path: str, stamp: tuple) -> tuple:
+    lp = read_mps(path).to_standard().lp
+    return lp.n_rows, lp.n_cols
+
+
+def _shape(path: Path) -> tuple:
+    """(rows, cols) of the file's standard form; cached while the file is unchanged."""
+    status = path.stat()
+    return _standard_shape(str(path), (status.st_mtime_ns, status.st_size))
+
+
+def _read_standard(path: Path, name: str):
+    lp = read_mps(path).to_standard().lp
+    lp.name = name
+    return lp
+
+
+# --- netlib ----------------------------------------------------------------------------------
+
+def _netlib_path(params: dict) -> Path:
+    return netlib_files()[params["name"]][0]
+
+
+def _build_netlib(params: dict, rng: np.random.Generator):
+    name = params["name"]
+    path, feasible = netlib_files()[name]
+    info = {"feasible": feasible, "source": "netlib"}
+    if feasible:
+        info["optimal_value"] = netlib_optima()[name]
+    return _read_standard(path, f"netlib-{name}"), info
+
+
+def _check_netlib(params: dict) -> None:
+    names = netlib_files()
+    require(params["name"] in names, "name", f"no vendored Netlib problem {params['name']!r}",
+            f"choose one of {', '.join(names)}")
+
+
+register(Family(
+    name="netlib",
+    kind="lp",
+    description="A real LP from the vendored Netlib subset (15 feasible problems with published optima, "
+                "5 infeasible ones), in standard form; size fixed by the problem. All standard-form "
+                "rows are projected.",
+    size_keys=("name",),
+    defaults={"name": None},
+    param_doc={"name": "problem name, one of: " + ", ".join(netlib_files())},
+    build=_build_netlib,
+    projected_dim=lambda p: _shape(_netlib_path(p))[0],
+    n_points=lambda p: lp_points(_shape(_netlib_path(p))[1]),
+    check=_check_netlib,
+))
+
+
+# --- the user's folder -----------------------------------------------------------------------
+
+def _user_path(params: dict) -> Path:
+    """DIR/NAME, trying the MPS suffixes when NAME has none; InputError when nothing matches."""
+    folder = Path(params["dir"])
+    found = mps_names(folder)
+    candidates = [folder / params["name"]] + [folder / (params["name"] + suffix) for suffix in MPS_SUFFIXES]
+    for path in candidates:
+        if path.is_file():
+            return path
+    raise InputError(str(folder / params["name"]), "no such MPS file",
+                     f"files in that folder: {', '.join(found) or 'none'}")
+
+
+def _build_user(params: dict, rng: np.random.Generator):
+    path = _user_path(params)
+    return _read_standard(path, path.name), {"source": str(path)}
+
+
+def _check_user(params: dict) -> None:
+    for key in ("dir", "name"):
+        require(isinstance(params[key], str) and params[key] != "", key, "must be a nonempty text", f"set {key}")
+    _shape(_user_path(params))  # reads the file once: a malformed file fails here, naming itself
+
+
+register(Family(
+    name="mps-dir",
+    kind="lp",
+    description="An LP of the user's own: the MPS file NAME in folder DIR, in standard form; size "
+                "fixed by the file. All standard-form rows are projected.",
+    size_keys=("dir", "name"),
+    defaults={"dir": None, "name": None},
+    param_doc={"dir": "folder holding the MPS files",
+               "name": "file name in that folder (.mps / .mps.gz may be left out)"},
+    build=_build_user,
+    projected_dim=lambda p: _shape(_user_path(p))[0],
+    n_points=lambda p: lp_points(_shape(_user_path(p))[1]),
+    check=_check_user,
+))
+
+
+def mps_names(folder) -> list:
+    """Names of the MPS files in ``folder`` (for iterating the ``mps-dir`` family over a folder)."""
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputError(str(folder), "no such folder", "give the folder holding your MPS files")
+    return sorted(p.name for p in folder.iterdir() if p.is_file() and p.name.endswith(MPS_SUFFIXES))

@@ -1,0 +1,1 @@
+"""Solver adapters: every one maps its statuses through one table into calib.solvers.result.STATUSES."""
