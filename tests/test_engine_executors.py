@@ -46,6 +46,11 @@ def cluster():
         yield local_cluster
 
 
+def _workers(client) -> set:
+    """Addresses of the Dask workers, as the scheduler knows them (a restarted worker gets a new one)."""
+    return set(client.scheduler_info()["workers"])
+
+
 def test_dask_local_cluster_matches_serial_run_byte_for_byte(tmp_path, serial_table, cluster):
     summary = run_campaign(load_spec(write_spec(tmp_path)), tmp_path / "out", scheduler=cluster.scheduler_address)
     assert summary.executor == "dask" and summary.statuses == {"ok": 120} and summary.lost == 0
@@ -59,7 +64,7 @@ def test_dask_survives_a_lost_worker(tmp_path, serial_table, cluster):
     from distributed import Client
 
     with Client(cluster.scheduler_address) as client:
-        victim = next(iter(client.run(os.getpid).values()))
+        address, victim = next(iter(client.run(os.getpid).items()))
 
     def kill_one_worker(progress):
         if progress.done == 30:
@@ -70,7 +75,8 @@ def test_dask_survives_a_lost_worker(tmp_path, serial_table, cluster):
     assert summary.statuses == {"ok": 120} and summary.lost == 0
     assert table_bytes(summary.store_path) == serial_table
     with Client(cluster.scheduler_address) as client:
-        assert victim not in client.run(os.getpid).values()  # the worker really was replaced
+        client.wait_for_workers(2, timeout=60)
+        assert address not in _workers(client)  # the worker really was replaced
 
 
 def test_originals_are_solved_once_per_instance_and_reused_on_resume(tmp_path):
@@ -81,7 +87,7 @@ def test_originals_are_solved_once_per_instance_and_reused_on_resume(tmp_path):
     grown = write_spec(tmp_path, replicates=6)
     text = grown.read_text().replace('name = "tiny"', 'name = "tiny"\ndescription = "grown"')
     grown.write_text(text)
-    second = run_campaign(load_spec(grown), tmp_path / "out", workers=2, new_campaign=True)
+    second = run_campaign(load_spec(grown), tmp_path / "out", inline=True, new_campaign=True)
     assert second.store_path.name == "tiny-2.sqlite" and second.originals_solved == 6
     again = run_campaign(load_spec(grown), tmp_path / "out", workers=2)
     assert (again.ran, again.skipped, again.originals_solved) == (0, 180, 0)
@@ -151,3 +157,18 @@ def test_in_process_executor_records_a_raising_trial(tmp_path, fault_plugin):
         '[[families]]\nname = "test-faulty-lp"\nsizes = [{{rows = 14, cols = 28}}]\nparams = {{original = "segfault"}}\n', "")
     summary = run_campaign(load_spec(write_spec(tmp_path, "faulty", replicates=1, text=text)), tmp_path / "out", inline=True)
     assert summary.statuses == {"error": 1, "ok": 1}
+
+
+def test_dask_workers_survive_failing_trials(tmp_path, fault_plugin, cluster):
+    import sys
+
+    from distributed import Client
+
+    spec = load_spec(write_spec(tmp_path, "faulty", replicates=1, text=FAULTY_SPEC))
+    with Client(cluster.scheduler_address) as client:
+        client.upload_file(sys.modules[fault_plugin].__file__)  # Dask's way to ship a module to workers
+        workers = _workers(client)
+        summary = run_campaign(spec, tmp_path / "out", scheduler=cluster.scheduler_address)
+        assert _workers(client) == workers  # the sandboxes absorbed the segfaults
+    assert summary.statuses == {"error": 2, "crashed": 2, "timeout": 2, "ok": 4}
+

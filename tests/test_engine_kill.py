@@ -42,10 +42,11 @@ def reference(tmp_path_factory):
     return tables
 
 
-def _resume_and_compare(spec_path: Path, store: Path, expected_trials: int, reference_table: bytes) -> None:
+def _resume_and_compare(spec_path: Path, store: Path, expected_trials: int, reference_table: bytes,
+                        **executor) -> None:
     rows, distinct = row_counts(store)
     assert rows == distinct < expected_trials  # one row per trial (one retrieval), and it stopped early
-    summary = run_campaign(load_spec(spec_path), store.parent, workers=2)
+    summary = run_campaign(load_spec(spec_path), store.parent, **(executor or {"inline": True}))
     assert summary.skipped == distinct and summary.ran == expected_trials - distinct
     assert row_counts(store) == (expected_trials, expected_trials)
     assert table_bytes(store) == reference_table
@@ -129,7 +130,7 @@ def test_external_kill_mid_run_then_resume(tmp_path, reference, how):
     else:
         assert process.returncode == 130 and "everything finished so far is stored" in err and "Traceback" not in err
     assert len(workers) == 2 and _gone(workers, within_s=5.0)  # no orphaned worker processes
-    _resume_and_compare(spec, store, 480, reference[16])
+    _resume_and_compare(spec, store, 480, reference[16], workers=2)
 
 
 def _safe_count(store: Path) -> int:

@@ -68,7 +68,7 @@ def test_rerun_reproduces_a_failing_trial(tmp_path, fault_plugin, monkeypatch, c
 
     text = FAULTY_SPEC.replace("k = [1, 2, 3, 4, 6]", "k = [1, 4]").replace(
         '[[families]]\nname = "test-faulty-lp"\nsizes = [{{rows = 14, cols = 28}}]\nparams = {{original = "segfault"}}\n', "")
-    summary = run_campaign(load_spec(write_spec(tmp_path, "faulty", replicates=1, text=text)), tmp_path / "out", workers=1)
+    summary = run_campaign(load_spec(write_spec(tmp_path, "faulty", replicates=1, text=text)), tmp_path / "out", inline=True)
     with sqlite3.connect(summary.store_path) as db:
         trial_id = db.execute("SELECT trial_id FROM trials WHERE status = 'error'").fetchone()[0]
     monkeypatch.delenv("CALIB_PLUGINS")  # the store remembers its plugins
@@ -114,7 +114,7 @@ def test_a_format_1_store_is_migrated_and_resumed(campaign, tmp_path):
         db.execute("ALTER TABLE trials DROP COLUMN root_seed")
         db.execute("ALTER TABLE trials DROP COLUMN solver_options")
         db.execute("DELETE FROM campaign WHERE key IN ('store_format', 'spec_name', 'plugins')")
-    summary = run_campaign(load_spec(spec_path), old.parent, workers=2)
+    summary = run_campaign(load_spec(spec_path), old.parent, inline=True)
     assert (summary.skipped, summary.ran) == (30, 30)
     with sqlite3.connect(old) as db:
         assert db.execute("SELECT value FROM campaign WHERE key = 'store_format'").fetchone()[0] == "2"

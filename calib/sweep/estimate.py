@@ -83,8 +83,7 @@ def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
         start = time.perf_counter()
         result = box.run(task.token, task, timeout)
         if isinstance(result, Failure):
-            box.close()
-            box = Sandbox()
+            box = box.renewed()
             box.wait_ready()
             return None, f"{result.status}: {result.message}"
         return (time.perf_counter() - start, result), ""

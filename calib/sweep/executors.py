@@ -93,8 +93,6 @@ class LocalPool:
             if box.state == "idle":
                 box.send(*self._pending.popleft())
 
-    def _replace(self, box) -> None:
-        self._boxes[self._boxes.index(box)] = self._new()
 
     def next_done(self) -> Done:
         """Block until a task finishes, times out or crashes its worker."""
@@ -133,7 +131,7 @@ class LocalPool:
         ``token`` is None for a starting worker: its "ready" gives None, its death stops the run.
         """
         if box.state == "dead":
-            self._replace(box)
+            self._boxes[self._boxes.index(box)] = box.renewed()
             if token is None:
                 raise _start_failure(result)
         self._dispatch()
@@ -158,8 +156,7 @@ def run_in_sandbox(task: Task, timeout: Optional[float]):
     from calib.sweep.sandbox import Sandbox
 
     box = getattr(_local, "sandbox", None)
-    if box is None or box.state == "dead":
-        box = _local.sandbox = Sandbox()
+    box = _local.sandbox = Sandbox() if box is None else box.renewed()
     return box.run(task.token, task, timeout)
 
 

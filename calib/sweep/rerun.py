@@ -131,8 +131,7 @@ def rerun(store: Store, trial_text: str) -> Comparison:
     box = Sandbox()
     try:
         fresh_original = box.run("original", OriginalTask(trial.instance, solver, plugins), solver["trial_timeout_s"])
-        if box.state == "dead":
-            box = Sandbox()
+        box = box.renewed()
         fresh_trial = box.run("trial", TrialTask(trial, retrievals, solver, original, plugins), solver["trial_timeout_s"])
     finally:
         box.close()

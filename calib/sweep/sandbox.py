@@ -123,18 +123,29 @@ def _child_env() -> dict:
     return {**os.environ, **SINGLE_THREAD_ENV, "PYTHONPATH": os.pathsep.join(paths)}
 
 
-def _tail(log, limit: int = 600) -> str:
-    """The last lines the child wrote to its log, on one line (empty when it wrote nothing)."""
+def _tail(log, limit: int = 400) -> str:
+    """What the child last wrote to its log, on one line (empty when it wrote nothing).
+
+    For a fatal signal, ``faulthandler``'s report is condensed to its first line and the two
+    innermost frames of the crashing thread (it lists the most recent call first); otherwise the
+    last three lines are kept.
+    """
     try:
         log.flush()
         log.seek(0, os.SEEK_END)
         size = log.tell()
-        log.seek(max(0, size - 4096))
+        log.seek(max(0, size - 16384))
         text = log.read().decode("utf-8", "replace")
     except OSError:
         return ""
     lines = [line.strip() for line in text.splitlines() if line.strip()]
-    return " | ".join(lines[-6:])[-limit:]
+    fatal = [index for index, line in enumerate(lines) if line.startswith("Fatal Python error")]
+    if fatal:
+        report = lines[fatal[-1]:]
+        current = [index for index, line in enumerate(report) if line.startswith("Current thread")]
+        frames = [line for line in report[current[0] if current else 0:] if line.startswith("File ")]
+        lines = report[:1] + frames[:2]
+    return " | ".join(lines[-3:])[-limit:]
 
 
 def _death_message(returncode: Optional[int]) -> str:
@@ -221,6 +232,13 @@ class Sandbox:
                 pipe.close()
             except OSError:
                 pass
+
+    def renewed(self) -> "Sandbox":
+        """This sandbox while its child lives, else a new one (this one's log is closed)."""
+        if self.state != "dead":
+            return self
+        self.close()
+        return Sandbox()
 
     def close(self) -> None:
         """Ask an idle child to stop, then make sure it is gone."""
