@@ -78,15 +78,15 @@ def run_campaign(spec: Spec, out_dir: str | Path, workers: Optional[int] = None,
     address instead, ``inline`` runs in this process. ``progress`` is called with a
     :class:`Progress` once before the first task and after every stored trial.
     """
-    store = Store.create_or_resume(spec, out_dir, new_campaign)
+    executor = make_executor(workers, scheduler, inline)  # first: a scheduler that is not there creates no store
     try:
-        executor = make_executor(workers, scheduler, inline)
+        store = Store.create_or_resume(spec, out_dir, new_campaign)
         try:
             return Coordinator(spec, store, executor, progress).run()
         finally:
-            executor.close()
+            store.close()
     finally:
-        store.close()
+        executor.close()
 
 
 class Coordinator:
