@@ -90,7 +90,7 @@ def run_campaign(spec: Spec, out_dir: str | Path, workers: Optional[int] = None,
 
 
 class Coordinator:
-    """Feeds an executor from the spec and writes its results (one instance per campaign run)."""
+    """Feeds an executor from the spec and writes its results; one Coordinator serves one run."""
 
     def __init__(self, spec: Spec, store: Store, executor, progress: Optional[Callable[[Progress], None]] = None):
         self.spec, self.store, self.executor, self.report = spec, store, executor, progress
