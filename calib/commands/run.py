@@ -3,42 +3,120 @@
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 
 
 def register(subparsers) -> None:
     parser = subparsers.add_parser(
         "run", help="run or resume the campaign of a sweep spec",
-        description="Run every trial of a TOML sweep spec that its store does not hold yet. Re-running the same "
-                    "spec resumes; a different spec under the same campaign name is refused.")
+        description="Run every trial of a TOML sweep spec (schema: docs/spec.md) that its store does not hold "
+                    "yet, on a local pool of worker processes (default), in this process, or on a Dask "
+                    "scheduler. Re-running the same spec resumes; a different spec under the same campaign "
+                    "name is refused unless --new-campaign is given.")
     parser.add_argument("spec", help="path to the TOML sweep spec (see instances/quickstart.toml)")
     parser.add_argument("--out", default="results", metavar="DIR",
                         help="output folder; the store is DIR/<campaign name>.sqlite (default: results)")
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=int, metavar="N",
+                       help="worker processes of the local pool, one solver thread each (default: the cores)")
+    where.add_argument("--scheduler", metavar="tcp://HOST:PORT",
+                       help="run on this existing Dask scheduler instead (see docs/distributed.md)")
+    where.add_argument("--in-process", action="store_true",
+                       help="run every task in this process, one after the other (debugging; "
+                            "trial_timeout_s is not enforced and a crash ends the run)")
+    parser.add_argument("--new-campaign", action="store_true",
+                        help="when the store of this campaign name holds a different spec, start a new store "
+                             "beside it (<name>-2.sqlite, ...) instead of refusing")
+    parser.add_argument("--dry-run", action="store_true",
+                        help="print the trial and instance counts and an estimate of the work, run nothing")
+    parser.add_argument("--no-probe", action="store_true",
+                        help="with --dry-run: skip the timing probe (counts only)")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
     parser.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.sweep.runner import run_campaign
+    from calib.errors import InputError
     from calib.sweep.spec import load_spec
 
+    if args.workers is not None and args.workers < 1:
+        raise InputError("--workers", f"must be at least 1, got {args.workers}", "e.g. --workers 2")
     spec = load_spec(args.spec)
-    bar = None
-    if not args.quiet:
-        from tqdm import tqdm
+    if args.dry_run:
+        print(dry_run(spec, args))
+        return 0
+    from calib.sweep.runner import run_campaign
 
-        bar = tqdm(unit="trial", file=sys.stderr, dynamic_ncols=True, desc=spec.name, mininterval=0.5)
-
-    def progress(done: int, total: int) -> None:
-        bar.total = total
-        bar.update(done - bar.n)
-
+    previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
+    bar = None if args.quiet else _ProgressBar(spec.name)
     try:
-        summary = run_campaign(spec, args.out, progress=progress if bar is not None else None)
+        summary = run_campaign(spec, args.out, workers=args.workers, scheduler=args.scheduler,
+                               inline=args.in_process, new_campaign=args.new_campaign,
+                               progress=bar.update if bar is not None else None)
     finally:
+        signal.signal(signal.SIGTERM, previous)
         if bar is not None:
             bar.close()
     print(f"store: {summary.store_path}")
-    print(f"trials: {summary.planned} planned, {summary.skipped} already stored, {summary.ran} run "
-          f"({summary.failed} failed) in {summary.seconds:.1f} s")
+    statuses = ", ".join(f"{count} {status}" for status, count in sorted(summary.statuses.items()) if status != "ok")
+    print(f"trials: {summary.planned} planned, {summary.skipped} already stored, {summary.ran} run"
+          f" ({statuses or 'none failed'}) in {summary.seconds:.1f} s on {summary.executor}")
+    if summary.lost:
+        print(f"warning: {summary.lost} trials were lost by the executor and not stored; run the same command again to retry them",
+              file=sys.stderr)
+        return 1
     return 0
+
+
+def _interrupt(signum, frame):
+    raise KeyboardInterrupt
+
+
+class _ProgressBar:
+    """tqdm bar over the trials to run, with rate, ETA and the count of failed trials."""
+
+    def __init__(self, name: str):
+        self.name = name
+        self.bar = None
+        self.failed = 0
+
+    def update(self, progress) -> None:
+        if self.bar is None:
+            if not progress.total:
+                return
+            from tqdm import tqdm
+
+            self.bar = tqdm(total=progress.total, unit="trial", file=sys.stderr, dynamic_ncols=True, desc=self.name,
+                            mininterval=0.5, smoothing=0.05)
+        self.bar.update(progress.done - self.bar.n)
+        if progress.failed != self.failed:
+            self.failed = progress.failed
+            self.bar.set_postfix(failed=self.failed, refresh=False)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.close()
+
+
+def dry_run(spec, args: argparse.Namespace) -> str:
+    """The --dry-run report (creates nothing)."""
+    from calib.sweep.estimate import probe_sizes, render_plan, size_plans
+    from calib.sweep.executors import default_workers
+    from calib.sweep.store import Store, locate
+
+    path, exists = locate(spec, args.out, args.new_campaign)
+    stored = 0
+    if exists:
+        store = Store.open_existing(path)
+        try:
+            stored = len(store.done_trial_ids())
+        finally:
+            store.close()
+    note = f"{path} ({'resumes: ' + str(stored) + ' trials stored' if exists else 'new'})"
+    plans = size_plans(spec)
+    probes = None if args.no_probe else probe_sizes(spec, plans)
+    workers = 1 if args.in_process else (args.workers or default_workers())
+    if args.scheduler:
+        note += "; the estimate below assumes local workers, divide the CPU time by your Dask threads"
+    return render_plan(spec, plans, probes, stored, note, workers)

@@ -1,26 +1,29 @@
 """Sweep specifications: TOML in, a validated :class:`Spec` out, expanded into trials.
 
-Layout (every key documented in README.md, section "Sweep specs")::
+The schema, every key with its type, default and range, is documented in ``docs/spec.md``.
+In short::
 
     [campaign]
     name = "quickstart"        # letters, digits, '-', '_'; names the store file
-    root_seed = 20261201       # one integer root seed for the whole campaign
+    root_seed = 20261201       # one integer root seed for the whole campaign (required)
     replicates = 10            # independent projector draws per (instance, projector, k)
 
     [[families]]               # one table per family
-    name = "lp-planted"        # a registered family (`calib families`)
+    name = "lp-planted"        # a registered family
     sizes = [{rows = 60, cols = 120}]
     instances = 3              # instances per size
     params = {support = 0.5}   # optional, non-size parameters
 
     [sweep]
-    projectors = ["gaussian", {name = "sparse-jl", s = 4}]
+    projectors = ["gaussian"]  # names, or tables {name = "...", option = value}
     k = [8, 16, 32]            # or {fractions = [0.1, 0.2]} of the projected dimension,
                                # or {eps = [0.5, 0.3], rule = "dasgupta-gupta"}
     retrievals = ["basis-lstsq"]
 
     [solver]
-    time_limit_s = 60          # per solve, seconds
+    time_limit_s = 60          # per solve, enforced by the solver itself
+    trial_timeout_s = 180      # per task, enforced from outside (the worker is killed)
+    highs = {presolve = "off"} # optional HiGHS options for every solve
 
 Validation collects every problem with its field path (``families[0].sizes[1].rows``) and the
 fix, and raises one :class:`SpecError` listing them all.
@@ -85,6 +88,13 @@ class FamilyCell:
 
 @dataclass
 class Spec:
+    """A validated sweep spec (see ``docs/spec.md``).
+
+    ``solver`` holds ``time_limit_s`` (seconds per solve), ``trial_timeout_s`` (seconds per task,
+    enforced from outside the solver) and optionally ``highs`` (extra HiGHS options). ``plugins``
+    lists the ``CALIB_PLUGINS`` modules the spec was validated with.
+    """
+
     name: str
     root_seed: int
     replicates: int
@@ -95,6 +105,7 @@ class Spec:
     solver: dict
     source: str = ""
     raw: dict = field(default_factory=dict, repr=False)
+    plugins: tuple = ()
 
     @property
     def fingerprint(self) -> str:
@@ -152,7 +163,9 @@ def load_spec(path: str | Path) -> Spec:
 def parse_spec(raw: dict, source: str = "spec") -> Spec:
     """Validate a spec dictionary (the parsed TOML) into a :class:`Spec`."""
     from calib import families as family_registry
+    from calib.sweep.plugins import load_from_env
 
+    plugins = load_from_env()
     errors = _Collector()
     errors.unknown_keys(raw, {"campaign", "families", "sweep", "solver"}, "spec")
     campaign = errors.table(raw, "campaign", "campaign")
@@ -177,14 +190,14 @@ def parse_spec(raw: dict, source: str = "spec") -> Spec:
         raise SpecError(source, errors.problems)
     return Spec(name=name, root_seed=root_seed, replicates=replicates, families=cells, projectors=projectors,
                 k_grid=k_grid, retrievals=retrievals, solver=solver, source=source,
-                raw=raw)
+                raw=raw, plugins=plugins)
 
 
 def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
     if not isinstance(value, list) or not value:
-        errors.add("families", "missing or empty", "add at least one [[families]] table")
+        errors.add("families", "missing, empty or not a list of tables", "add at least one [[families]] table")
         return []
-    cells, seen = [], set()
+    cells, seen = [], {}
     for index, table in enumerate(value):
         path = f"families[{index}]"
         if not isinstance(table, dict):
@@ -192,6 +205,9 @@ def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
             continue
         errors.unknown_keys(table, {"name", "sizes", "instances", "params"}, path)
         name = table.get("name")
+        if not isinstance(name, str):
+            errors.add(f"{path}.name", f"must be a family name (text), got {name!r}", f"choose one of {', '.join(sorted(registry.REGISTRY))}")
+            continue
         try:
             family = registry.get(name, f"{path}.name")
         except InputError as error:
@@ -213,13 +229,17 @@ def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
                 errors.add(size_path, "must be a table", "write {rows = 100, cols = 200}")
                 continue
             try:
-                resolved.append(family.resolve({**params, **size}, size_path))
+                full = family.resolve({**params, **size}, size_path)
             except InputError as error:
                 errors.add(error.where, error.problem, error.fix)
-        key = (name, canonical_json(resolved))
-        if key in seen:
-            errors.add(path, f"duplicate family entry {name!r} with the same sizes", "merge or remove the duplicate")
-        seen.add(key)
+                continue
+            key = (name, canonical_json(full))
+            if key in seen:
+                errors.add(size_path, f"duplicate of {seen[key]} (same family and parameters, so the same trials)",
+                           "list each size of a family once")
+                continue
+            seen[key] = size_path
+            resolved.append(full)
         if instances is not None:
             cells.append(FamilyCell(name=name, sizes=tuple(resolved), instances=instances))
     return cells
@@ -229,7 +249,7 @@ def _parse_projectors(value, errors: _Collector) -> list[ProjectorChoice]:
     from calib import projectors
 
     if not isinstance(value, list) or not value:
-        errors.add("sweep.projectors", "missing or empty", f"list some of {', '.join(projectors.names())}")
+        errors.add("sweep.projectors", f"must be a non-empty list, got {value!r}", f"list some of {', '.join(projectors.names())}")
         return []
     choices = []
     for index, entry in enumerate(value):
@@ -245,11 +265,30 @@ def _parse_projectors(value, errors: _Collector) -> list[ProjectorChoice]:
             errors.add(error.where, error.problem, error.fix)
             continue
         options = tuple(sorted((key, val) for key, val in entry.items() if key != "name"))
+        problem = _projector_problem(entry["name"], dict(options))
+        if problem:
+            errors.add(path, problem, "check the option names and values of this projector")
+            continue
         choice = ProjectorChoice(entry["name"], options)
         if choice in choices:
             errors.add(path, f"duplicate projector {choice.label!r}", "list each projector once")
         choices.append(choice)
     return choices
+
+
+def _projector_problem(name: str, options: dict) -> str:
+    """Why ``name`` with ``options`` cannot be drawn, or "" when it can.
+
+    Tried once on a small 16 x 64 shape, which every option value meant for real grids should
+    accept; projectors validate their own options at this public edge.
+    """
+    from calib import projectors
+
+    try:
+        projectors.make(name, 16, 64, seed=0, **options)
+    except (InputError, TypeError, ValueError) as error:
+        return f"projector {name!r} rejects options {options}: {error}"
+    return ""
 
 
 def _number_list(values, path: str, errors: _Collector, check, fix: str) -> tuple:
@@ -279,7 +318,7 @@ def _parse_k(value, errors: _Collector) -> KGrid:
             return KGrid("fractions", tuple(sorted(fr)))
         if "eps" in value and set(value) <= {"eps", "rule"}:
             rule = value.get("rule", "dasgupta-gupta")
-            if rule not in RULES:
+            if not isinstance(rule, str) or rule not in RULES:
                 errors.add("sweep.k.rule", f"unknown rule {rule!r}", f"choose one of {', '.join(sorted(RULES))}")
             eps = _number_list(value["eps"], "sweep.k.eps", errors, lambda v: 0 < v < 1, "eps values lie in (0, 1)")
             return KGrid("eps", tuple(sorted(eps, reverse=True)), rule)
@@ -296,26 +335,80 @@ def _parse_retrievals(value, kinds: set, errors: _Collector) -> list[str]:
     if value is None:
         return known[:1]
     if not isinstance(value, list) or not value:
-        errors.add("sweep.retrievals", "must be a non-empty list", f"choose from {', '.join(known)}")
+        errors.add("sweep.retrievals", f"must be a non-empty list, got {value!r}", f"choose from {', '.join(known)}")
         return []
-    for index, name in enumerate(value):
-        if name not in known:
-            errors.add(f"sweep.retrievals[{index}]", f"unknown retrieval {name!r}", f"choose from {', '.join(known)}")
+    bad = [index for index, name in enumerate(value) if not isinstance(name, str) or name not in known]
+    for index in bad:
+        errors.add(f"sweep.retrievals[{index}]", f"unknown retrieval {value[index]!r}", f"choose from {', '.join(known)}")
+    if bad:
+        return []
     if len(set(value)) != len(value):
         errors.add("sweep.retrievals", "has duplicates", "list each retrieval once")
     return list(value)
 
 
+def default_trial_timeout(time_limit_s: float) -> float:
+    """Default ``trial_timeout_s``: 2 * time_limit_s + 60 seconds.
+
+    A task runs at most one solve (the original, or the projected problem) plus building, sketching
+    and retrieval, so this only fires on a real hang.
+
+    >>> default_trial_timeout(60.0)
+    180.0
+    """
+    return 2.0 * time_limit_s + 60.0
+
+
+#: HiGHS options calib sets itself and a spec may not override
+_RESERVED_HIGHS = {"threads": "calib runs one solver thread per worker", "time_limit": "use time_limit_s",
+                   "solver": "the LP adapter needs simplex for its basis", "output_flag": "workers stay quiet"}
+
+
+def _seconds(table: dict, key: str, default, errors: _Collector) -> Optional[float]:
+    value = table.get(key, default)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not (0 < value < 1e6):
+        errors.add(f"solver.{key}", f"must be a positive number of seconds below 1e6, got {value!r}", f"e.g. {key} = 60")
+        return None
+    return float(value)
+
+
 def _parse_solver(value, errors: _Collector) -> dict:
     if not isinstance(value, dict):
         errors.add("solver", "must be a table", "write [solver] with time_limit_s = 60")
+        return {"time_limit_s": 60.0, "trial_timeout_s": default_trial_timeout(60.0)}
+    errors.unknown_keys(value, {"time_limit_s", "trial_timeout_s", "highs"}, "solver")
+    limit = _seconds(value, "time_limit_s", 60.0, errors) or 60.0
+    timeout = _seconds(value, "trial_timeout_s", default_trial_timeout(limit), errors)
+    solver = {"time_limit_s": limit, "trial_timeout_s": timeout or default_trial_timeout(limit)}
+    if "highs" in value:
+        highs = _parse_highs(value["highs"], errors)
+        if highs:
+            solver["highs"] = highs
+    return solver
+
+
+def _parse_highs(value, errors: _Collector) -> dict:
+    """Extra HiGHS options: a table of scalars, each accepted by HiGHS itself (checked here)."""
+    from calib.solvers.highs import new_highs
+
+    if not isinstance(value, dict):
+        errors.add("solver.highs", f"must be a table of HiGHS options, got {value!r}", 'e.g. highs = {presolve = "off"}')
         return {}
-    errors.unknown_keys(value, {"time_limit_s"}, "solver")
-    limit = value.get("time_limit_s", 60.0)
-    if isinstance(limit, bool) or not isinstance(limit, (int, float)) or not (0 < limit < 1e6):
-        errors.add("solver.time_limit_s", f"must be a positive number of seconds, got {limit!r}", "e.g. time_limit_s = 60")
-        limit = 60.0
-    return {"time_limit_s": float(limit)}
+    good = {}
+    for key, option in sorted(value.items()):
+        path = f"solver.highs.{key}"
+        if key in _RESERVED_HIGHS:
+            errors.add(path, f"is set by calib ({_RESERVED_HIGHS[key]})", "remove it")
+        elif isinstance(option, (dict, list)):
+            errors.add(path, f"must be a number, boolean or text, got {option!r}", "give one value")
+        else:
+            try:
+                new_highs({key: option})
+            except (ValueError, TypeError) as error:
+                errors.add(path, f"HiGHS rejects it: {error}", "see the HiGHS option list for names and types")
+                continue
+            good[key] = option
+    return good
 
 
 def _check_grid(cells, k_grid: KGrid, errors: _Collector, registry) -> None:

@@ -2,13 +2,19 @@
 
 WAL journal, one transaction per finished trial, trial rows append-only. Tables:
 
-- ``campaign`` (key, value): name, spec fingerprint and text, root seed, schema version.
-- ``environments`` (env_id, versions): package versions of each process that wrote rows.
+- ``campaign`` (key, value): name, spec fingerprint and text, root seed, schema version, store
+  format.
+- ``environments`` (env_id, versions): package versions of each process that produced rows.
 - ``instances``: one row per instance with its size and the cached original solve.
 - ``trials``: one row per (trial, retrieval) with identity, status, message, metrics (JSON),
-  seconds, stream key and environment.
+  seconds, stream key, root seed, solver options and environment.
 
-Re-opening with the same spec resumes; a different spec under the same campaign name is refused.
+Re-opening with the same spec resumes; a different spec under the same campaign name is refused
+unless a new campaign is asked for, which then lives beside it as ``<name>-2.sqlite``, ``-3``...
+
+Store formats (``campaign.store_format``): 1 (no key) had no ``root_seed`` and ``solver_options``
+trial columns; opening it for writing migrates it to 2 by adding them (old rows keep NULL there:
+their root seed is the last element of ``stream_key``, their solver options the spec's).
 """
 
 from __future__ import annotations
@@ -39,10 +45,16 @@ CREATE TABLE IF NOT EXISTS trials (
     trial_id TEXT NOT NULL, retrieval TEXT NOT NULL, instance_id TEXT NOT NULL,
     projector TEXT NOT NULL, projector_options TEXT NOT NULL, k INTEGER NOT NULL, k_label TEXT,
     replicate INTEGER NOT NULL, status TEXT NOT NULL, message TEXT, metrics TEXT,
-    seconds REAL, stream_key TEXT NOT NULL, env_id TEXT NOT NULL,
+    seconds REAL, stream_key TEXT NOT NULL, env_id TEXT NOT NULL, root_seed INTEGER, solver_options TEXT,
     PRIMARY KEY (trial_id, retrieval)
 );
 """
+
+#: the layout written by this code (see the module docstring for the history)
+STORE_FORMAT = 2
+
+#: columns added by each migration: format -> [(table, column, type)]
+_MIGRATIONS = {2: [("trials", "root_seed", "INTEGER"), ("trials", "solver_options", "TEXT")]}
 
 
 def environment() -> dict:
@@ -99,14 +111,13 @@ class Store:
         return cls(path, connection)
 
     @classmethod
-    def create_or_resume(cls, spec, out_dir: str | Path) -> "Store":
-        """The store of ``spec`` under ``out_dir`` (``<out>/<name>.sqlite``), created or resumed."""
-        out_dir = Path(out_dir)
+    def create_or_resume(cls, spec, out_dir: str | Path, new_campaign: bool = False) -> "Store":
+        """The store of ``spec`` under ``out_dir``, created or resumed (see :func:`locate`)."""
+        path, _ = locate(spec, out_dir, new_campaign)
         try:
-            out_dir.mkdir(parents=True, exist_ok=True)
+            path.parent.mkdir(parents=True, exist_ok=True)
         except OSError as error:
-            raise InputError(str(out_dir), f"cannot create the output folder: {error.strerror}", "choose a writable --out folder") from None
-        path = out_dir / f"{spec.name}.sqlite"
+            raise InputError(str(path.parent), f"cannot create the output folder: {error.strerror}", "choose a writable --out folder") from None
         try:
             connection = sqlite3.connect(path, isolation_level=None)
             connection.execute("PRAGMA journal_mode=WAL")
@@ -115,18 +126,37 @@ class Store:
         except sqlite3.DatabaseError as error:
             raise InputError(str(path), f"cannot open the store: {error}", "check the file is a calib store and the folder is writable") from None
         store = cls(path, connection)
+        store._migrate()
         store._claim(spec)
         return store
+
+    def _migrate(self) -> None:
+        meta = dict(self.db.execute("SELECT key, value FROM campaign").fetchall())
+        if not meta:
+            return
+        found = int(meta.get("store_format", 1))
+        if found > STORE_FORMAT:
+            raise InputError(str(self.path), f"written by a newer calib (store format {found}, this one reads {STORE_FORMAT})",
+                             "upgrade calib to resume this campaign")
+        with self.transaction():
+            for version in range(found + 1, STORE_FORMAT + 1):
+                for table, column, kind in _MIGRATIONS[version]:
+                    columns = {row[1] for row in self.db.execute(f"PRAGMA table_info({table})")}
+                    if column not in columns:
+                        self.db.execute(f"ALTER TABLE {table} ADD COLUMN {column} {kind}")
+            self.db.execute("INSERT OR REPLACE INTO campaign (key, value) VALUES ('store_format', ?)", (str(STORE_FORMAT),))
 
     def _claim(self, spec) -> None:
         existing = dict(self.db.execute("SELECT key, value FROM campaign").fetchall())
         if existing:
-            if existing.get("fingerprint") != spec.fingerprint:
+            if existing.get("fingerprint") != spec.fingerprint:  # locate() only picks matching stores
                 raise InputError(str(self.path), f"campaign {spec.name!r} already exists with a different spec",
-                                 "rename the campaign, choose another --out folder, or restore the original spec to resume")
+                                 "pass --new-campaign, rename the campaign, or restore the original spec to resume")
             return
-        values = {"name": spec.name, "fingerprint": spec.fingerprint, "spec": canonical_json(spec.raw),
-                  "root_seed": str(spec.root_seed), "schema_version": str(SCHEMA_VERSION)}
+        values = {"name": self.path.stem, "spec_name": spec.name, "fingerprint": spec.fingerprint,
+                  "spec": canonical_json(spec.raw), "root_seed": str(spec.root_seed),
+                  "schema_version": str(SCHEMA_VERSION), "store_format": str(STORE_FORMAT),
+                  "plugins": ",".join(spec.plugins)}
         with self.transaction():
             self.db.executemany("INSERT INTO campaign (key, value) VALUES (?, ?)", sorted(values.items()))
 
@@ -172,11 +202,70 @@ class Store:
         record["orig_x"] = blob_to_array(record["orig_x"])
         return record
 
+    def trial_records(self, trial_id: str) -> list[dict]:
+        """The stored rows of one trial (one per retrieval), oldest first."""
+        cursor = self.db.execute("SELECT * FROM trials WHERE trial_id = ? ORDER BY rowid", (trial_id,))
+        names = [d[0] for d in cursor.description]
+        return [dict(zip(names, row)) for row in cursor.fetchall()]
+
+    def matching_trial_ids(self, prefix: str, limit: int = 5) -> list[str]:
+        """Stored trial ids starting with ``prefix`` (at most ``limit``)."""
+        rows = self.db.execute("SELECT DISTINCT trial_id FROM trials WHERE trial_id >= ? AND trial_id < ? LIMIT ?",
+                               (prefix, prefix + "\uffff", limit))
+        return [row[0] for row in rows]
+
+    def environment_versions(self, env_id: str) -> dict:
+        row = self.db.execute("SELECT versions FROM environments WHERE env_id = ?", (env_id,)).fetchone()
+        return json.loads(row[0]) if row else {}
+
     def trial_count(self) -> int:
         return self.db.execute("SELECT COUNT(DISTINCT trial_id) FROM trials").fetchone()[0]
 
     def close(self) -> None:
         self.db.close()
+
+
+def store_path(out_dir: str | Path, name: str, number: int) -> Path:
+    """``<out>/<name>.sqlite`` for the first campaign of that name, ``<out>/<name>-<number>.sqlite`` after."""
+    return Path(out_dir) / (f"{name}.sqlite" if number == 1 else f"{name}-{number}.sqlite")
+
+
+def stored_fingerprint(path: Path) -> Optional[str]:
+    """The spec fingerprint of an existing store (None for an empty file)."""
+    try:
+        connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        try:
+            tables = {row[0] for row in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+            if "campaign" not in tables:
+                return None
+            row = connection.execute("SELECT value FROM campaign WHERE key = 'fingerprint'").fetchone()
+        finally:
+            connection.close()
+    except sqlite3.DatabaseError:
+        raise InputError(str(path), "not a calib store (unreadable SQLite)", "move the file away or choose another --out folder") from None
+    return row[0] if row else None
+
+
+def locate(spec, out_dir: str | Path, new_campaign: bool = False) -> tuple[Path, bool]:
+    """Where the store of ``spec`` lives and whether it exists already.
+
+    The store holding the same spec (``<name>.sqlite``, ``<name>-2.sqlite``, ...) is resumed. When
+    none does and ``<name>.sqlite`` holds another spec, this refuses unless ``new_campaign`` asks
+    for the next free ``<name>-N.sqlite``.
+    """
+    number = 1
+    while True:
+        path = store_path(out_dir, spec.name, number)
+        if not path.exists():
+            break
+        if stored_fingerprint(path) in (spec.fingerprint, None):
+            return path, True
+        number += 1
+    if number > 1 and not new_campaign:
+        first = store_path(out_dir, spec.name, 1)
+        raise InputError(str(first), f"campaign {spec.name!r} already exists there with a different spec",
+                         f"pass --new-campaign to start {path.name} beside it, rename the campaign, or restore the original spec to resume")
+    return path, False
 
 
 class _Transaction:

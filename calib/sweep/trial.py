@@ -12,6 +12,8 @@ from __future__ import annotations
 
 
 from dataclasses import dataclass
+from functools import cached_property
+from typing import Iterator
 
 from calib import SCHEMA_VERSION
 from calib.keys import stable_id, stable_key, stream
@@ -31,11 +33,11 @@ class InstanceRef:
     def identity(self) -> dict:
         return {"family": self.family, "params": self.params, "index": self.index}
 
-    @property
+    @cached_property
     def key(self) -> int:
         return stable_key(self.identity)
 
-    @property
+    @cached_property
     def instance_id(self) -> str:
         return stable_id({**self.identity, "root_seed": self.root_seed, "schema": SCHEMA_VERSION})
 
@@ -55,32 +57,52 @@ class Trial:
     replicate: int
     k_label: str = ""
 
-    @property
+    @cached_property
     def trial_id(self) -> str:
         return stable_id({"instance": self.instance.instance_id, "projector": self.projector.label,
                           "projector_options": dict(self.projector.options), "k": self.k,
                           "replicate": self.replicate})
 
+    @property
+    def stream_keys(self) -> list[int]:
+        """Entropy of the trial's stream: [instance_key, projector_key, k, replicate, root_seed]."""
+        return [self.instance.key, self.projector.key, self.k, self.replicate, self.instance.root_seed]
+
     def rng(self):
-        return stream(self.instance.key, self.projector.key, self.k, self.replicate, root_seed=self.instance.root_seed)
+        return stream(*self.stream_keys[:-1], root_seed=self.instance.root_seed)
 
 
-def expand(spec: Spec) -> list[tuple[InstanceRef, list[Trial]]]:
-    """All instances of the spec with their trials, in a deterministic order."""
+def instance_refs(spec: Spec) -> Iterator[tuple[InstanceRef, list[int], list[str]]]:
+    """Every instance of the spec with its k values and their labels, in a deterministic order."""
     from calib.families import get
 
-    out = []
     for cell in spec.families:
         family = get(cell.name)
         for params in cell.sizes:
             ks, labels = k_values(spec.k_grid, family, params)
             for index in range(cell.instances):
-                ref = InstanceRef(cell.name, params, index, spec.root_seed)
-                trials = [Trial(ref, choice, k, replicate, label)
-                          for choice in spec.projectors for k, label in zip(ks, labels)
-                          for replicate in range(spec.replicates)]
-                out.append((ref, trials))
-    return out
+                yield InstanceRef(cell.name, params, index, spec.root_seed), ks, labels
+
+
+def instance_trials(spec: Spec, ref: InstanceRef, ks: list[int], labels: list[str]) -> list[Trial]:
+    """The trials of one instance: projectors x k x replicates, in a deterministic order."""
+    return [Trial(ref, choice, k, replicate, label)
+            for choice in spec.projectors for k, label in zip(ks, labels)
+            for replicate in range(spec.replicates)]
+
+
+def expand(spec: Spec) -> list[tuple[InstanceRef, list[Trial]]]:
+    """All instances of the spec with their trials, in a deterministic order."""
+    return [(ref, instance_trials(spec, ref, ks, labels)) for ref, ks, labels in instance_refs(spec)]
+
+
+def count_trials(spec: Spec) -> tuple[int, int]:
+    """(instances, trials) of the spec without building any trial."""
+    instances = trials = 0
+    for _, ks, _ in instance_refs(spec):
+        instances += 1
+        trials += len(spec.projectors) * len(ks) * spec.replicates
+    return instances, trials
 
 
 def run_trial(trial: Trial, problem, kind: str, original, retrievals: list[str], solver: dict) -> list[dict]:

@@ -1,0 +1,141 @@
+"""``calib run SPEC --dry-run``: what a campaign will do and roughly how long it will take.
+
+The plan (instances and trials per family and size) comes from expanding the spec without running
+anything. The time estimate comes from a probe: for each size, one worker process builds the first
+instance, solves its original problem, and runs one trial at the smallest and one at the largest k
+of the grid (first projector, replicate 0). Work per size is then
+
+    instances * t_original + trials * (t_trial(k_min) + t_trial(k_max)) / 2,
+
+a linear interpolation in k that is rough by design; divide by the workers for the wall time.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Optional
+
+from calib.keys import canonical_json
+from calib.sweep.spec import Spec
+from calib.sweep.trial import InstanceRef, Trial, instance_refs
+
+
+@dataclass
+class SizePlan:
+    """The trials of one (family, size) cell of the spec."""
+
+    family: str
+    params: dict
+    instances: int
+    ks: list
+    labels: list
+    trials: int
+
+    @property
+    def label(self) -> str:
+        from calib.families import get
+
+        return f"{self.family} " + ",".join(f"{key}={self.params[key]}" for key in get(self.family).size_keys)
+
+
+def size_plans(spec: Spec) -> list[SizePlan]:
+    """One :class:`SizePlan` per (family, size) in spec order."""
+    plans: dict[str, SizePlan] = {}
+    per_instance = len(spec.projectors) * spec.replicates
+    for ref, ks, labels in instance_refs(spec):
+        key = f"{ref.family}|{canonical_json(ref.params)}"
+        if key not in plans:
+            plans[key] = SizePlan(ref.family, ref.params, 0, ks, labels, 0)
+        plans[key].instances += 1
+        plans[key].trials += per_instance * len(ks)
+    return list(plans.values())
+
+
+@dataclass
+class Probe:
+    """Measured wall seconds of one original solve and of trials at the smallest and largest k."""
+
+    original: Optional[float]
+    trial_low: Optional[float]
+    trial_high: Optional[float]
+    note: str = ""
+
+    def work(self, plan: SizePlan) -> Optional[float]:
+        if None in (self.original, self.trial_low, self.trial_high):
+            return None
+        return plan.instances * self.original + plan.trials * (self.trial_low + self.trial_high) / 2.0
+
+
+def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
+    """Time one original and two trials per size in a fresh worker process (with the time limit)."""
+    import time
+
+    from calib.sweep.sandbox import Sandbox
+    from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask
+
+    box = Sandbox()
+    box.wait_ready()
+    timeout = spec.solver["trial_timeout_s"]
+    probes = []
+
+    def timed(task):
+        nonlocal box
+        start = time.perf_counter()
+        result = box.run(task.token, task, timeout)
+        if isinstance(result, Failure):
+            box = box.renewed()
+            box.wait_ready()
+            return None, f"{result.status}: {result.message}"
+        return (time.perf_counter() - start, result), ""
+
+    try:
+        for plan in plans:
+            ref = InstanceRef(plan.family, plan.params, 0, spec.root_seed)
+            measured, note = timed(OriginalTask(ref, spec.solver, spec.plugins))
+            if measured is None:
+                probes.append(Probe(None, None, None, note))
+                continue
+            seconds, payload = measured
+            original = {name: payload["row"][name] for name in ORIGINAL_FIELDS}
+            trial_seconds = []
+            for k, label in ((plan.ks[0], plan.labels[0]), (plan.ks[-1], plan.labels[-1])):
+                trial = Trial(ref, spec.projectors[0], k, 0, label)
+                result, note = timed(TrialTask(trial, tuple(spec.retrievals), spec.solver, original, spec.plugins))
+                trial_seconds.append(None if result is None else result[0])
+            probes.append(Probe(seconds, trial_seconds[0], trial_seconds[1], note))
+    finally:
+        box.close()
+    return probes
+
+
+def _k_range(ks: list) -> str:
+    return f"k={ks[0]}" if len(ks) == 1 else f"{len(ks)} k in {ks[0]}..{ks[-1]}"
+
+
+def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]], stored: int, store_note: str,
+                workers: int) -> str:
+    """The dry-run report: counts per size, the probe times and the work estimate."""
+    instances = sum(plan.instances for plan in plans)
+    trials = sum(plan.trials for plan in plans)
+    lines = [f"campaign {spec.name}: {instances} instances, {trials} trials "
+             f"({trials * len(spec.retrievals)} stored rows: {len(spec.retrievals)} retrieval(s) per trial)",
+             f"store: {store_note}"]
+    for plan in plans:
+        lines.append(f"  {plan.label}: {plan.instances} instances x {len(spec.projectors)} projector(s) x "
+                     f"{_k_range(plan.ks)} x {spec.replicates} replicate(s) = {plan.trials} trials")
+    if probes is None:
+        lines.append("estimate: not measured (--no-probe)")
+        return "\n".join(lines)
+    lines.append("probe (wall seconds in one worker: original solve; trial at the smallest / largest k):")
+    total = 0.0
+    for plan, probe in zip(plans, probes):
+        if probe.work(plan) is None:
+            lines.append(f"  {plan.label}: probe failed ({probe.note})")
+            total = float("nan")
+            continue
+        lines.append(f"  {plan.label}: original {probe.original:.3f} s; trial {probe.trial_low:.3f} / {probe.trial_high:.3f} s")
+        total += probe.work(plan)
+    remaining = total * (trials - stored) / trials if trials else 0.0
+    lines.append(f"work: about {remaining:.1f} CPU-seconds for the {trials - stored} trials left; "
+                 f"about {remaining / max(1, workers):.1f} s of wall time on {workers} worker(s)")
+    return "\n".join(lines)

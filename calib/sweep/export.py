@@ -1,0 +1,40 @@
+"""Tidy export of a store: one row per (trial, retrieval), metrics expanded into columns.
+
+Builds on :func:`calib.analysis.tables.load_rows` (the same frame the safe-k tables are computed
+from) and adds the package versions of the environment that produced each row.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Optional
+
+import pandas as pd
+
+from calib.errors import InputError
+from calib.sweep.store import Store
+
+
+def export_frame(store: Store) -> pd.DataFrame:
+    """The rows of ``store`` in trial-id order, with an ``env_versions`` JSON column."""
+    from calib.analysis.tables import load_rows
+
+    rows = load_rows(store)
+    versions = dict(store.db.execute("SELECT env_id, versions FROM environments").fetchall())
+    rows["env_versions"] = rows["env_id"].map(versions)
+    return rows
+
+
+def write_export(frame: pd.DataFrame, csv_path: Optional[Path] = None, parquet_path: Optional[Path] = None) -> None:
+    """Write CSV (``\\n`` line ends, no index) and/or Parquet (pyarrow)."""
+    for path in (csv_path, parquet_path):
+        if path is not None:
+            Path(path).parent.mkdir(parents=True, exist_ok=True)
+    if csv_path is not None:
+        frame.to_csv(csv_path, index=False, lineterminator="\n")
+    if parquet_path is not None:
+        try:
+            import pyarrow  # noqa: F401
+        except ImportError:
+            raise InputError("--parquet", "pyarrow is not installed", "install it with `pip install 'calib[parquet]'` or use --csv") from None
+        frame.to_parquet(parquet_path, index=False)

@@ -1,0 +1,176 @@
+"""The work a worker does: solve the original problem of an instance, or run one trial.
+
+Every executor (in-process, local process pool, Dask) ships the same picklable task objects to
+:func:`execute` and gets back plain dictionaries; only the coordinating process turns them into
+store rows. A task is a pure function of its fields: the instance is rebuilt from its identity and
+its own random stream, the trial draws from its own stream, so running a task twice (a retry, a
+re-run, another machine) gives the same numbers.
+
+Workers keep the last few built instances (:data:`INSTANCE_CACHE_SIZE`) so the trials of one
+instance do not rebuild it; the original solve travels with each trial task, taken from the store,
+so a fresh campaign and a resumed one use byte-identical originals.
+"""
+
+from __future__ import annotations
+
+import functools
+import time
+import traceback
+from collections import OrderedDict
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Optional, Union
+
+from calib.sweep.trial import InstanceRef, Trial
+
+#: built instances kept per worker process (most recently used)
+INSTANCE_CACHE_SIZE = 4
+
+#: statuses of a trial row: ran to the end, raised, exceeded trial_timeout_s, or killed its worker
+TRIAL_STATUSES = ("ok", "error", "timeout", "crashed")
+
+#: the instance-row fields that describe the original solve
+ORIGINAL_FIELDS = ("orig_status", "orig_code", "orig_message", "orig_objective", "orig_seconds",
+                   "orig_iterations", "solver_options", "orig_x")
+
+_instances: "OrderedDict[str, object]" = OrderedDict()
+
+
+@dataclass(frozen=True)
+class OriginalTask:
+    """Build an instance and solve its original problem (once per instance and campaign)."""
+
+    instance: InstanceRef
+    solver: dict
+    plugins: tuple = ()
+
+    @property
+    def token(self) -> str:
+        return f"original-{self.instance.instance_id}"
+
+
+@dataclass(frozen=True)
+class TrialTask:
+    """Run one trial against the stored original solve of its instance.
+
+    ``original`` holds the :data:`ORIGINAL_FIELDS` of the instance row (``orig_x`` as an array).
+    """
+
+    trial: Trial
+    retrievals: tuple
+    solver: dict
+    original: dict
+    plugins: tuple = ()
+
+    @property
+    def token(self) -> str:
+        return f"trial-{self.trial.trial_id}"
+
+
+Task = Union[OriginalTask, TrialTask]
+
+
+@dataclass(frozen=True)
+class Failure:
+    """A task that produced no result: "timeout", "crashed", "error" (raised outside the trial
+    code) or "lost" (the executor gave up on it: nothing is stored and a re-run retries it)."""
+
+    status: str
+    message: str
+    seconds: float = 0.0
+
+
+def execute(task: Task) -> dict:
+    """Run ``task`` in this process and return its result payload (a plain dict).
+
+    Exceptions inside the trial become an "error" outcome; the payload also carries the worker's
+    package versions (``env``) so every row records the environment that produced it.
+    """
+    from calib.sweep.plugins import load
+
+    load(task.plugins)
+    if isinstance(task, OriginalTask):
+        return {"row": solve_original(task), "env": worker_environment()}
+    start = time.perf_counter()
+    outcomes = trial_outcomes(task)
+    return {"outcomes": outcomes, "seconds": time.perf_counter() - start, "env": worker_environment()}
+
+
+@functools.cache
+def worker_environment() -> dict:
+    from calib.sweep.store import environment
+
+    return environment()
+
+
+def built_instance(ref: InstanceRef):
+    """The instance of ``ref``, from this worker's small cache or freshly built."""
+    instance = _instances.pop(ref.instance_id, None)
+    if instance is None:
+        instance = ref.build()
+    _instances[ref.instance_id] = instance
+    while len(_instances) > INSTANCE_CACHE_SIZE:
+        _instances.popitem(last=False)
+    return instance
+
+
+def describe_exception(error: BaseException) -> str:
+    """``Type: text (at file.py:line)`` of the innermost frame, on one line."""
+    frames = traceback.extract_tb(error.__traceback__)
+    where = f" (at {Path(frames[-1].filename).name}:{frames[-1].lineno})" if frames else ""
+    return f"{type(error).__name__}: {error}{where}".replace("\n", " ")
+
+
+def solve_original(task: OriginalTask) -> dict:
+    """Instance-row fields of the original solve (``orig_*``, ``solver_options``, ``build_seconds``)."""
+    from calib.keys import canonical_json
+    from calib.reduce import HANDLERS
+
+    start = time.perf_counter()
+    try:
+        instance = built_instance(task.instance)
+        build_seconds = time.perf_counter() - start
+        original = HANDLERS[instance.kind].solve_original(instance.problem, task.solver)
+    except Exception as error:  # a failed build or solve is recorded, the campaign goes on
+        return failed_original("error", describe_exception(error), time.perf_counter() - start)
+    return {"orig_status": original.status, "orig_code": original.solver_code, "orig_message": original.solver_message,
+            "orig_objective": original.objective if original.ok else None, "orig_seconds": original.seconds,
+            "orig_iterations": original.iterations, "solver_options": canonical_json(original.options),
+            "orig_x": original.x, "build_seconds": build_seconds}
+
+
+def failed_original(status: str, message: str, seconds: float) -> dict:
+    """Instance-row fields for an original solve that produced nothing (status from the solver
+    vocabulary: "error" for an exception or a crash, "time_limit" for an external timeout)."""
+    return {"orig_status": status, "orig_code": None, "orig_message": message, "orig_objective": None,
+            "orig_seconds": seconds, "orig_iterations": 0, "solver_options": "{}", "orig_x": None,
+            "build_seconds": None}
+
+
+def original_result(fields: dict):
+    """The original solve as a :class:`~calib.solvers.result.SolveResult`, from stored fields."""
+    import json
+
+    from calib.solvers.result import SolveResult
+
+    objective = fields["orig_objective"]
+    return SolveResult(status=fields["orig_status"], solver="cached", solver_code=fields["orig_code"],
+                       solver_message=fields["orig_message"] or "",
+                       objective=float("nan") if objective is None else objective,
+                       x=fields["orig_x"], iterations=fields["orig_iterations"] or 0,
+                       seconds=fields["orig_seconds"] or 0.0, options=json.loads(fields["solver_options"] or "{}"))
+
+
+def trial_outcomes(task: TrialTask) -> list[tuple[str, Optional[str], Optional[str]]]:
+    """(status, message, metrics JSON) per retrieval; an exception gives "error" for each."""
+    import json
+
+    from calib.sweep.trial import run_trial
+
+    try:
+        instance = built_instance(task.trial.instance)
+        records = run_trial(task.trial, instance.problem, instance.kind, original_result(task.original),
+                            list(task.retrievals), task.solver)
+        return [("ok", "", json.dumps(record, sort_keys=True, allow_nan=False)) for record in records]
+    except Exception as error:  # one trial's failure must not stop the campaign
+        return [("error", describe_exception(error), None)] * len(task.retrievals)
