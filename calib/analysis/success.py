@@ -61,7 +61,7 @@ class Predicate:
     def checks(self, kind: str) -> list[str]:
         """Tolerance names checked on rows of ``kind`` (metrics the kind does not fill are skipped)."""
         return [key for key, column in TOLERANCE_METRICS.items()
-                if getattr(self, key) is not None and kind in FIELDS[column][2].split()]
+                if getattr(self, key) is not None and kind in FIELDS[column].classes.split()]
 
     def covers(self, kind: str) -> bool:
         """Whether the predicate decides anything on rows of ``kind``."""
@@ -155,7 +155,7 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
         tolerance = getattr(predicate, key)
         if tolerance is None:
             continue
-        kinds = FIELDS[column][2].split()
+        kinds = FIELDS[column].classes.split()
         applies = rows["kind"].isin(kinds)
         if column != "distortion_max":
             applies &= orig_feasible  # objective metrics exist only when the original has an optimum

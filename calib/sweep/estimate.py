@@ -15,7 +15,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Optional
 
+from calib.families import get as get_family
 from calib.keys import canonical_json
+from calib.sweep.runner import retrieval_names
 from calib.sweep.spec import Spec
 from calib.sweep.trial import InstanceRef, Trial, instance_refs
 
@@ -100,7 +102,8 @@ def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
             trial_seconds = []
             for k, label in ((plan.ks[0], plan.labels[0]), (plan.ks[-1], plan.labels[-1])):
                 trial = Trial(ref, spec.projectors[0], k, 0, label)
-                result, note = timed(TrialTask(trial, tuple(spec.retrievals), spec.solver, original, spec.plugins))
+                retrievals = tuple(retrieval_names(get_family(ref.family).kind, spec.retrievals))
+                result, note = timed(TrialTask(trial, retrievals, spec.solver, original, spec.plugins))
                 trial_seconds.append(None if result is None else result[0])
             probes.append(Probe(seconds, trial_seconds[0], trial_seconds[1], note))
     finally:

@@ -26,7 +26,7 @@ from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask
 from calib.sweep.trial import InstanceRef, Trial
 
 #: metric fields that measure time: shown side by side, never compared
-TIMING_FIELDS = tuple(name for name, (_, unit, _) in FIELDS.items() if unit == "s")
+TIMING_FIELDS = tuple(name for name, field in FIELDS.items() if field.units == "s")
 
 
 @dataclass

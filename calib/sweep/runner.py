@@ -155,7 +155,7 @@ class Coordinator:
 
     def _queue_trials(self, trials: list[Trial], stored_row: dict) -> None:
         original = {name: stored_row[name] for name in ORIGINAL_FIELDS}
-        retrievals = tuple(self.spec.retrievals)
+        retrievals = tuple(retrieval_names(stored_row["kind"], self.spec.retrievals))
         self._ready.extend(TrialTask(trial, retrievals, self.spec.solver, original, self.spec.plugins) for trial in trials)
 
     # ----- results -------------------------------------------------------------------------
@@ -213,6 +213,13 @@ class Coordinator:
     def _notify(self) -> None:
         if self.report is not None:
             self.report(self.progress)
+
+
+def retrieval_names(kind: str, requested) -> list[str]:
+    """The retrievals a trial of this kind runs (see :func:`calib.reduce.retrieval_names`)."""
+    from calib.reduce import retrieval_names as select
+
+    return select(kind, list(requested))
 
 
 def identity_row(ref: InstanceRef) -> dict:

@@ -332,8 +332,8 @@ def _parse_retrievals(value, kinds: set, errors: _Collector) -> list[str]:
     known = sorted({name for kind in kinds if kind in HANDLERS for name in HANDLERS[kind].retrievals})
     for kind in sorted(kinds - set(HANDLERS)):
         errors.add("families", f"no reduction for problem kind {kind!r} yet", "remove those families from this spec")
-    if value is None:
-        return known[:1]
+    if value is None:  # each kind's default retrieval
+        return sorted({HANDLERS[kind].default_retrieval for kind in kinds if kind in HANDLERS})
     if not isinstance(value, list) or not value:
         errors.add("sweep.retrievals", f"must be a non-empty list, got {value!r}", f"choose from {', '.join(known)}")
         return []
