@@ -23,6 +23,7 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 
@@ -40,7 +41,7 @@ def _pairs(n):
     return n * (n - 1.0) / 2.0
 
 
-def dasgupta_gupta(n, eps):
+def dasgupta_gupta(n: ArrayLike, eps: ArrayLike) -> np.ndarray:
     """Dasgupta–Gupta: k >= 4 ln n / (eps²/2 - eps³/3), rounded up.
 
     With that k a Gaussian projection keeps all pairs within 1 ± eps with probability at least 1/n.
@@ -59,7 +60,7 @@ def dasgupta_gupta(n, eps):
     return achlioptas(n, eps, beta=0.0)
 
 
-def dasgupta_gupta_eps(n, k):
+def dasgupta_gupta_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
     """Smallest eps with ``dasgupta_gupta(n, eps) <= k`` (NaN if none below 1).
 
     >>> round(float(dasgupta_gupta_eps(1000, 5921)), 4)
@@ -68,7 +69,7 @@ def dasgupta_gupta_eps(n, k):
     return _smallest_eps(lambda eps: dasgupta_gupta(n, eps) <= k, n, k)
 
 
-def achlioptas(n, eps, beta=1.0):
+def achlioptas(n: ArrayLike, eps: ArrayLike, beta: float = 1.0) -> np.ndarray:
     """Achlioptas: k >= (4 + 2 beta) ln n / (eps²/2 - eps³/3), rounded up.
 
     With that k, Gaussian, ±1 and sqrt(3)·{+1, 0, -1} projections keep all pairs within 1 ± eps
@@ -85,7 +86,7 @@ def achlioptas(n, eps, beta=1.0):
     return np.ceil((4.0 + 2.0 * beta) * np.log(n) / _cubic(eps)).astype(np.int64)
 
 
-def achlioptas_eps(n, k, beta=1.0):
+def achlioptas_eps(n: ArrayLike, k: ArrayLike, beta: float = 1.0) -> np.ndarray:
     """Smallest eps with ``achlioptas(n, eps, beta) <= k`` (NaN if none below 1).
 
     >>> round(float(achlioptas_eps(1000, 8882)), 4)
@@ -94,7 +95,7 @@ def achlioptas_eps(n, k, beta=1.0):
     return _smallest_eps(lambda eps: achlioptas(n, eps, beta) <= k, n, k)
 
 
-def beta_for_failure(n, failure):
+def beta_for_failure(n: ArrayLike, failure: ArrayLike) -> np.ndarray:
     """Achlioptas' beta that makes his failure probability n^(-beta) equal ``failure``.
 
     >>> round(float(beta_for_failure(1000, 0.001)), 12)
@@ -103,7 +104,7 @@ def beta_for_failure(n, failure):
     return np.log(1.0 / np.asarray(failure, dtype=float)) / np.log(np.asarray(n, dtype=float))
 
 
-def frankl_maehara(n, eps):
+def frankl_maehara(n: ArrayLike, eps: ArrayLike) -> np.ndarray:
     """Frankl–Maehara: k = ceil(9 ln n / (eps² - 2 eps³/3)) + 1.
 
     Reference: P. Frankl and H. Maehara, "The Johnson–Lindenstrauss lemma and the sphericity of
@@ -117,7 +118,7 @@ def frankl_maehara(n, eps):
     return (np.ceil(9.0 * np.log(n) / (eps**2 - 2.0 * eps**3 / 3.0)) + 1).astype(np.int64)
 
 
-def frankl_maehara_eps(n, k):
+def frankl_maehara_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
     """Smallest eps with ``frankl_maehara(n, eps) <= k`` (NaN if none below 1).
 
     >>> round(float(frankl_maehara_eps(1000, 6663)), 4)
@@ -126,7 +127,7 @@ def frankl_maehara_eps(n, k):
     return _smallest_eps(lambda eps: frankl_maehara(n, eps) <= k, n, k)
 
 
-def pair_failure(k, eps):
+def pair_failure(k: ArrayLike, eps: ArrayLike) -> np.ndarray:
     """Probability that one pair leaves 1 ± eps under a Gaussian T with N(0, 1/k) entries.
 
     k·|Tx|²/|x|² follows chi-square with k degrees of freedom (Dasgupta & Gupta 2003, Lemma 2.2's
@@ -141,7 +142,7 @@ def pair_failure(k, eps):
     return chi2.cdf(k * (1.0 - eps), k) + chi2.sf(k * (1.0 + eps), k)
 
 
-def chi2_union(n, eps, failure=DEFAULT_FAILURE):
+def chi2_union(n: ArrayLike, eps: ArrayLike, failure: ArrayLike = DEFAULT_FAILURE) -> np.ndarray:
     """Gaussian bound aware of the failure probability: the smallest k with
     n(n-1)/2 · pair_failure(k, eps) <= failure.
 
@@ -167,7 +168,7 @@ def chi2_union(n, eps, failure=DEFAULT_FAILURE):
     return high[()] if high.ndim == 0 else high
 
 
-def chi2_union_eps(n, k, failure=DEFAULT_FAILURE):
+def chi2_union_eps(n: ArrayLike, k: ArrayLike, failure: ArrayLike = DEFAULT_FAILURE) -> np.ndarray:
     """Smallest eps with n(n-1)/2 · pair_failure(k, eps) <= failure (NaN if none below 1).
 
     >>> round(float(chi2_union_eps(1000, 5806)), 4)
@@ -177,7 +178,7 @@ def chi2_union_eps(n, k, failure=DEFAULT_FAILURE):
                          n, k, failure)
 
 
-def ln_over_eps2(n, eps):
+def ln_over_eps2(n: ArrayLike, eps: ArrayLike) -> np.ndarray:
     """Common-practice rule of thumb k = ln(n) / eps², rounded up (no published constant).
 
     >>> int(ln_over_eps2(1000, 0.1))
@@ -187,7 +188,7 @@ def ln_over_eps2(n, eps):
     return np.ceil(np.log(n) / eps**2).astype(np.int64)
 
 
-def ln_over_eps2_eps(n, k):
+def ln_over_eps2_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
     """Smallest eps with ``ln_over_eps2(n, eps) <= k``, about sqrt(ln n / k) (NaN if >= 1).
 
     >>> round(float(ln_over_eps2_eps(1000, 691)), 4)
@@ -264,28 +265,28 @@ def check_rule(rule: str) -> Bound:
     return BOUNDS[rule]
 
 
-def check_points(n) -> int:
+def check_points(n: object) -> int:
     """``n`` as an int if it counts at least 2 points, else :class:`InputError`."""
     if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 2:
         raise InputError("n", f"needs at least 2 points, got {n!r}", "count the points the projection must keep")
     return int(n)
 
 
-def check_eps(eps) -> float:
+def check_eps(eps: object) -> float:
     """``eps`` as a float if it lies in (0, 1), else :class:`InputError`."""
     if isinstance(eps, bool) or not isinstance(eps, (int, float, np.floating)) or not 0.0 < float(eps) < 1.0:
         raise InputError("eps", f"must lie in (0, 1), got {eps!r}", "pick a distortion such as 0.2")
     return float(eps)
 
 
-def check_k(k) -> int:
+def check_k(k: object) -> int:
     """``k`` as an int if it is a positive integer, else :class:`InputError`."""
     if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
         raise InputError("k", f"must be a positive integer, got {k!r}", "use k >= 1")
     return int(k)
 
 
-def check_failure(failure) -> float:
+def check_failure(failure: object) -> float:
     """``failure`` as a float if it lies in (0, 1), else :class:`InputError`."""
     if isinstance(failure, bool) or not isinstance(failure, (int, float, np.floating)) \
             or not 0.0 < float(failure) < 1.0:

@@ -27,7 +27,8 @@ from calib.projectors.very_sparse import VerySparseProjector
 
 SeedLike = Union[int, Sequence[int], np.random.Generator]
 
-#: name -> projector class. Add a family by implementing ``_draw``/``_apply`` and listing it here.
+#: name -> projector class. Add a family by implementing ``_draw``, ``_apply`` and ``matrix`` (or
+#: subclassing a family that has them) and listing it here.
 REGISTRY: dict[str, type[Projector]] = {
     cls.name: cls
     for cls in (GaussianProjector, AchlioptasProjector, VerySparseProjector, SRHTProjector,

@@ -1,13 +1,14 @@
 """Drawing sparse random sign matrices (construction only; applying them is in :mod:`kernels`).
 
-Two constructions, both returning a k x m ``scipy.sparse.csr_array`` whose nonzeros are
-``±scale`` with independent fair signs:
+Two constructions of a k x m sparse matrix whose nonzeros are ``±scale`` with independent fair
+signs:
 
-* :func:`bernoulli_signs` — every entry independently nonzero with probability ``density``
-  (Achlioptas 2003; Li, Hastie & Church 2006). Drawn in O(nnz) time by jumping from one nonzero
-  to the next with geometric gaps, never touching the k·m zeros.
-* :func:`column_signs` — exactly ``s`` nonzeros per column in distinct rows chosen uniformly
-  (sparse JL; CountSketch when s = 1), drawn by Floyd's subset sampling, vectorised over columns.
+* :func:`bernoulli_signs` (CSR) — every entry independently nonzero with probability
+  ``density`` (Achlioptas 2003; Li, Hastie & Church 2006). Drawn in O(nnz) time by jumping from
+  one nonzero to the next with geometric gaps, never touching the k·m zeros.
+* :func:`column_signs` (CSC) — exactly ``s`` nonzeros per column in distinct rows chosen
+  uniformly (sparse JL; CountSketch when s = 1), drawn by Floyd's subset sampling, vectorised
+  over columns.
 """
 
 from __future__ import annotations
@@ -60,7 +61,7 @@ def bernoulli_signs(k: int, m: int, density: float, scale: float, rng: np.random
     np.cumsum(np.concatenate(counts), out=indptr[1:])
     cols = np.concatenate(columns)
     data = random_signs(cols.size, rng) * scale
-    return _csr(data, cols, indptr, (k, m))
+    return _compressed(sp.csr_array, data, cols, indptr, (k, m))
 
 
 def distinct_rows(k: int, m: int, s: int, rng: np.random.Generator) -> np.ndarray:
@@ -78,15 +79,17 @@ def distinct_rows(k: int, m: int, s: int, rng: np.random.Generator) -> np.ndarra
     return chosen
 
 
-def column_signs(k: int, m: int, s: int, scale: float, rng: np.random.Generator) -> sp.csr_array:
-    """k x m matrix with exactly s nonzeros ±scale per column, in s distinct uniform rows."""
+def column_signs(k: int, m: int, s: int, scale: float, rng: np.random.Generator) -> sp.csc_array:
+    """k x m matrix (CSC) with exactly s nonzeros ±scale per column, in s distinct uniform rows,
+    sorted within each column."""
     rows = np.sort(distinct_rows(k, m, s, rng), axis=1)
     data = random_signs(m * s, rng) * scale
     indptr = np.arange(0, m * s + 1, s, dtype=np.int64)
-    return sp.csc_array((data, rows.ravel(), indptr), shape=(k, m)).tocsr()
+    return _compressed(sp.csc_array, data, rows.ravel(), indptr, (k, m))
 
 
-def _csr(data: np.ndarray, indices: np.ndarray, indptr: np.ndarray, shape: tuple[int, int]) -> sp.csr_array:
-    """csr_array with the smallest index dtype that fits (int32 keeps scipy's kernels copy-free)."""
-    index_dtype = np.int32 if max(shape[1], indices.size) < 2**31 else np.int64
-    return sp.csr_array((data, indices.astype(index_dtype), indptr.astype(index_dtype)), shape=shape)
+def _compressed(kind, data: np.ndarray, indices: np.ndarray, indptr: np.ndarray, shape: tuple[int, int]):
+    """CSR or CSC array with the smallest index dtype that fits (int32 keeps scipy's kernels
+    copy-free)."""
+    index_dtype = np.int32 if max(max(shape), indices.size) < 2**31 else np.int64
+    return kind((data, indices.astype(index_dtype, copy=False), indptr.astype(index_dtype, copy=False)), shape=shape)

@@ -29,7 +29,7 @@ from calib.projectors.construct import random_signs
 from calib.projectors.hadamard import HadamardPlan, next_power_of_two
 
 #: Dense workspace for one block of columns of a sparse input, in bytes.
-SPARSE_BLOCK_BYTES = 1 << 25
+SPARSE_BLOCK_BYTES = 1 << 23
 
 
 class SRHTProjector(Projector):
