@@ -3,39 +3,183 @@
 ``n`` is the number of points whose pairwise geometry the projection must keep. For an LP whose
 rows are projected, the points are the n columns of A and the right-hand side b, so n_points =
 n_cols + 1 (the choice made throughout calib; see :func:`lp_points`). ``eps`` is the relative
-distortion of squared norms, 0 < eps < 1.
+distortion of squared distances, 0 < eps < 1: (1 - eps)·|u - v|² <= |Tu - Tv|² <= (1 + eps)·|u - v|².
 
-Every rule maps (n, eps) -> k (the smallest integer k the bound allows, rounded up) and is listed in
-:data:`RULES` by name.
+Every bound is computable both ways and vectorised over numpy arrays (broadcasting ``n`` against
+``eps`` or ``k``):
+
+* ``<bound>(n, eps)`` — the smallest integer k the bound allows (rounded up);
+* ``<bound>_eps(n, k)`` — the smallest eps the bound guarantees with k dimensions, NaN when no
+  eps < 1 is guaranteed. It is found by bisection on the integer-valued k-function itself, so
+  ``<bound>(n, <bound>_eps(n, k)) <= k`` holds exactly.
+
+:data:`BOUNDS` lists them by name; :data:`RULES` maps a name to its (n, eps) -> k function with the
+default parameters.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 
+#: Total failure probability used by :func:`chi2_union` when none is given (our default).
+DEFAULT_FAILURE = 0.05
+_BISECTION_STEPS = 100
 
-def dasgupta_gupta(n, eps):
-    """Dasgupta–Gupta: k >= 4 ln n / (eps^2/2 - eps^3/3), rounded up.
 
+def _cubic(eps):
+    """eps²/2 - eps³/3, the exponent of the per-pair tail in the Dasgupta–Gupta proof."""
+    return eps**2 / 2.0 - eps**3 / 3.0
+
+
+def _pairs(n):
+    return n * (n - 1.0) / 2.0
+
+
+def dasgupta_gupta(n: ArrayLike, eps: ArrayLike) -> np.ndarray:
+    """Dasgupta–Gupta: k >= 4 ln n / (eps²/2 - eps³/3), rounded up.
+
+    With that k a Gaussian projection keeps all pairs within 1 ± eps with probability at least 1/n.
     Reference: S. Dasgupta and A. Gupta, "An elementary proof of a theorem of Johnson and
     Lindenstrauss", Random Structures & Algorithms 22(1):60–65, 2003 (Theorem 2.1).
-    scikit-learn's johnson_lindenstrauss_min_dim truncates the same quotient (5920 and 221 here).
+    scikit-learn's ``johnson_lindenstrauss_min_dim`` uses the same formula but truncates with
+    ``int()``; we round up, so we can be one larger.
 
     >>> int(dasgupta_gupta(1000, 0.1))
     5921
     >>> int(dasgupta_gupta(100, 0.5))
     222
+    >>> dasgupta_gupta(np.array([10, 1000]), 0.25).tolist()
+    [354, 1062]
+    """
+    return achlioptas(n, eps, beta=0.0)
+
+
+def dasgupta_gupta_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
+    """Smallest eps with ``dasgupta_gupta(n, eps) <= k`` (NaN if none below 1).
+
+    >>> round(float(dasgupta_gupta_eps(1000, 5921)), 4)
+    0.1
+    """
+    return _smallest_eps(lambda eps: dasgupta_gupta(n, eps) <= k, n, k)
+
+
+def achlioptas(n: ArrayLike, eps: ArrayLike, beta: float = 1.0) -> np.ndarray:
+    """Achlioptas: k >= (4 + 2 beta) ln n / (eps²/2 - eps³/3), rounded up.
+
+    With that k, Gaussian, ±1 and sqrt(3)·{+1, 0, -1} projections keep all pairs within 1 ± eps
+    with probability at least 1 - n^(-beta). beta = 0 gives Dasgupta–Gupta's constant.
+    Reference: D. Achlioptas, "Database-friendly random projections: Johnson–Lindenstrauss with
+    binary coins", J. Computer and System Sciences 66(4):671–687, 2003 (Theorem 1.1).
+
+    >>> int(achlioptas(1000, 0.1))
+    8882
+    >>> int(achlioptas(1000, 0.1, beta=2.0))
+    11842
     """
     n, eps = np.asarray(n, dtype=float), np.asarray(eps, dtype=float)
-    return np.ceil(4.0 * np.log(n) / (eps**2 / 2.0 - eps**3 / 3.0)).astype(np.int64)
+    return np.ceil((4.0 + 2.0 * beta) * np.log(n) / _cubic(eps)).astype(np.int64)
 
 
-def ln_over_eps2(n, eps):
-    """Common-practice rule of thumb k = ln(n) / eps^2, rounded up (no published constant).
+def achlioptas_eps(n: ArrayLike, k: ArrayLike, beta: float = 1.0) -> np.ndarray:
+    """Smallest eps with ``achlioptas(n, eps, beta) <= k`` (NaN if none below 1).
+
+    >>> round(float(achlioptas_eps(1000, 8882)), 4)
+    0.1
+    """
+    return _smallest_eps(lambda eps: achlioptas(n, eps, beta) <= k, n, k)
+
+
+def beta_for_failure(n: ArrayLike, failure: ArrayLike) -> np.ndarray:
+    """Achlioptas' beta that makes his failure probability n^(-beta) equal ``failure``.
+
+    >>> round(float(beta_for_failure(1000, 0.001)), 12)
+    1.0
+    """
+    return np.log(1.0 / np.asarray(failure, dtype=float)) / np.log(np.asarray(n, dtype=float))
+
+
+def frankl_maehara(n: ArrayLike, eps: ArrayLike) -> np.ndarray:
+    """Frankl–Maehara: k = ceil(9 ln n / (eps² - 2 eps³/3)) + 1.
+
+    Reference: P. Frankl and H. Maehara, "The Johnson–Lindenstrauss lemma and the sphericity of
+    some graphs", J. Combinatorial Theory B 44(3):355–362, 1988 (as restated in the introduction
+    of Dasgupta & Gupta 2003).
+
+    >>> int(frankl_maehara(1000, 0.1))
+    6663
+    """
+    n, eps = np.asarray(n, dtype=float), np.asarray(eps, dtype=float)
+    return (np.ceil(9.0 * np.log(n) / (eps**2 - 2.0 * eps**3 / 3.0)) + 1).astype(np.int64)
+
+
+def frankl_maehara_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
+    """Smallest eps with ``frankl_maehara(n, eps) <= k`` (NaN if none below 1).
+
+    >>> round(float(frankl_maehara_eps(1000, 6663)), 4)
+    0.1
+    """
+    return _smallest_eps(lambda eps: frankl_maehara(n, eps) <= k, n, k)
+
+
+def pair_failure(k: ArrayLike, eps: ArrayLike) -> np.ndarray:
+    """Probability that one pair leaves 1 ± eps under a Gaussian T with N(0, 1/k) entries.
+
+    k·|Tx|²/|x|² follows chi-square with k degrees of freedom (Dasgupta & Gupta 2003, Lemma 2.2's
+    setting), so this is P(chi2_k < k(1 - eps)) + P(chi2_k > k(1 + eps)), computed exactly.
+
+    >>> round(float(pair_failure(100, 0.2)), 6)
+    0.154742
+    """
+    from scipy.stats import chi2
+
+    k, eps = np.asarray(k, dtype=float), np.asarray(eps, dtype=float)
+    return chi2.cdf(k * (1.0 - eps), k) + chi2.sf(k * (1.0 + eps), k)
+
+
+def chi2_union(n: ArrayLike, eps: ArrayLike, failure: ArrayLike = DEFAULT_FAILURE) -> np.ndarray:
+    """Gaussian bound aware of the failure probability: the smallest k with
+    n(n-1)/2 · pair_failure(k, eps) <= failure.
+
+    Each pair's tail is the exact chi-square tail (:func:`pair_failure`) instead of the Chernoff
+    estimate of the published proofs, and the union bound runs over the n(n-1)/2 pairs, as in
+    Dasgupta & Gupta 2003 (Theorem 2.1's proof). The search assumes pair_failure decreases in k.
+
+    >>> int(chi2_union(1000, 0.1))
+    5806
+    >>> chi2_union(1000, 0.1, failure=np.array([0.5, 0.01])).tolist()
+    [4878, 6460]
+    """
+    n, eps, failure = np.broadcast_arrays(*(np.asarray(v, dtype=float) for v in (n, eps, failure)))
+    budget = failure / _pairs(n)
+    # Dasgupta–Gupta's Chernoff step gives pair_failure <= 2 exp(-k·(eps²/2 - eps³/3)/2): a k that
+    # surely passes, to start the integer bisection from.
+    high = np.ceil(2.0 * np.log(2.0 / budget) / _cubic(eps)).astype(np.int64) + 1
+    low = np.zeros_like(high)  # invariant: low fails (k = 0 is not a projection), high passes
+    while np.any(high - low > 1):
+        mid = (low + high) // 2
+        passes = pair_failure(np.maximum(mid, 1), eps) <= budget
+        high, low = np.where(passes, mid, high), np.where(passes, low, mid)
+    return high[()] if high.ndim == 0 else high
+
+
+def chi2_union_eps(n: ArrayLike, k: ArrayLike, failure: ArrayLike = DEFAULT_FAILURE) -> np.ndarray:
+    """Smallest eps with n(n-1)/2 · pair_failure(k, eps) <= failure (NaN if none below 1).
+
+    >>> round(float(chi2_union_eps(1000, 5806)), 4)
+    0.1
+    """
+    return _smallest_eps(lambda eps: _pairs(np.asarray(n, float)) * pair_failure(k, eps) <= failure,
+                         n, k, failure)
+
+
+def ln_over_eps2(n: ArrayLike, eps: ArrayLike) -> np.ndarray:
+    """Common-practice rule of thumb k = ln(n) / eps², rounded up (no published constant).
 
     >>> int(ln_over_eps2(1000, 0.1))
     691
@@ -44,22 +188,130 @@ def ln_over_eps2(n, eps):
     return np.ceil(np.log(n) / eps**2).astype(np.int64)
 
 
-#: rule name -> function (n, eps) -> k
-RULES: dict[str, Callable] = {
-    "dasgupta-gupta": dasgupta_gupta,
-    "ln-over-eps2": ln_over_eps2,
-}
+def ln_over_eps2_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
+    """Smallest eps with ``ln_over_eps2(n, eps) <= k``, about sqrt(ln n / k) (NaN if >= 1).
+
+    >>> round(float(ln_over_eps2_eps(1000, 691)), 4)
+    0.1
+    """
+    return _smallest_eps(lambda eps: ln_over_eps2(n, eps) <= k, n, k)
+
+
+def _smallest_eps(passes: Callable[[np.ndarray], np.ndarray], *arguments) -> np.ndarray:
+    """Smallest eps in (0, 1) where ``passes(eps)`` turns true (it must be monotone in eps), over
+    the broadcast shape of ``arguments``.
+
+    Bisection to adjacent floats; NaN where even eps -> 1 does not pass.
+    """
+    shape = np.broadcast_shapes(*(np.shape(argument) for argument in arguments))
+    low, high = np.zeros(shape), np.full(shape, np.nextafter(1.0, 0.0))
+    feasible = np.broadcast_to(passes(high), shape)
+    for _ in range(_BISECTION_STEPS):
+        mid = (low + high) / 2.0
+        ok = np.broadcast_to(passes(mid), shape)
+        high, low = np.where(ok, mid, high), np.where(ok, low, mid)
+    eps = np.where(feasible, high, np.nan)
+    return eps[()] if eps.ndim == 0 else eps
+
+
+def _no_parameters(n, failure) -> dict:
+    return {}
+
+
+@dataclass(frozen=True)
+class Bound:
+    """A published bound: ``k(n, eps, **p)`` and its inverse ``eps(n, k, **p)``.
+
+    ``parameters(n, failure)`` gives the keyword arguments that make the bound hold with total
+    failure probability ``failure`` (empty when the bound has no such knob), and
+    ``failure_bound(n, failure)`` the failure probability it then guarantees (NaN if not stated).
+    """
+
+    name: str
+    k: Callable
+    eps: Callable
+    reference: str
+    parameters: Callable[..., dict] = _no_parameters
+    failure_bound: Callable[..., float] = lambda n, failure: float("nan")
+
+
+#: name -> bound, in the order a table shows them.
+BOUNDS: dict[str, Bound] = {bound.name: bound for bound in (
+    Bound("dasgupta-gupta", dasgupta_gupta, dasgupta_gupta_eps,
+          "Dasgupta & Gupta, Random Struct. Alg. 22(1), 2003",
+          failure_bound=lambda n, failure: 1.0 - 1.0 / n),
+    Bound("achlioptas", achlioptas, achlioptas_eps,
+          "Achlioptas, J. Comput. Syst. Sci. 66(4), 2003",
+          parameters=lambda n, failure: {"beta": float(beta_for_failure(n, failure))},
+          failure_bound=lambda n, failure: failure),
+    Bound("frankl-maehara", frankl_maehara, frankl_maehara_eps,
+          "Frankl & Maehara, J. Combin. Theory B 44(3), 1988"),
+    Bound("chi2-union", chi2_union, chi2_union_eps,
+          "exact chi-square pair tail + union bound",
+          parameters=lambda n, failure: {"failure": failure},
+          failure_bound=lambda n, failure: failure),
+    Bound("ln-over-eps2", ln_over_eps2, ln_over_eps2_eps,
+          "common practice"),
+)}
+
+#: rule name -> function (n, eps) -> k, with each bound's default parameters.
+RULES: dict[str, Callable] = {name: bound.k for name, bound in BOUNDS.items()}
+
+
+def check_rule(rule: str) -> Bound:
+    """The bound named ``rule``, or :class:`InputError` listing the names."""
+    if rule not in BOUNDS:
+        raise InputError("k rule", f"unknown rule {rule!r}", f"choose one of {', '.join(sorted(BOUNDS))}")
+    return BOUNDS[rule]
+
+
+def check_points(n: object) -> int:
+    """``n`` as an int if it counts at least 2 points, else :class:`InputError`."""
+    if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 2:
+        raise InputError("n", f"needs at least 2 points, got {n!r}", "count the points the projection must keep")
+    return int(n)
+
+
+def check_eps(eps: object) -> float:
+    """``eps`` as a float if it lies in (0, 1), else :class:`InputError`."""
+    if isinstance(eps, bool) or not isinstance(eps, (int, float, np.floating)) or not 0.0 < float(eps) < 1.0:
+        raise InputError("eps", f"must lie in (0, 1), got {eps!r}", "pick a distortion such as 0.2")
+    return float(eps)
+
+
+def check_k(k: object) -> int:
+    """``k`` as an int if it is a positive integer, else :class:`InputError`."""
+    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+        raise InputError("k", f"must be a positive integer, got {k!r}", "use k >= 1")
+    return int(k)
+
+
+def check_failure(failure: object) -> float:
+    """``failure`` as a float if it lies in (0, 1), else :class:`InputError`."""
+    if isinstance(failure, bool) or not isinstance(failure, (int, float, np.floating)) \
+            or not 0.0 < float(failure) < 1.0:
+        raise InputError("failure", f"must lie in (0, 1), got {failure!r}", "use a probability such as 0.05")
+    return float(failure)
 
 
 def k_from_eps(rule: str, n: int, eps: float) -> int:
-    """k for ``n`` points at distortion ``eps`` by the named rule (validated here)."""
-    if rule not in RULES:
-        raise InputError("k rule", f"unknown rule {rule!r}", f"choose one of {', '.join(sorted(RULES))}")
-    if not 0.0 < float(eps) < 1.0:
-        raise InputError("eps", f"must lie in (0, 1), got {eps!r}", "pick a distortion such as 0.2")
-    if int(n) < 2:
-        raise InputError("n", f"needs at least 2 points, got {n!r}", "count the points the projection must keep")
-    return int(RULES[rule](int(n), float(eps)))
+    """k for ``n`` points at distortion ``eps`` by the named rule (validated here).
+
+    >>> k_from_eps("dasgupta-gupta", 1000, 0.1)
+    5921
+    """
+    bound = check_rule(rule)
+    return int(bound.k(check_points(n), check_eps(eps)))
+
+
+def eps_from_k(rule: str, n: int, k: int) -> float:
+    """Smallest eps the named rule guarantees for ``n`` points in ``k`` dimensions (NaN if none).
+
+    >>> round(eps_from_k("ln-over-eps2", 1000, 691), 4)
+    0.1
+    """
+    bound = check_rule(rule)
+    return float(bound.eps(check_points(n), check_k(k)))
 
 
 def lp_points(n_cols: int) -> int:

@@ -7,17 +7,24 @@ time are recorded separately (seconds, wall clock) so the runner can log sketch 
 solve cost.
 
 Inputs to :meth:`Projector.apply` are a vector of shape (m,), a dense array of shape (m, n) or a
-scipy.sparse matrix of shape (m, n); the projection acts along the rows (T @ X).
+scipy.sparse matrix of shape (m, n); the projection acts along the rows (T @ X). Sparse inputs reach
+``_apply`` as CSR or CSC arrays, in the caller's format and without a copy (other sparse formats
+are converted to CSR).
+
+Family options (such as the nonzeros per column ``s``) are checked once, at
+:func:`calib.projectors.make`, by the family's :meth:`Projector.check_options`.
 """
 
 from __future__ import annotations
 
 import time
 from abc import ABC, abstractmethod
-from typing import ClassVar, Union
+from typing import Any, ClassVar, Union
 
 import numpy as np
 import scipy.sparse as sp
+
+from calib.errors import InputError
 
 ArrayLike = Union[np.ndarray, sp.spmatrix, sp.sparray]
 
@@ -42,7 +49,17 @@ class Projector(ABC):
     #: True when :meth:`apply` returns a sparse matrix for sparse input.
     keeps_sparse: ClassVar[bool] = False
 
-    def __init__(self, k: int, m: int, rng: np.random.Generator, **options):
+    @classmethod
+    def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """Validate this family's options for shape (k, m); return them with defaults filled in.
+
+        The default accepts no options. Families with options override this and raise
+        :class:`InputError` naming the option and the fix.
+        """
+        reject_unknown(cls.name, options, allowed=())
+        return {}
+
+    def __init__(self, k: int, m: int, rng: np.random.Generator, **options: Any):
         self.k = int(k)
         self.m = int(m)
         self.options = options
@@ -66,29 +83,38 @@ class Projector(ABC):
         sparsity (:attr:`keeps_sparse`) and a dense ndarray otherwise.
         """
         one_dim = not sp.issparse(X) and np.ndim(X) == 1
-        if one_dim:
-            X = np.asarray(X, dtype=float)[:, None]
-        elif not sp.issparse(X):
-            X = np.asarray(X, dtype=float)
+        X = _as_operand(X)
         if X.shape[0] != self.m:
             raise ValueError(f"projector expects {self.m} rows, got shape {X.shape}")
         start = time.perf_counter()
-        if sp.issparse(X):
-            out = self._apply(sp.csr_array(X))
-        else:
-            out = self._apply(X)
+        out = self._apply(X)
         self.apply_seconds += time.perf_counter() - start
         if one_dim:
             return np.asarray(out).ravel()
         return out
 
+    @abstractmethod
     def matrix(self) -> np.ndarray:
-        """The explicit dense k x m matrix (for tests and small m only)."""
-        return np.asarray(_dense(self._apply(np.eye(self.m))))
+        """The explicit dense k x m matrix, built from the drawn ingredients without the
+        :meth:`_apply` kernel (for tests and small m only)."""
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}(k={self.k}, m={self.m})"
 
 
-def _dense(X: ArrayLike) -> np.ndarray:
-    return X.toarray() if sp.issparse(X) else np.asarray(X)
+def _as_operand(X: ArrayLike) -> ArrayLike:
+    """Float (m, n) operand: sparse stays CSR/CSC (other formats become CSR), dense becomes 2-D."""
+    if sp.issparse(X):
+        X = X if X.format in ("csr", "csc") else X.tocsr()
+        X = X.astype(float, copy=False)
+        return sp.csc_array(X, copy=False) if X.format == "csc" else sp.csr_array(X, copy=False)
+    X = np.asarray(X, dtype=float)
+    return X[:, None] if X.ndim == 1 else X
+
+
+def reject_unknown(family: str, options: dict[str, Any], allowed: tuple[str, ...]) -> None:
+    """Raise :class:`InputError` if ``options`` holds a name outside ``allowed``."""
+    unknown = sorted(set(options) - set(allowed))
+    if unknown:
+        accepted = ", ".join(allowed) if allowed else "none"
+        raise InputError(f"projector {family}", f"unknown option {unknown[0]!r}", f"options accepted: {accepted}")

@@ -3,6 +3,10 @@
 For a fixed x, k * ||T x||^2 / ||x||^2 follows the chi-square law with k degrees of freedom
 (Dasgupta & Gupta, "An elementary proof of a theorem of Johnson and Lindenstrauss", Random
 Structures & Algorithms 22(1), 2003).
+
+T is kept transposed, as a C-ordered m x k array G = Tᵀ: dense input goes through BLAS either way,
+and a CSR input X is multiplied as (Xᵀ G)ᵀ, which reads the rows of G in order, once each. A CSC
+input is first turned into CSR (its rows are needed in order).
 """
 
 from __future__ import annotations
@@ -19,13 +23,12 @@ class GaussianProjector(Projector):
     name = "gaussian"
 
     def _draw(self, rng: np.random.Generator) -> None:
-        self._T = rng.standard_normal((self.k, self.m)) / np.sqrt(self.k)
+        self._T_transposed = rng.standard_normal((self.m, self.k)) / np.sqrt(self.k)
 
     def _apply(self, X: ArrayLike) -> ArrayLike:
         if sp.issparse(X):
-            # (X^T T^T)^T keeps the sparse operand on the left, where scipy multiplies efficiently.
-            return np.asarray((X.T @ self._T.T).T)
-        return self._T @ X
+            return np.asarray((X.tocsr().T @ self._T_transposed).T)
+        return self._T_transposed.T @ X
 
     def matrix(self) -> np.ndarray:
-        return self._T.copy()
+        return self._T_transposed.T.copy()
