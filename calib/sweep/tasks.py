@@ -14,6 +14,7 @@ so a fresh campaign and a resumed one use byte-identical originals.
 from __future__ import annotations
 
 import functools
+import math
 import time
 import traceback
 from collections import OrderedDict
@@ -133,8 +134,10 @@ def solve_original(task: OriginalTask) -> dict:
         original = HANDLERS[instance.kind].solve_original(instance.problem, task.solver)
     except Exception as error:  # a failed build or solve is recorded, the campaign goes on
         return failed_original("error", describe_exception(error), time.perf_counter() - start)
+    # SQLite stores a NaN REAL as NULL: a point set's original has no objective, so it is None on both sides
+    objective = original.objective if original.ok and math.isfinite(original.objective) else None
     return {"orig_status": original.status, "orig_code": original.solver_code, "orig_message": original.solver_message,
-            "orig_objective": original.objective if original.ok else None, "orig_seconds": original.seconds,
+            "orig_objective": objective, "orig_seconds": original.seconds,
             "orig_iterations": original.iterations, "solver_options": canonical_json(original.options),
             "orig_x": original.x, "build_seconds": build_seconds}
 
