@@ -168,32 +168,56 @@ def save_arrays(path: PathLike, arrays: dict, meta: Any = None) -> str:
     return sha256_hex(data)
 
 
+_RESAVE = "re-save it with calib.instance_io.save_arrays"
+
+
 def load_arrays(path: PathLike) -> tuple:
     """(arrays, meta) from a file in the arrays layout; InputError naming the file when it is not one.
 
-    Sparse matrices come back as CSR arrays. Floating arrays holding NaN are refused.
+    Sparse matrices come back as CSR arrays, their index structure checked. Floating arrays
+    holding NaN or infinite entries are refused (an infinite bound is stored as a magnitude of
+    at least :data:`calib.problems.INF_BOUND`, as everywhere in calib). Object arrays are never
+    unpickled.
     """
     path = Path(path)
     try:
         with np.load(path, allow_pickle=False) as archive:
+            if not hasattr(archive, "files"):
+                raise ValueError("a single .npy array, not an .npz archive")
             members = {key: archive[key] for key in archive.files}
         header = json.loads(str(members.pop("__meta__").item()))
     except (OSError, ValueError, KeyError, EOFError, zipfile.BadZipFile) as error:
-        raise InputError(str(path), f"not a readable calib arrays file ({type(error).__name__}: {error})",
-                         "re-save it with calib.instance_io.save_arrays") from None
+        raise InputError(str(path), f"not a readable calib arrays file ({type(error).__name__}: {error})", _RESAVE) from None
     if not isinstance(header, dict) or header.get("layout") != LAYOUT:
         raise InputError(str(path), f"unknown layout {header.get('layout') if isinstance(header, dict) else header!r}",
                          f"expected {LAYOUT}")
-    arrays = {}
-    for name in header["sparse"]:
-        parts = [members.pop(f"{name}.{part}") for part in ("data", "indices", "indptr", "shape")]
-        arrays[name] = sp.csr_array(tuple(parts[:3]), shape=tuple(int(s) for s in parts[3]))
+    if not isinstance(header.get("sparse"), list) or "meta" not in header:
+        raise InputError(str(path), "the __meta__ header lacks its 'sparse' list or its 'meta' entry", _RESAVE)
+    arrays = {name: _sparse_member(path, members, name) for name in header["sparse"]}
     arrays.update(members)
     for name, value in arrays.items():
-        data = value.data if sp.issparse(value) else value
-        if np.issubdtype(data.dtype, np.inexact) and np.isnan(data).any():
-            raise InputError(str(path), f"array {name!r} contains NaN", "regenerate or repair the instance")
+        _check_finite_array(path, name, value.data if sp.issparse(value) else value)
     return arrays, header["meta"]
+
+
+def _sparse_member(path: Path, members: dict, name) -> sp.csr_array:
+    """The CSR matrix ``name`` from its four members, its structure checked (InputError otherwise)."""
+    try:
+        data, indices, indptr, shape = (members.pop(f"{name}.{part}") for part in ("data", "indices", "indptr", "shape"))
+        if shape.shape != (2,) or not np.issubdtype(shape.dtype, np.integer) or shape.min() < 0:
+            raise ValueError(f"shape member is {shape.tolist()!r}, expected two non-negative integers")
+        matrix = sp.csr_array((data, indices, indptr), shape=tuple(int(s) for s in shape))
+        matrix.check_format(full_check=True)
+    except (KeyError, ValueError, TypeError) as error:
+        raise InputError(str(path), f"sparse matrix {name!r} is inconsistent ({type(error).__name__}: {error})", _RESAVE) from None
+    return matrix
+
+
+def _check_finite_array(path: Path, name: str, data: np.ndarray) -> None:
+    if np.issubdtype(data.dtype, np.inexact) and not np.isfinite(data).all():
+        what = "NaN" if np.isnan(data).any() else "infinite entries"
+        raise InputError(str(path), f"array {name!r} contains {what}",
+                         f"regenerate or repair the instance (store an infinite bound as +-{INF_BOUND:g})")
 
 
 # --- codecs: one per problem kind ------------------------------------------------------------
@@ -322,7 +346,31 @@ def read_manifest(path: PathLike) -> dict:
     if missing or manifest["format"] != MANIFEST_FORMAT:
         raise InputError(str(path), f"not a {MANIFEST_FORMAT} manifest" + (f" (missing {missing[0]!r})" if missing else ""),
                          "point to a STEM.json written by save_instance")
+    for key, kinds in _MANIFEST_TYPES.items():
+        value = manifest.get(key)
+        if key in manifest and (not isinstance(value, kinds) or isinstance(value, bool)):
+            raise InputError(f"{path}: {key}", f"has the wrong type ({type(value).__name__})", "save the instance again")
+    if manifest["index"] < 0:
+        raise InputError(f"{path}: index", f"must be >= 0, got {manifest['index']}", "save the instance again")
+    for key in ("data", "info_data"):
+        if key in manifest and not _plain_name(manifest[key]):
+            raise InputError(f"{path}: {key}", f"{manifest[key]!r} is not a file name in the manifest's own folder",
+                             "a manifest names only files beside it; save the instance again")
     return manifest
+
+
+#: manifest key -> the JSON types it may hold
+_MANIFEST_TYPES = {"family": str, "kind": str, "params": dict, "index": int, "name": str, "data": str, "sha256": str,
+                   "codec": dict, "info": dict, "info_data": str, "info_sha256": str}
+
+
+def _plain_name(name: str) -> bool:
+    """A bare file name: no folder part, not "." or ".." (manifests never point outside their folder).
+
+    >>> _plain_name("a.mps"), _plain_name("../a.mps"), _plain_name("/tmp/a.mps"), _plain_name("..")
+    (True, False, False, False)
+    """
+    return bool(name) and name not in (".", "..") and "/" not in name and "\\" not in name and "\0" not in name
 
 
 def load_instance(path: PathLike) -> tuple:

@@ -220,23 +220,47 @@ class StandardForm:
         return np.concatenate([structural, slack_columns.T @ rest])
 
 
+def _read_with_log(path: Path) -> tuple:
+    """(Highs, read status, HiGHS's first ERROR line or "") of ``readModel(path)``."""
+    import os
+    import tempfile
+
+    from calib.solvers.highs import new_highs
+
+    handle, log_path = tempfile.mkstemp(prefix="calib-mps-", suffix=".log")
+    os.close(handle)
+    try:
+        h = new_highs({"output_flag": True, "log_to_console": False, "log_file": log_path})
+        status = h.readModel(str(path))
+        h.setOptionValue("output_flag", False)
+        h.setOptionValue("log_file", "")
+        with open(log_path, encoding="utf-8", errors="replace") as log:
+            errors = [line.split(":", 1)[1].strip() for line in log if line.startswith("ERROR:")]
+    finally:
+        os.unlink(log_path)
+    return h, status, " ".join(errors[0].split()) if errors else ""
+
+
 def read_mps(path: Union[str, Path]) -> GeneralLP:
     """Read an MPS file (also .mps.gz) with HiGHS into a :class:`GeneralLP`.
 
     Raises :class:`InputError` naming the file when it is missing, unreadable or malformed, or
     when it holds integer variables or a quadratic objective (not an LP).
     """
-    from calib.solvers.highs import new_highs
+    import highspy
+
+    from calib.mps_scan import scan_mps
 
     path = Path(path)
     if not path.is_file():
         raise InputError(str(path), "no such file", "check the path to the MPS file")
-    h = new_highs()
-    import highspy
-
-    status = h.readModel(str(path))
+    problem = scan_mps(path)
+    if problem:
+        raise InputError(str(path), problem, "correct the file: numbers finite, every row declared under ROWS, ENDATA last")
+    h, status, complaint = _read_with_log(path)
     if status == highspy.HighsStatus.kError:
-        raise InputError(str(path), "HiGHS could not read this MPS file", "check that it is a complete, valid (free or fixed) MPS file")
+        raise InputError(str(path), f"HiGHS could not read this MPS file{': ' + complaint if complaint else ''}",
+                         "check that it is a complete, valid (free or fixed) MPS file")
     lp = h.getLp()
     if lp.num_row_ == 0 or lp.num_col_ == 0:
         raise InputError(str(path), "the model has no rows or no columns", "an LP needs constraints and variables")

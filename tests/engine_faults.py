@@ -22,6 +22,8 @@ misbehaves on purpose, chosen by k so that one campaign holds every kind of fail
 - k = 1: the trial raises RuntimeError;
 - k = 2: the trial dereferences a null pointer (SIGSEGV kills its worker process);
 - k = 3: the trial sleeps for an hour (only the external trial_timeout_s stops it);
+- k = 5: the trial writes its process id to the file named by ``CALIB_TEST_PID_FILE`` and waits
+  to be killed from outside (a test plays the OOM killer);
 - any other k: a normal LP trial.
 
 The family parameter ``original = "segfault"`` makes the original solve crash its worker instead.
@@ -29,6 +31,7 @@ Nothing in calib imports this module; normal specs cannot reach it.
 """
 
 import ctypes
+import os
 import time
 
 from calib.families import REGISTRY, register
@@ -36,7 +39,7 @@ from calib.families.base import Family
 from calib.reduce import HANDLERS
 from calib.reduce.lp import LPHandler
 
-FAULTS_BY_K = {1: "raise", 2: "segfault", 3: "hang"}
+FAULTS_BY_K = {1: "raise", 2: "segfault", 3: "hang", 5: "await-kill"}
 
 
 def _misbehave(fault: str) -> None:
@@ -45,6 +48,11 @@ def _misbehave(fault: str) -> None:
     if fault == "segfault":
         ctypes.string_at(0)  # reads address 0: SIGSEGV
     if fault == "hang":
+        time.sleep(3600)
+    if fault == "await-kill":
+        with open(os.environ["CALIB_TEST_PID_FILE"] + ".part", "w") as handle:
+            handle.write(str(os.getpid()))
+        os.replace(os.environ["CALIB_TEST_PID_FILE"] + ".part", os.environ["CALIB_TEST_PID_FILE"])
         time.sleep(3600)
 
 

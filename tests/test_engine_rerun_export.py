@@ -71,7 +71,12 @@ def test_rerun_reproduces_a_failing_trial(tmp_path, fault_plugin, monkeypatch, c
     summary = run_campaign(load_spec(write_spec(tmp_path, "faulty", replicates=1, text=text)), tmp_path / "out", inline=True)
     with sqlite3.connect(summary.store_path) as db:
         trial_id = db.execute("SELECT trial_id FROM trials WHERE status = 'error'").fetchone()[0]
-    monkeypatch.delenv("CALIB_PLUGINS")  # the store remembers its plugins
+    # the store remembers its plugins, but imports them only with the user's consent (CALIB_PLUGINS):
+    # a store is data, and the module names it holds are never imported on its word alone
+    monkeypatch.delenv("CALIB_PLUGINS")
+    assert main(["rerun", str(summary.store_path), trial_id]) == 2
+    assert "CALIB_PLUGINS=engine_fault_plugin" in capsys.readouterr().err
+    monkeypatch.setenv("CALIB_PLUGINS", fault_plugin)
     assert main(["rerun", str(summary.store_path), trial_id]) == 0
     assert "RuntimeError: injected failure" in capsys.readouterr().out
 

@@ -40,7 +40,7 @@ from calib.analysis.success import Predicate, evaluate, primary_tau, with_tau
 from calib.analysis.tablefile import FORMAT, VERSION, dumps, seal
 from calib.errors import InputError
 from calib.metrics import FIELDS
-from calib.sweep.store import Store
+from calib.sweep.store import DAMAGED_FIX, Store
 
 CELL_KEYS = ["family", "size", "params", "projector", "retrieval"]
 CLASS_KEYS = ["family", "class_params", "projector", "retrieval"]
@@ -100,20 +100,57 @@ def _class_params(family: str, params: dict) -> str:
 
 
 def load_rows(store: Store) -> pd.DataFrame:
-    """Tidy table: one row per (trial, retrieval) with instance columns and every metric field."""
+    """Tidy table: one row per (trial, retrieval) with instance columns and every metric field.
+
+    Rows that calib could not have written (metrics or parameters that are not JSON objects, a
+    trial without its instance, a k that is not a positive integer) are refused with
+    :class:`InputError` naming the store and the trial, never guessed around.
+    """
     db = store.db
-    trials = pd.read_sql_query("SELECT * FROM trials ORDER BY trial_id, retrieval", db)
-    instances = pd.read_sql_query(
-        "SELECT instance_id, family, params, idx, kind, projected_dim, n_points, orig_seconds FROM instances", db)
+    try:
+        trials = pd.read_sql_query("SELECT * FROM trials ORDER BY trial_id, retrieval", db)
+        instances = pd.read_sql_query(
+            "SELECT instance_id, family, params, idx, kind, projected_dim, n_points, orig_seconds FROM instances", db)
+    except (pd.errors.DatabaseError, ValueError) as error:
+        raise InputError(str(store.path), f"cannot read the trial rows: {error}", DAMAGED_FIX) from None
     rows = trials.merge(instances, on="instance_id", how="left", validate="many_to_one")
-    metrics = [json.loads(text) if isinstance(text, str) else {} for text in rows["metrics"]]
+    _check_rows(rows, store.path)
+    metrics = [_json_object(text, store.path, trial, "metrics") if isinstance(text, str) else {}
+               for text, trial in zip(rows["metrics"], rows["trial_id"])]
     expanded = pd.DataFrame.from_records([{name: record.get(name) for name in FIELDS} for record in metrics],
                                          index=rows.index, columns=list(FIELDS))
     rows = pd.concat([rows.drop(columns=["metrics"]), expanded], axis=1)
-    decoded = [json.loads(params) for params in rows["params"]]
+    decoded = [_json_object(params, store.path, trial, "instance params") for params, trial in zip(rows["params"], rows["trial_id"])]
     rows["size"] = [_size_label(family, params) for family, params in zip(rows["family"], decoded)]
     rows["class_params"] = [_class_params(family, params) for family, params in zip(rows["family"], decoded)]
     return rows
+
+
+def _check_rows(rows: pd.DataFrame, path) -> None:
+    """Refuse rows whose instance is missing or whose k or replicate is not an integer."""
+    orphans = rows["family"].isna()
+    if orphans.any():
+        trial = rows.loc[orphans, "trial_id"].iloc[0]
+        raise InputError(str(path), f"trial {trial} names an instance that is not stored", DAMAGED_FIX)
+    for column, minimum in (("k", 1), ("replicate", 0), ("projected_dim", 1), ("n_points", 1)):
+        values = rows[column]
+        if pd.api.types.is_integer_dtype(values.dtype):  # what SQLite gives for INTEGER cells: one vector test
+            good = values >= minimum
+        else:
+            good = values.map(lambda v: isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= minimum)
+        if not good.all():
+            bad = rows.loc[~good.astype(bool)].iloc[0]
+            raise InputError(str(path), f"trial {bad['trial_id']} has {column} = {bad[column]!r}, not an integer >= {minimum}", DAMAGED_FIX)
+
+
+def _json_object(text, path, trial: str, what: str) -> dict:
+    try:
+        value = json.loads(text)
+    except (TypeError, ValueError):
+        value = None
+    if not isinstance(value, dict):
+        raise InputError(str(path), f"trial {trial}: its {what} are not a JSON object", DAMAGED_FIX)
+    return value
 
 
 # ----- per cell -----------------------------------------------------------------------------
@@ -266,12 +303,36 @@ def _class_key(entry: dict) -> tuple:
 
 # ----- the table ----------------------------------------------------------------------------
 
+#: original statuses without an optimum to calibrate against (the solver's verdict, not a failure)
+NO_OPTIMUM = ("unbounded", "infeasible_or_unbounded")
+
+
+def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
+    """(mask of rows whose original has no finite optimum, one ``excluded`` item per family and status).
+
+    An unbounded original is a result, not an error: it is stored like any other. But it has no
+    optimum to measure a gap against, and a row projection of it (a relaxation) is unbounded at
+    every k, so its trials would only count as failures (or trivial successes) that say nothing
+    about k. They are left out of the success rates and listed with the reason.
+    """
+    mask = rows["kind"].isin(["lp", "sdp", "qp"]) & rows["orig_status"].isin(NO_OPTIMUM)
+    items = []
+    for (family, kind, status), group in rows[mask].groupby(["family", "kind", "orig_status"], sort=True):
+        items.append({"family": family, "kind": kind,
+                      "reason": f"{group['instance_id'].nunique()} instance(s) with an original that is {status.replace('_', ' ')} "
+                                f"({len(group)} rows): no optimum to compare a projection with, so they say nothing about k"})
+    return mask, items
+
+
 def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None) -> dict:
-    """One analysis (one predicate) of the tidy rows: excluded kinds, entries, laws."""
+    """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws."""
+    unbounded, excluded_unbounded = unbounded_exclusions(rows)
+    rows = rows[~unbounded]
     covered = rows["kind"].map(predicate.covers).astype(bool)
     excluded = [{"family": family, "kind": kind,
                  "reason": f"the predicate checks nothing on {kind} problems (see the presets and --tol-* options)"}
                 for family, kind in sorted(set(zip(rows.loc[~covered, "family"], rows.loc[~covered, "kind"])))]
+    excluded += excluded_unbounded
     entries = []
     if covered.any():
         summary = summarise(rows[covered], predicate, confidence)
@@ -296,8 +357,8 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
     table = {
         "format": FORMAT, "format_version": VERSION, "code_version": __version__,
         "campaign": {"name": meta.get("name"), "spec_fingerprint": meta.get("fingerprint"),
-                     "root_seed": int(meta.get("root_seed", 0)),
-                     "store_schema": int(meta.get("schema_version", SCHEMA_VERSION))},
+                     "root_seed": store.meta_int("root_seed", 0),
+                     "store_schema": store.meta_int("schema_version", SCHEMA_VERSION)},
         "target": {"success_rate": num(confidence.target, 12), "delta": confidence.delta, "confidence": confidence.level,
                    "bound": "one-sided Clopper-Pearson lower bound (Wilson lower bound shown beside it)",
                    "interval": "two-sided delta-method interval on ln k at the same confidence"},
@@ -330,9 +391,10 @@ def table_to_frame(table: dict) -> pd.DataFrame:
 
 
 def write_table(table: dict, json_path: Optional[Path] = None, csv_path: Optional[Path] = None) -> None:
-    """Write the table as JSON (sorted keys, stable bytes) and/or CSV."""
-    for path, text in ((json_path, lambda: dumps(table)),
-                       (csv_path, lambda: table_to_frame(table).to_csv(index=False, lineterminator="\n"))):
+    """Write the table as JSON (sorted keys, stable bytes) and/or CSV (each whole or not at all)."""
+    from calib.outputs import write_file
+
+    for path, text, option in ((json_path, lambda: dumps(table), "--json"),
+                               (csv_path, lambda: table_to_frame(table).to_csv(index=False, lineterminator="\n"), "--csv")):
         if path is not None:
-            Path(path).parent.mkdir(parents=True, exist_ok=True)
-            Path(path).write_text(text(), encoding="utf-8")
+            write_file(path, text(), option)

@@ -49,8 +49,7 @@ def speedup_at_safe_k(timings: pd.DataFrame) -> pd.DataFrame:
 
 
 def write_timings(timings: pd.DataFrame, path) -> None:
-    """CSV of :func:`timing_frame`."""
-    from pathlib import Path
+    """CSV of :func:`timing_frame` (written whole or not at all)."""
+    from calib.outputs import write_file
 
-    Path(path).parent.mkdir(parents=True, exist_ok=True)
-    timings.to_csv(path, index=False, lineterminator="\n")
+    write_file(path, timings.to_csv(index=False, lineterminator="\n"), "--timings")

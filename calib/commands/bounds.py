@@ -31,12 +31,12 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    n = theory.check_points(args.n)
-    failure = theory.check_failure(args.failure)
+    n = theory.check_points(args.n, "--n")
+    failure = theory.check_failure(args.failure, "--failure")
     if args.eps is None and args.k is None:
         raise InputError("bounds", "nothing to compute", "give --eps, --k or both")
-    eps = None if args.eps is None else theory.check_eps(args.eps)
-    k = None if args.k is None else theory.check_k(args.k)
+    eps = None if args.eps is None else theory.check_eps(args.eps, "--eps")
+    k = None if args.k is None else theory.check_k(args.k, "--k")
     header = ["bound"] + ([f"k for eps={eps:g}"] if eps is not None else []) \
         + ([f"eps at k={k}"] if k is not None else []) + ["failure <=", "reference"]
     print(_heading(n, eps, k, failure))

@@ -20,11 +20,14 @@ def register(subparsers) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from calib.errors import InputError
+    from calib.outputs import check_target
     from calib.sweep.export import export_frame, write_export
     from calib.sweep.store import Store
 
     if args.csv is None and args.parquet is None:
         raise InputError("calib export", "no output chosen", "give --csv FILE and/or --parquet FILE")
+    check_target(args.csv, "--csv")
+    check_target(args.parquet, "--parquet")
     store = Store.open_existing(args.store)
     try:
         frame = export_frame(store)

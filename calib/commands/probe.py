@@ -107,6 +107,8 @@ def resolve_target(args: argparse.Namespace) -> Target:
     if args.target.lower().endswith(".json"):
         return _saved_target(path, args)
     if path.is_file() or args.target.lower().endswith(MPS_SUFFIXES):
+        if not path.is_file():
+            raise InputError(str(path), "no such MPS file", "check the path (an MPS file, a saved instance STEM.json or a family name)")
         if args.param:
             raise InputError("--param", "parameters apply to families, not to an MPS file", "drop --param")
         family, given, where = families.get("mps-dir"), {"dir": str(path.parent), "name": path.name}, str(path)
@@ -131,16 +133,19 @@ def _saved_target(path: Path, args: argparse.Namespace) -> Target:
     if args.param:
         raise InputError("--param", "parameters apply to families, not to a saved instance", "drop --param")
     instance, _ = load_instance(path)
-    ref = InstanceRef(instance.family, instance.params, instance.index, args.seed)
-    n_points = families.get(instance.family, str(path)).n_points(instance.params)
+    family = families.get(instance.family, f"{path}: family")
+    params = family.resolve(instance.params, f"{path}: params")
+    ref = InstanceRef(instance.family, params, instance.index, args.seed)
+    n_points = family.n_points(params)
     return Target(f"{path} ({instance.family} #{instance.index})", instance.kind, instance.problem, ref, n_points)
 
 
 def choose_k(args: argparse.Namespace, m: int, n_points: int) -> tuple[int, str]:
     """(k, how it was chosen); InputError when k is not in 1..m."""
-    from calib.theory import k_from_eps
+    from calib.theory import check_eps, k_from_eps
 
     if args.eps is not None:
+        check_eps(args.eps, "--eps")
         k = k_from_eps(args.rule, n_points, args.eps)
         source = f"eps = {args.eps} by {args.rule} with {n_points} points"
         if k > m:
@@ -165,10 +170,12 @@ def _check_retrievals(args: argparse.Namespace, kind: str) -> list[str]:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.outputs import check_target, write_file
     from calib.reduce import HANDLERS
     from calib.sweep.trial import Trial, run_trial
 
     _check_numbers(args)
+    check_target(args.json, "--json")
     predicate, confidence = _predicate(args)
     choice = _projector_choice(args)
     target = resolve_target(args)
@@ -189,8 +196,7 @@ def run(args: argparse.Namespace) -> int:
         payload = {"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_source": k_source,
                    "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
                    "summary": summary}
-        args.json.parent.mkdir(parents=True, exist_ok=True)
-        args.json.write_text(json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", encoding="utf-8")
+        write_file(args.json, json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", "--json")
         print(f"wrote {args.json}")
     return 0
 

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import json
 from pathlib import Path
 
 from calib.commands.tables import add_analysis_options
@@ -25,15 +24,12 @@ def run(args: argparse.Namespace) -> int:
     from calib.analysis.report import build_report
     from calib.analysis.timing import timing_frame
     from calib.commands.tables import analyse
-    from calib.errors import InputError
+    from calib.outputs import check_target, write_file
 
-    table, rows, meta = analyse(args)
+    check_target(args.html, "--html")
+    table, rows, spec = analyse(args)
     timings = timing_frame(rows, table["analyses"][0])
-    html = build_report(table, timings, json.loads(meta.get("spec", "{}")))
-    try:
-        args.html.parent.mkdir(parents=True, exist_ok=True)
-        args.html.write_text(html, encoding="utf-8")
-    except OSError as error:
-        raise InputError(str(args.html), f"cannot write the report: {error.strerror}", "choose a writable path") from None
+    html = build_report(table, timings, spec)
+    write_file(args.html, html, "--html")
     print(f"wrote {args.html}")
     return 0

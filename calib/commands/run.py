@@ -37,11 +37,13 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.errors import InputError
     from calib.sweep.spec import load_spec
 
-    if args.workers is not None and args.workers < 1:
-        raise InputError("--workers", f"must be at least 1, got {args.workers}", "e.g. --workers 2")
+    check_workers(args.workers)
+    if args.scheduler:
+        from calib.sweep.executors import check_scheduler_address
+
+        check_scheduler_address(args.scheduler)
     spec = load_spec(args.spec)
     if args.dry_run:
         print(dry_run(spec, args))
@@ -67,6 +69,21 @@ def run(args: argparse.Namespace) -> int:
               file=sys.stderr)
         return 1
     return 0
+
+
+#: local worker processes allowed per core: each runs one solver thread, more only adds memory
+WORKERS_PER_CORE = 4
+
+
+def check_workers(workers) -> None:
+    """``--workers`` must lie in 1 .. max(8, 4 x the cores): a typo must not fork thousands of processes."""
+    from calib.errors import InputError
+    from calib.sweep.executors import default_workers
+
+    limit = max(8, WORKERS_PER_CORE * default_workers())
+    if workers is not None and not 1 <= workers <= limit:
+        raise InputError("--workers", f"must lie in 1..{limit} on this machine, got {workers}",
+                         f"e.g. --workers {default_workers()} (one per core)")
 
 
 def _interrupt(signum, frame):

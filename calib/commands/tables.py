@@ -47,7 +47,7 @@ def predicate_from(args: argparse.Namespace):
 
 
 def analyse(args: argparse.Namespace):
-    """(table, tidy rows, store meta) of ``args.store`` under the parsed analysis options."""
+    """(table, tidy rows, stored spec) of ``args.store`` under the parsed analysis options."""
     from calib.analysis.tables import build_table, load_rows
     from calib.errors import InputError
     from calib.sweep.store import Store
@@ -59,10 +59,10 @@ def analyse(args: argparse.Namespace):
     try:
         rows = load_rows(store)
         table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows)
-        meta = store.meta()
+        spec = store.stored_spec()
     finally:
         store.close()
-    return table, rows, meta
+    return table, rows, spec
 
 
 def register(subparsers) -> None:
@@ -85,7 +85,10 @@ def register(subparsers) -> None:
 def run(args: argparse.Namespace) -> int:
     from calib.analysis.tables import write_table
     from calib.analysis.timing import timing_frame, write_timings
+    from calib.outputs import check_target
 
+    for path, option in ((args.json, "--json"), (args.csv, "--csv"), (args.timings, "--timings")):
+        check_target(path, option)
     table, rows, _ = analyse(args)
     write_table(table, args.json, args.csv)
     if args.timings is not None:

@@ -93,12 +93,27 @@ class Family:
         try:
             self.check(full)
         except InputError as error:
-            raise InputError(f"{where}.{error.where}", error.problem, error.fix) from None
+            raise InputError(_nested(where, error.where, self.defaults), error.problem, error.fix) from None
         return full
 
     def make(self, params: dict, index: int, rng: np.random.Generator) -> Instance:
         problem, info = self.build(params, rng)
         return Instance(family=self.name, params=params, index=index, kind=self.kind, problem=problem, info=info)
+
+
+def _nested(where: str, inner: str, keys) -> str:
+    """The location of a check's error: ``where.key`` for a parameter, ``where: file`` for a file.
+
+    >>> _nested("families[0].sizes[1]", "rows", {"rows": None})
+    'families[0].sizes[1].rows'
+    >>> _nested("families[0].sizes[0]", "data/x.mps", {"dir": None})
+    'families[0].sizes[0]: data/x.mps'
+    >>> _nested("x.mps", "x.mps", {})
+    'x.mps'
+    """
+    if inner in keys:
+        return f"{where}.{inner}"
+    return where if inner == where else f"{where}: {inner}"
 
 
 REGISTRY: dict[str, Family] = {}

@@ -99,6 +99,9 @@ def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
                 continue
             seconds, payload = measured
             original = {name: payload["row"][name] for name in ORIGINAL_FIELDS}
+            if original["orig_status"] == "error":  # the build or the solve raised: its time means nothing
+                probes.append(Probe(None, None, None, f"the original failed: {original['orig_message']}"))
+                continue
             trial_seconds = []
             for k, label in ((plan.ks[0], plan.labels[0]), (plan.ks[-1], plan.labels[-1])):
                 trial = Trial(ref, spec.projectors[0], k, 0, label)
@@ -139,6 +142,9 @@ def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]]
         lines.append(f"  {plan.label}: original {probe.original:.3f} s; trial {probe.trial_low:.3f} / {probe.trial_high:.3f} s")
         total += probe.work(plan)
     remaining = total * (trials - stored) / trials if trials else 0.0
+    if remaining != remaining:  # NaN: a size could not be probed
+        lines.append(f"work: unknown for the {trials - stored} trials left (a probe failed, see above)")
+        return "\n".join(lines)
     lines.append(f"work: about {remaining:.1f} CPU-seconds for the {trials - stored} trials left; "
                  f"about {remaining / max(1, workers):.1f} s of wall time on {workers} worker(s)")
     return "\n".join(lines)

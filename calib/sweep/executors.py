@@ -16,6 +16,7 @@ All three return ``Done(token, result)`` where ``result`` is the payload of
 from __future__ import annotations
 
 import os
+import re
 import selectors
 import sys
 import threading
@@ -87,12 +88,17 @@ class LocalPool:
         self._dispatch()
 
     def _dispatch(self) -> None:
-        for box in self._boxes:
+        for index, box in enumerate(self._boxes):
             if not self._pending:
                 return
+            if box.state == "idle" and box.process.poll() is not None:
+                # died while idle (the OOM killer, a stray kill): replace it rather than pin the next
+                # task's row on a death that task did not cause; the new worker takes work once ready
+                box.kill()
+                self._boxes[index] = box.renewed()
+                continue
             if box.state == "idle":
                 box.send(*self._pending.popleft())
-
 
     def next_done(self) -> Done:
         """Block until a task finishes, times out or crashes its worker."""
@@ -160,12 +166,28 @@ def run_in_sandbox(task: Task, timeout: Optional[float]):
     return box.run(task.token, task, timeout)
 
 
+_ADDRESS = re.compile(r"(?:(?:tcp|tls)://)?(?P<host>\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9_.-]+):(?P<port>[0-9]{1,5})")
+
+
+def check_scheduler_address(address: str) -> str:
+    """``address`` if it reads ``tcp://HOST:PORT`` (or ``tls://``, or plain ``HOST:PORT``).
+
+    >>> check_scheduler_address("tcp://10.0.0.5:8786")
+    'tcp://10.0.0.5:8786'
+    """
+    match = _ADDRESS.fullmatch(address)
+    if not match or not 1 <= int(match["port"]) <= 65535:
+        raise InputError("--scheduler", f"{address!r} is not a scheduler address", "write tcp://HOST:PORT, e.g. tcp://10.0.0.5:8786")
+    return address
+
+
 class DaskExecutor:
     """Tasks on an existing Dask scheduler; the coordinator alone writes the store."""
 
     name = "dask"
 
     def __init__(self, address: str, connect_timeout_s: float = 20.0):
+        check_scheduler_address(address)
         try:
             from distributed import Client, as_completed
         except ImportError:

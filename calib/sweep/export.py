@@ -6,6 +6,7 @@ from) and adds the package versions of the environment that produced each row.
 
 from __future__ import annotations
 
+import io
 from pathlib import Path
 from typing import Optional
 
@@ -26,15 +27,17 @@ def export_frame(store: Store) -> pd.DataFrame:
 
 
 def write_export(frame: pd.DataFrame, csv_path: Optional[Path] = None, parquet_path: Optional[Path] = None) -> None:
-    """Write CSV (``\\n`` line ends, no index) and/or Parquet (pyarrow)."""
-    for path in (csv_path, parquet_path):
-        if path is not None:
-            Path(path).parent.mkdir(parents=True, exist_ok=True)
-    if csv_path is not None:
-        frame.to_csv(csv_path, index=False, lineterminator="\n")
+    """Write CSV (``\\n`` line ends, no index) and/or Parquet (pyarrow), each whole or not at all."""
+    from calib.outputs import write_file
+
     if parquet_path is not None:
         try:
             import pyarrow  # noqa: F401
         except ImportError:
             raise InputError("--parquet", "pyarrow is not installed", "install it with `pip install 'calib[parquet]'` or use --csv") from None
-        frame.to_parquet(parquet_path, index=False)
+    if csv_path is not None:
+        write_file(csv_path, frame.to_csv(index=False, lineterminator="\n"), "--csv")
+    if parquet_path is not None:
+        buffer = io.BytesIO()
+        frame.to_parquet(buffer, index=False)
+        write_file(parquet_path, buffer.getvalue(), "--parquet")

@@ -36,7 +36,25 @@ def load(names: tuple[str, ...]) -> None:
         except ImportError as error:
             raise InputError(ENV_VAR, f"cannot import plugin module {name!r}: {error}",
                              "make the module importable (PYTHONPATH) or remove it from the list") from None
+        except Exception as error:  # noqa: BLE001 - the plugin's own bug, reported on one line
+            from calib.sweep.tasks import describe_exception
+
+            raise InputError(ENV_VAR, f"plugin module {name!r} failed while importing: {describe_exception(error)}",
+                             "fix the plugin (import it in Python to see the full traceback)") from None
         _loaded.add(name)
+
+
+def allowed(names: tuple[str, ...], where: str) -> tuple[str, ...]:
+    """``names`` (plugins recorded in a store) if ``CALIB_PLUGINS`` lists every one of them.
+
+    A store or table is data: the module names it records are never imported unless the user
+    opted in to them through ``CALIB_PLUGINS``, exactly as for a spec.
+    """
+    missing = [name for name in names if name not in names_from_env()]
+    if missing:
+        raise InputError(where, f"was written with plugin module(s) {', '.join(missing)}, which {ENV_VAR} does not list",
+                         f"if you trust them, set {ENV_VAR}={','.join(names)} and run again")
+    return names
 
 
 def load_from_env() -> tuple[str, ...]:

@@ -20,8 +20,9 @@ from dataclasses import dataclass, field
 
 from calib.errors import InputError
 from calib.metrics import FIELDS
+from calib.sweep.plugins import allowed
 from calib.sweep.spec import ProjectorChoice
-from calib.sweep.store import Store
+from calib.sweep.store import DAMAGED_FIX, Store
 from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask
 from calib.sweep.trial import InstanceRef, Trial
 
@@ -89,7 +90,21 @@ def resolve_trial_id(store: Store, text: str) -> str:
 
 
 def rebuild(store: Store, trial_id: str) -> tuple[Trial, tuple, dict, dict, tuple]:
-    """(trial, retrievals, solver options, stored instance row, plugins) of a stored trial."""
+    """(trial, retrievals, solver options, stored instance row, plugins) of a stored trial.
+
+    Fields calib could not have written (not JSON, wrong types) are an :class:`InputError`
+    naming the store and the trial.
+    """
+    try:
+        return _rebuild(store, trial_id)
+    except InputError:
+        raise
+    except (ValueError, TypeError, KeyError, AttributeError, IndexError) as error:
+        raise InputError(str(store.path), f"trial {trial_id} cannot be rebuilt from its rows ({type(error).__name__}: {error})",
+                         DAMAGED_FIX) from None
+
+
+def _rebuild(store: Store, trial_id: str) -> tuple[Trial, tuple, dict, dict, tuple]:
     rows = store.trial_records(trial_id)
     first = rows[0]
     meta = store.meta()
@@ -108,15 +123,19 @@ def rebuild(store: Store, trial_id: str) -> tuple[Trial, tuple, dict, dict, tupl
         raise InputError(trial_id, "the rebuilt trial has another id: the store was written by a calib with a "
                          "different trial identity scheme", "re-run it with the calib version recorded in the store")
     solver = first.get("solver_options")
-    solver = json.loads(solver) if solver else _spec_solver(meta)
-    plugins = tuple(name for name in meta.get("plugins", "").split(",") if name)
+    solver = json.loads(solver) if solver else _spec_solver(store)
+    for key in ("time_limit_s", "trial_timeout_s"):
+        value = solver[key]
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 < value < 1e6:
+            raise ValueError(f"solver option {key} = {value!r}")
+    plugins = allowed(tuple(name for name in meta.get("plugins", "").split(",") if name), str(store.path))
     return trial, tuple(row["retrieval"] for row in rows), solver, instance, plugins
 
 
-def _spec_solver(meta: dict) -> dict:
+def _spec_solver(store: Store) -> dict:
     from calib.sweep.spec import parse_spec
 
-    return parse_spec(json.loads(meta["spec"]), source="stored spec").solver
+    return parse_spec(store.stored_spec(), source=f"{store.path} (stored spec)").solver
 
 
 def rerun(store: Store, trial_text: str) -> Comparison:

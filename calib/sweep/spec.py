@@ -154,9 +154,11 @@ def load_spec(path: str | Path) -> Spec:
     if not path.is_file():
         raise InputError(str(path), "no such spec file", "give the path to a TOML sweep spec")
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+        raw = tomllib.loads(path.read_text(encoding="utf-8-sig"))  # a BOM from Windows editors is fine
     except (tomllib.TOMLDecodeError, UnicodeDecodeError) as error:
         raise InputError(str(path), f"not valid TOML: {error}", "fix the syntax at the position shown") from None
+    except OSError as error:
+        raise InputError(str(path), f"cannot read the spec: {error.strerror or error}", "check the file's permissions") from None
     return parse_spec(raw, source=str(path))
 
 

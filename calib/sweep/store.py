@@ -19,12 +19,15 @@ their root seed is the last element of ``stream_key``, their solver options the 
 
 from __future__ import annotations
 
+import fcntl
 import io
 import json
+import os
 import sqlite3
 import sys
 from pathlib import Path
 from typing import Iterable, Optional
+from urllib.parse import quote
 
 import numpy as np
 
@@ -89,12 +92,31 @@ def blob_to_array(blob: Optional[bytes]) -> Optional[np.ndarray]:
     return np.load(io.BytesIO(blob), allow_pickle=False)
 
 
+#: the tables every calib store has
+TABLES = ("campaign", "environments", "instances", "trials")
+
+#: the fix shown for a store whose rows calib could not have written
+DAMAGED_FIX = "the store was changed outside calib; restore a copy, or run the spec again into a new --out folder"
+
+#: the fix shown when the store cannot be written (disk full, read-only folder or file, I/O error)
+WRITE_FIX = ("free disk space or make the folder and the store writable, then run the same command again: "
+             "every trial stored so far is kept and the run resumes")
+
+
+class StoreWriteError(InputError):
+    """The store could not be written; everything committed before stays (one transaction per trial)."""
+
+    def __init__(self, path: Path, error: BaseException):
+        super().__init__(str(path), f"cannot write the store ({error})", WRITE_FIX)
+
+
 class Store:
     """A campaign store on disk. Use :meth:`create_or_resume` to open one for a spec."""
 
-    def __init__(self, path: Path, connection: sqlite3.Connection):
+    def __init__(self, path: Path, connection: sqlite3.Connection, lock_fd: Optional[int] = None):
         self.path = path
         self.db = connection
+        self._lock_fd = lock_fd
 
     # ----- opening --------------------------------------------------------------------------
     @classmethod
@@ -104,40 +126,59 @@ class Store:
         if not path.is_file():
             raise InputError(str(path), "no such store", "give the .sqlite file that `calib run` printed")
         try:
-            connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
-            connection.execute("SELECT value FROM campaign WHERE key = 'name'").fetchone()
+            connection, found = connect_readonly(path)
         except sqlite3.DatabaseError:
-            raise InputError(str(path), "not a calib store (unreadable SQLite or missing tables)", "point at a .sqlite file written by `calib run`") from None
+            raise InputError(str(path), "not a calib store (unreadable SQLite)", "point at a .sqlite file written by `calib run`") from None
+        missing = [name for name in TABLES if name not in found]
+        if missing:
+            connection.close()
+            raise InputError(str(path), f"not a calib store (no table {missing[0]!r})", "point at a .sqlite file written by `calib run`")
         return cls(path, connection)
 
     @classmethod
     def create_or_resume(cls, spec, out_dir: str | Path, new_campaign: bool = False) -> "Store":
         """The store of ``spec`` under ``out_dir``, created or resumed (see :func:`locate`)."""
         path, _ = locate(spec, out_dir, new_campaign)
+        if path.parent.exists() and not path.parent.is_dir():
+            raise InputError(f"--out {path.parent}", "is a file, not a folder", "choose a folder for the campaign stores")
         try:
             path.parent.mkdir(parents=True, exist_ok=True)
         except OSError as error:
-            raise InputError(str(path.parent), f"cannot create the output folder: {error.strerror}", "choose a writable --out folder") from None
+            raise InputError(f"--out {path.parent}", f"cannot create the output folder: {error.strerror}", "choose a writable --out folder") from None
+        lock_fd = _lock(path)
         try:
-            connection = sqlite3.connect(path, isolation_level=None)
-            connection.execute("PRAGMA journal_mode=WAL")
-            connection.execute("PRAGMA synchronous=NORMAL")
-            connection.executescript(_SCHEMA)
+            store = cls(path, sqlite3.connect(path, isolation_level=None), lock_fd)
         except sqlite3.DatabaseError as error:
-            raise InputError(str(path), f"cannot open the store: {error}", "check the file is a calib store and the folder is writable") from None
-        store = cls(path, connection)
-        store._migrate()
-        store._claim(spec)
+            _unlock(lock_fd)
+            raise StoreWriteError(path, error) from None
+        try:
+            store._prepare(spec)
+        except BaseException:
+            store.close()
+            raise
         return store
+
+    def _prepare(self, spec) -> None:
+        """WAL mode, the tables, migration and the claim for ``spec``; SQLite errors become StoreWriteError."""
+        try:
+            self.db.execute("PRAGMA journal_mode=WAL")
+            self.db.execute("PRAGMA synchronous=NORMAL")
+            self.db.executescript(_SCHEMA)
+            self._migrate()
+            self._claim(spec)
+        except sqlite3.DatabaseError as error:
+            raise StoreWriteError(self.path, error) from None
 
     def _migrate(self) -> None:
         meta = dict(self.db.execute("SELECT key, value FROM campaign").fetchall())
         if not meta:
             return
-        found = int(meta.get("store_format", 1))
+        found = self.meta_int("store_format", 1)
         if found > STORE_FORMAT:
             raise InputError(str(self.path), f"written by a newer calib (store format {found}, this one reads {STORE_FORMAT})",
                              "upgrade calib to resume this campaign")
+        if found == STORE_FORMAT:
+            return  # nothing to migrate: resuming writes nothing before the first trial
         with self.transaction():
             for version in range(found + 1, STORE_FORMAT + 1):
                 for table, column, kind in _MIGRATIONS[version]:
@@ -162,7 +203,7 @@ class Store:
 
     # ----- writing --------------------------------------------------------------------------
     def transaction(self):
-        return _Transaction(self.db)
+        return _Transaction(self.db, self.path)
 
     def register_environment(self, versions: dict) -> str:
         env_id = stable_id(versions)
@@ -189,6 +230,24 @@ class Store:
     # ----- reading --------------------------------------------------------------------------
     def meta(self) -> dict:
         return dict(self.db.execute("SELECT key, value FROM campaign").fetchall())
+
+    def meta_int(self, key: str, default: int) -> int:
+        """An integer setting of the campaign table (InputError when the store holds something else)."""
+        value = self.meta().get(key, default)
+        try:
+            return int(value)
+        except (TypeError, ValueError):
+            raise InputError(str(self.path), f"campaign setting {key} = {value!r} is not an integer", DAMAGED_FIX) from None
+
+    def stored_spec(self) -> dict:
+        """The spec the campaign was run with (the parsed TOML, as stored)."""
+        try:
+            spec = json.loads(self.meta().get("spec", "{}"))
+        except ValueError:
+            spec = None
+        if not isinstance(spec, dict):
+            raise InputError(str(self.path), "the stored spec is not a JSON object", DAMAGED_FIX)
+        return spec
 
     def done_trial_ids(self) -> set[str]:
         return {row[0] for row in self.db.execute("SELECT DISTINCT trial_id FROM trials")}
@@ -222,7 +281,43 @@ class Store:
         return self.db.execute("SELECT COUNT(DISTINCT trial_id) FROM trials").fetchone()[0]
 
     def close(self) -> None:
-        self.db.close()
+        try:
+            self.db.close()
+        except sqlite3.Error:  # a broken disk must not hide the error that stopped the run
+            pass
+        _unlock(self._lock_fd)
+        self._lock_fd = None
+
+
+def connect_readonly(path: Path) -> tuple[sqlite3.Connection, set]:
+    """A read-only connection to ``path`` and the names of its tables.
+
+    A store in WAL mode needs its ``-shm`` file even for reading; in a read-only folder (a
+    read-only mount, a shared results folder) that file cannot be created, so the store is then
+    opened as immutable, which is exact when no ``-wal`` file holds writes not yet merged (calib
+    merges them when a run ends). The path is URI-quoted, so names holding ``?``, ``#`` or ``%``
+    open the right file.
+    """
+    uri = f"file:{quote(str(Path(path).resolve()))}?mode=ro"
+    try:
+        return _tables(sqlite3.connect(uri, uri=True))
+    except sqlite3.OperationalError:
+        folder = Path(path).resolve().parent
+        if os.access(folder, os.W_OK):
+            raise
+    wal = Path(f"{path}-wal")
+    if wal.exists() and wal.stat().st_size > 0:
+        raise InputError(str(path), f"the folder is read-only and {wal.name} holds writes not merged into the store",
+                         "copy the folder (all three files) somewhere writable and read the copy")
+    return _tables(sqlite3.connect(uri + "&immutable=1", uri=True))
+
+
+def _tables(connection: sqlite3.Connection) -> tuple[sqlite3.Connection, set]:
+    try:
+        return connection, {row[0] for row in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+    except sqlite3.DatabaseError:
+        connection.close()
+        raise
 
 
 def store_path(out_dir: str | Path, name: str, number: int) -> Path:
@@ -233,9 +328,8 @@ def store_path(out_dir: str | Path, name: str, number: int) -> Path:
 def stored_fingerprint(path: Path) -> Optional[str]:
     """The spec fingerprint of an existing store (None for an empty file)."""
     try:
-        connection = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+        connection, tables = connect_readonly(path)
         try:
-            tables = {row[0] for row in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
             if "campaign" not in tables:
                 return None
             row = connection.execute("SELECT value FROM campaign WHERE key = 'fingerprint'").fetchone()
@@ -268,17 +362,64 @@ def locate(spec, out_dir: str | Path, new_campaign: bool = False) -> tuple[Path,
     return path, False
 
 
+def _lock(path: Path) -> int:
+    """An exclusive ``flock`` on the store file (created empty when new): one writer per store.
+
+    flock is independent of the POSIX record locks SQLite itself uses (Linux ``flock(2)``), and the
+    kernel drops it when the process dies, so a killed run never leaves a stale lock behind.
+    """
+    try:
+        fd = os.open(path, os.O_RDONLY | os.O_CREAT, 0o666)
+    except OSError as error:
+        raise StoreWriteError(path, error.strerror or error) from None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(fd)
+        raise InputError(str(path), "another `calib run` is writing this store right now",
+                         "wait for it to finish (or stop it), then run the same command again to resume") from None
+    return fd
+
+
+def _unlock(fd: Optional[int]) -> None:
+    if fd is not None:
+        os.close(fd)  # closing the descriptor releases the flock
+
+
 class _Transaction:
-    def __init__(self, db: sqlite3.Connection):
+    """One write transaction; a write the disk refuses becomes :class:`StoreWriteError` after a rollback.
+
+    Only ``sqlite3.OperationalError`` is the environment's (full disk, read-only file or folder, I/O
+    error, a lock held elsewhere); any other SQLite error is a bug and keeps its traceback.
+    """
+
+    def __init__(self, db: sqlite3.Connection, path: Path):
         self.db = db
+        self.path = path
 
     def __enter__(self):
-        self.db.execute("BEGIN IMMEDIATE")
+        try:
+            self.db.execute("BEGIN IMMEDIATE")
+        except sqlite3.OperationalError as error:
+            raise StoreWriteError(self.path, error) from None
         return self.db
 
     def __exit__(self, kind, value, traceback):
-        self.db.execute("COMMIT" if kind is None else "ROLLBACK")
+        try:
+            self.db.execute("COMMIT" if kind is None else "ROLLBACK")
+        except sqlite3.OperationalError as error:
+            if kind is None:
+                self._rollback()
+                raise StoreWriteError(self.path, error) from None
+        if kind is not None and issubclass(kind, sqlite3.OperationalError):
+            raise StoreWriteError(self.path, value) from None
         return False
+
+    def _rollback(self) -> None:
+        try:
+            self.db.execute("ROLLBACK")
+        except sqlite3.Error:
+            pass  # SQLite already rolled the transaction back
 
 
 def json_or_none(value) -> Optional[str]:
