@@ -1,0 +1,6 @@
+NAME empty
+ROWS
+ N cost
+COLUMNS
+RHS
+ENDATA
