@@ -11,8 +11,9 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     from calib.analysis.success import PRESETS
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
-    group.add_argument("--preset", default="bound", choices=sorted(PRESETS),
-                       help="'bound': the projected optimum is within --tol-gap of the original (default); "
+    group.add_argument("--preset", default=None, choices=sorted(PRESETS),
+                       help="'bound': the projected optimum is within --tol-gap of the original (default; "
+                            "`probe` of a point set defaults to 'distortion'); "
                             "'solution': the retrieved point meets --tol-obj, --tol-feas and --tol-sign; "
                             "'classify': only the feasibility verdict must match; "
                             "'distortion': point sets, worst pairwise distortion within --tol-distortion")
@@ -36,12 +37,12 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                                                  "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
 
 
-def predicate_from(args: argparse.Namespace):
-    """(predicate, confidence) from the parsed options."""
+def predicate_from(args: argparse.Namespace, default_preset: str = "bound"):
+    """(predicate, confidence) from the parsed options; ``default_preset`` when --preset is not given."""
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
-    predicate = make_predicate(args.preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
+    predicate = make_predicate(args.preset or default_preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
                                sign=args.tol_sign, distortion=args.tol_distortion)
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
