@@ -117,7 +117,7 @@ def _law_text(law: dict) -> str:
 
 def render_summary(table: dict) -> str:
     """A plain-text view: per tolerance, one block per cell (one line per k), then the laws."""
-    from calib.analysis.tables import class_namer
+    from calib.analysis.tables import class_labels
 
     target = table["target"]
     lines = [f"campaign {table['campaign']['name']}: target rate {target['success_rate']:.2f} at "
@@ -126,12 +126,11 @@ def render_summary(table: dict) -> str:
         lines.append(f"\n=== predicate {analysis['predicate']['name']} (tau = {analysis['tau']})")
         for excluded in analysis["excluded"]:
             lines.append(f"  left out {excluded['family']}: {excluded['reason']}")
-        names = {family: class_namer([entry for entry in analysis["entries"] if entry["family"] == family])
-                 for family in {entry["family"] for entry in analysis["entries"]}}
+        label = class_labels(analysis)
         for entry in analysis["entries"]:
             safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
             note = f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else ""
-            extra = names[entry["family"]](entry["class_params"])
+            extra = label(entry)
             lines.append(f"\n{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | {entry['retrieval']} | "
                          f"m={entry['projected_dim']} n={entry['n_points']} -> safe k = {safe}{note}")
             lines.append(f"   {_transition_text(entry['transition'])}")
@@ -140,7 +139,7 @@ def render_summary(table: dict) -> str:
                 lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
                              f"  lower={point['lower_bound']:.3f}  {mark}")
         for law in analysis["laws"]:
-            extra = names[law["family"]](law["class_params"])
+            extra = label(law)
             lines.append(f"\n{law['family']}{' ' + extra if extra else ''} | {law['projector']} | {law['retrieval']}")
             lines.append(_law_text(law))
     lines.append("\n" + table["notice"])
