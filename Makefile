@@ -18,7 +18,7 @@ demo: venv
 	$(BIN)/calib run instances/quickstart.toml --out results/quickstart
 	$(BIN)/calib tables results/quickstart/quickstart.sqlite \
 	    --json results/quickstart/safe_k.json --csv results/quickstart/safe_k.csv \
-	    --timings results/quickstart/timings.csv
+	    --timings results/quickstart/timings.csv --tau 0.01 0.05 0.1
 	$(BIN)/calib report results/quickstart/quickstart.sqlite --html results/quickstart/report.html
 
 test: venv

@@ -53,6 +53,14 @@ def _interval(values) -> str:
     return "–" if not values else f"[{values[0]:.3g}, {values[1]:.3g}]"
 
 
+def _size_text(analysis: dict):
+    """entry -> its size, followed by the class parameters that tell its family's classes apart."""
+    from calib.analysis.tables import class_labels
+
+    label = class_labels(analysis)
+    return lambda entry: " ".join(filter(None, [entry["size"], label(entry)]))
+
+
 def entries_table(analysis: dict) -> str:
     """One line per cell: safe k, the transition and the published bounds with their ratios."""
     rules = sorted({name for entry in analysis["entries"] for name in entry["theory"]["bounds"]})
@@ -60,9 +68,10 @@ def entries_table(analysis: dict) -> str:
               "k50 interval", "k at target", "fit note", "eps"]
     header += [f"{rule} k (ratio)" for rule in rules]
     lines = []
+    size = _size_text(analysis)
     for entry in analysis["entries"]:
         fit, bounds = entry["transition"], entry["theory"]["bounds"]
-        line = [entry["family"], entry["size"], entry["projector"], entry["retrieval"], entry["projected_dim"],
+        line = [entry["family"], size(entry), entry["projector"], entry["retrieval"], entry["projected_dim"],
                 entry["n_points"], entry["safe_k"], entry["safe_fraction"], entry["safe_k_reason"], fit["k50"],
                 _interval(fit["k50_interval"]), fit["k_target"], fit["reason"], entry["theory"]["eps"]]
         line += [f"{bounds[rule]['k']} ({bounds[rule]['ratio']:.3g}×)" if rule in bounds and bounds[rule]["ratio"]
@@ -93,7 +102,8 @@ def grid_table(analysis: dict) -> str:
     """Every (cell, k) line of the analysis."""
     header = ["family", "size", "projector", "retrieval", "k", "trials", "successes", "errors", "rate",
               "Clopper-Pearson lower", "Wilson lower", "passes", "median error", "90% error"]
-    lines = [[entry["family"], entry["size"], entry["projector"], entry["retrieval"], point["k"], point["trials"],
+    size = _size_text(analysis)
+    lines = [[entry["family"], size(entry), entry["projector"], entry["retrieval"], point["k"], point["trials"],
               point["successes"], point["errors"], point["rate"], point["lower_bound"], point["wilson_lower"],
               "yes" if point["passes"] else "no", point["error_median"], point["error_q90"]]
              for entry in analysis["entries"] for point in entry["grid"]]

@@ -297,6 +297,13 @@ def class_namer(items: list[dict]):
     return lambda params: " ".join(f"{key}={json.dumps(params.get(key))}" for key in varying)
 
 
+def class_labels(analysis: dict):
+    """(family, class_params) -> the short class text of :func:`class_namer`, per family of the analysis."""
+    namers = {family: class_namer([item for item in analysis["entries"] if item["family"] == family])
+              for family in {item["family"] for item in analysis["entries"]}}
+    return lambda item: namers[item["family"]](item["class_params"]) if item["family"] in namers else ""
+
+
 def _class_key(entry: dict) -> tuple:
     return (entry["family"], json.dumps(entry["class_params"], sort_keys=True), entry["projector"], entry["retrieval"])
 

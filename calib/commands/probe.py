@@ -176,9 +176,9 @@ def run(args: argparse.Namespace) -> int:
 
     _check_numbers(args)
     check_target(args.json, "--json")
-    predicate, confidence = _predicate(args)
     choice = _projector_choice(args)
     target = resolve_target(args)
+    predicate, confidence = _predicate(args, "distortion" if target.kind == "points" else "bound")
     handler = HANDLERS[target.kind]
     retrievals = _check_retrievals(args, target.kind)
     m = handler.projected_dim(target.problem)
@@ -229,12 +229,12 @@ def _check_projector(choice, k: int, m: int) -> None:
         raise InputError("--projector-opt", str(error), f"check the options of projector {choice.name!r}") from None
 
 
-def _predicate(args: argparse.Namespace):
+def _predicate(args: argparse.Namespace, default_preset: str):
     from calib.commands.tables import predicate_from
 
     if not 0.0 < args.confidence < 1.0 or not 0.0 < args.delta < 1.0:
         raise InputError("--confidence/--delta", "must lie in (0, 1)", "e.g. --confidence 0.95 --delta 0.1")
-    return predicate_from(args)
+    return predicate_from(args, default_preset)
 
 
 def _stats(values: list) -> dict:
@@ -312,7 +312,11 @@ def render(target: Target, original, choice, k: int, k_source: str, m: int, reco
     statuses = ", ".join(f"{key} {count}" for key, count in projection["proj_status"].items() if key != "None")
     lines += ["", "summary (median / max over replicates):", f"  projection: {statuses or 'nothing to solve'}"]
     lines += _stat_lines(projection["metrics"])
-    tolerances = ", ".join(f"{key} <= {value:g}" for key, value in predicate.as_dict().items() if key != "name" and value is not None)
+    checks = predicate.as_dict()
+    tolerances = ", ".join(f"{key} <= {value:g}" for key, value in checks.items()
+                           if key not in ("name", "classify") and value is not None)
+    if checks.get("classify"):
+        tolerances = ", ".join(filter(None, ["feasibility verdict matches", tolerances]))
     for name, entry in summary["retrievals"].items():
         verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
         lines.append(f"  {name}: success {entry['successes']}/{entry['trials']} under '{predicate.name}' "

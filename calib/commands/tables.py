@@ -11,8 +11,9 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     from calib.analysis.success import PRESETS
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
-    group.add_argument("--preset", default="bound", choices=sorted(PRESETS),
-                       help="'bound': the projected optimum is within --tol-gap of the original (default); "
+    group.add_argument("--preset", default=None, choices=sorted(PRESETS),
+                       help="'bound': the projected optimum is within --tol-gap of the original (default; "
+                            "`probe` of a point set defaults to 'distortion'); "
                             "'solution': the retrieved point meets --tol-obj, --tol-feas and --tol-sign; "
                             "'classify': only the feasibility verdict must match; "
                             "'distortion': point sets, worst pairwise distortion within --tol-distortion")
@@ -36,12 +37,12 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                                                  "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
 
 
-def predicate_from(args: argparse.Namespace):
-    """(predicate, confidence) from the parsed options."""
+def predicate_from(args: argparse.Namespace, default_preset: str = "bound"):
+    """(predicate, confidence) from the parsed options; ``default_preset`` when --preset is not given."""
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
-    predicate = make_predicate(args.preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
+    predicate = make_predicate(args.preset or default_preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
                                sign=args.tol_sign, distortion=args.tol_distortion)
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
@@ -119,7 +120,7 @@ def _law_text(law: dict) -> str:
 
 def render_summary(table: dict) -> str:
     """A plain-text view: per tolerance, one block per cell (one line per k), then the laws."""
-    from calib.analysis.tables import class_namer
+    from calib.analysis.tables import class_labels
 
     target = table["target"]
     lines = [f"campaign {table['campaign']['name']}: target rate {target['success_rate']:.2f} at "
@@ -128,12 +129,11 @@ def render_summary(table: dict) -> str:
         lines.append(f"\n=== predicate {analysis['predicate']['name']} (tau = {analysis['tau']})")
         for excluded in analysis["excluded"]:
             lines.append(f"  left out {excluded['family']}: {excluded['reason']}")
-        names = {family: class_namer([entry for entry in analysis["entries"] if entry["family"] == family])
-                 for family in {entry["family"] for entry in analysis["entries"]}}
+        label = class_labels(analysis)
         for entry in analysis["entries"]:
             safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
             note = f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else ""
-            extra = names[entry["family"]](entry["class_params"])
+            extra = label(entry)
             lines.append(f"\n{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | {entry['retrieval']} | "
                          f"m={entry['projected_dim']} n={entry['n_points']} -> safe k = {safe}{note}")
             lines.append(f"   {_transition_text(entry['transition'])}")
@@ -142,7 +142,7 @@ def render_summary(table: dict) -> str:
                 lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
                              f"  lower={point['lower_bound']:.3f}  {mark}")
         for law in analysis["laws"]:
-            extra = names[law["family"]](law["class_params"])
+            extra = label(law)
             lines.append(f"\n{law['family']}{' ' + extra if extra else ''} | {law['projector']} | {law['retrieval']}")
             lines.append(_law_text(law))
     lines.append("\n" + table["notice"])
