@@ -22,7 +22,7 @@ SCS_RTOL = 1e-5
 def hs21() -> QP:
     # Hock & Schittkowski (1981), "Test examples for nonlinear programming codes", problem 21:
     # min 0.01 x1^2 + x2^2 - 100 s.t. 10 x1 - x2 >= 10, 2 <= x1 <= 50, -50 <= x2 <= 50;
-    # f* = -99.96 at x* = (2, 0). (Data checked against the CUTEst SIF transcription HS21.)
+    # f* = -99.96 at x* = (2, 0). (Data checked against the CUTEst SIF file of HS21.)
     return QP(Q=np.diag([0.02, 2.0]), c=np.zeros(2), A=[[-10.0, 1.0]], b=[-10.0],
               lower=[2.0, -50.0], upper=[50.0, 50.0], offset=-100.0, name="hs21").validate()
 
