@@ -144,7 +144,11 @@ def rel_diff(value: float, reference: float) -> Optional[float]:
 
 
 def ratio(numerator: float, denominator: float) -> float:
-    """numerator / max(1, denominator)."""
+    """numerator / max(1, denominator): the relative error of :mod:`calib.metrics` (absolute near zero).
+
+    >>> ratio(3.0, 4.0), ratio(0.5, 0.2)
+    (0.75, 0.5)
+    """
     return float(numerator) / max(1.0, float(denominator))
 
 

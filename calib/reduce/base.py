@@ -20,7 +20,7 @@ from typing import Any, Callable, ClassVar, Optional
 
 import numpy as np
 
-from calib.metrics import record, rel_diff
+from calib.metrics import ratio, record, rel_diff
 from calib.projectors.base import Projector
 from calib.solvers.result import SolveResult
 
@@ -141,7 +141,7 @@ def relative_residual(problem, x: np.ndarray) -> float:
     >>> relative_residual(StandardLP(c=[1.0], A=[[1.0]], b=[2.0]), np.array([1.0]))
     0.5
     """
-    return float(np.linalg.norm(problem.residual(x)) / max(1.0, np.linalg.norm(problem.b)))
+    return ratio(np.linalg.norm(problem.residual(x)), np.linalg.norm(problem.b))
 
 
 def solve_fields(original: SolveResult, projected: SolveResult, bound: str) -> dict:
@@ -157,7 +157,7 @@ def solve_fields(original: SolveResult, projected: SolveResult, bound: str) -> d
         values["proj_objective"] = projected.objective
     if original.ok and projected.ok:
         sign = 1.0 if bound == "relaxation" else -1.0
-        values["proj_gap"] = sign * (original.objective - projected.objective) / max(1.0, abs(original.objective))
+        values["proj_gap"] = ratio(sign * (original.objective - projected.objective), abs(original.objective))
     if original.feasible is not None and projected.feasible is not None:
         values["feasibility_agrees"] = original.feasible == projected.feasible
     return values

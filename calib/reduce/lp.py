@@ -41,6 +41,7 @@ import scipy.sparse as sp
 from calib.problems import StandardLP
 from calib.projectors.base import Projector
 from calib.reduce.affine import AffineSet, alternate, least_squares
+from calib.metrics import ratio
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler
 from calib.solvers.result import SolveResult
 
@@ -74,7 +75,7 @@ def sign_violation(x: np.ndarray) -> float:
     >>> sign_violation(np.array([3.0, -4.0]))
     0.8
     """
-    return float(np.linalg.norm(np.minimum(x, 0.0)) / max(1.0, np.linalg.norm(x)))
+    return ratio(np.linalg.norm(np.minimum(x, 0.0)), np.linalg.norm(x))
 
 
 def _highs_options(context: Context) -> dict:

@@ -26,6 +26,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.conic import QP
+from calib.metrics import ratio
 from calib.problems import Matrix
 from calib.projectors.base import Projector
 from calib.reduce.base import Context, Handler, Retrieved
@@ -61,7 +62,7 @@ def project_qp(qp: QP, projector: Projector) -> ReducedQP:
 
 def feas_error(qp: QP, x: np.ndarray) -> float:
     """Largest violation of the rows, bounds and ball of ``qp`` at x, over max(1, ||b||_inf)."""
-    return qp.violation(x) / max(1.0, float(np.abs(qp.b).max(initial=0.0)))
+    return ratio(qp.violation(x), np.abs(qp.b).max(initial=0.0))
 
 
 def _lift(context: Context) -> Retrieved:

@@ -33,6 +33,7 @@ import numpy as np
 
 from calib.conic import StandardSDP, smat, svec
 from calib.projectors.base import Projector
+from calib.metrics import ratio
 from calib.reduce.affine import AffineSet, alternate
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler
 from calib.solvers.result import SolveResult
@@ -62,7 +63,7 @@ def psd_violation(x: np.ndarray) -> float:
     0.8
     """
     values = np.linalg.eigvalsh(smat(x))
-    return float(np.linalg.norm(np.minimum(values, 0.0)) / max(1.0, np.linalg.norm(x)))
+    return ratio(np.linalg.norm(np.minimum(values, 0.0)), np.linalg.norm(x))
 
 
 def _affine(context: Context) -> Retrieved:
