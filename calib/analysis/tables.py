@@ -91,7 +91,9 @@ def _size_keys(family: str, params: dict) -> tuple:
 
 
 def _size_label(family: str, params: dict) -> str:
-    return ",".join(f"{key}={params[key]}" for key in _size_keys(family, params))
+    from calib.families.base import size_label
+
+    return size_label(_size_keys(family, params), params)
 
 
 def _class_params(family: str, params: dict) -> str:

@@ -96,6 +96,10 @@ class Family:
             raise InputError(_nested(where, error.where, self.defaults), error.problem, error.fix) from None
         return full
 
+    def size_label(self, params: dict) -> str:
+        """``key=value`` of the size keys, comma-separated (see :func:`size_label`)."""
+        return size_label(self.size_keys, params)
+
     def make(self, params: dict, index: int, rng: np.random.Generator) -> Instance:
         problem, info = self.build(params, rng)
         return Instance(family=self.name, params=params, index=index, kind=self.kind, problem=problem, info=info)
@@ -117,6 +121,15 @@ def _nested(where: str, inner: str, keys) -> str:
 
 
 REGISTRY: dict[str, Family] = {}
+
+
+def size_label(keys, params: dict) -> str:
+    """The label of an instance size: ``key=value`` for each of ``keys``, comma-separated.
+
+    >>> size_label(("rows", "cols"), {"rows": 20, "cols": 40, "density": 0.5})
+    'rows=20,cols=40'
+    """
+    return ",".join(f"{key}={params[key]}" for key in keys)
 
 
 def register(family: Family) -> Family:

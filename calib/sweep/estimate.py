@@ -37,7 +37,7 @@ class SizePlan:
     def label(self) -> str:
         from calib.families import get
 
-        return f"{self.family} " + ",".join(f"{key}={self.params[key]}" for key in get(self.family).size_keys)
+        return f"{self.family} " + get(self.family).size_label(self.params)
 
 
 def size_plans(spec: Spec) -> list[SizePlan]:

@@ -166,7 +166,7 @@ def rerun(store: Store, trial_text: str) -> Comparison:
 def _size(family: str, params: dict) -> str:
     from calib.families import get
 
-    return ",".join(f"{key}={params[key]}" for key in get(family).size_keys)
+    return get(family).size_label(params)
 
 
 def _compare_original(comparison: Comparison, stored: dict, fresh) -> None:
