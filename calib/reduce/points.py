@@ -15,6 +15,7 @@ projector and replicate is measured on the same pairs.
 from __future__ import annotations
 
 import time
+from typing import Optional
 
 import numpy as np
 
@@ -48,16 +49,36 @@ def pair_sample(n_points: int, max_pairs: int = MAX_PAIRS) -> tuple[np.ndarray, 
     return i, j
 
 
-def pair_distortions(points: np.ndarray, projected: np.ndarray, i: np.ndarray, j: np.ndarray) -> np.ndarray:
-    """|‖y_i - y_j‖² / ‖p_i - p_j‖² - 1| for each pair, with points (n, d) and projected (n, k)."""
+def pair_squared_distances(points: np.ndarray, i: np.ndarray, j: np.ndarray) -> np.ndarray:
+    """‖p_i - p_j‖² for each pair, with points of shape (n, d); computed in chunks of bounded memory."""
     out = np.empty(i.size)
-    step = max(1, CHUNK_ENTRIES // max(points.shape[1], projected.shape[1]))
+    step = max(1, CHUNK_ENTRIES // points.shape[1])
     for start in range(0, i.size, step):
         a, b = i[start:start + step], j[start:start + step]
-        before = np.sum((points[a] - points[b]) ** 2, axis=1)
-        after = np.sum((projected[a] - projected[b]) ** 2, axis=1)
-        out[start:start + step] = np.abs(after / before - 1.0)
+        out[start:start + step] = np.sum((points[a] - points[b]) ** 2, axis=1)
     return out
+
+
+def pair_distortions(points: np.ndarray, projected: np.ndarray, i: np.ndarray, j: np.ndarray,
+                     before: Optional[np.ndarray] = None) -> np.ndarray:
+    """|‖y_i - y_j‖² / ‖p_i - p_j‖² - 1| for each pair, with points (n, d) and projected (n, k).
+
+    ``before`` may carry the original squared distances of these pairs (they do not depend on T).
+    """
+    if before is None:
+        before = pair_squared_distances(points, i, j)
+    return np.abs(pair_squared_distances(projected, i, j) / before - 1.0)
+
+
+def _original_pairs(points: PointSet):
+    """(i, j, original squared distances) of the sampled pairs, cached on the point set: every trial
+    of an instance measures the same pairs, and a worker keeps its instances between trials."""
+    cached = points.__dict__.get("_calib_pairs")
+    if cached is None:
+        i, j = pair_sample(points.n_points)
+        cached = (i, j, pair_squared_distances(points.points, i, j))
+        points.__dict__["_calib_pairs"] = cached
+    return cached
 
 
 class PointsHandler(Handler):
@@ -84,8 +105,8 @@ class PointsHandler(Handler):
         start = time.perf_counter()
         projected = np.asarray(projector.apply(points.columns)).T
         t_sketch = projector.draw_seconds + (time.perf_counter() - start)
-        i, j = pair_sample(points.n_points)
-        distortion = pair_distortions(points.points, projected, i, j)
+        i, j, before = _original_pairs(points)
+        distortion = pair_distortions(points.points, projected, i, j, before)
         values = dict(distortion_max=distortion.max(), distortion_q99=np.quantile(distortion, 0.99),
                       pairs_checked=i.size, t_sketch=t_sketch)
         return [record(**values) for _ in cls.retrieval_names(retrievals)]
