@@ -33,7 +33,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.errors import InputError
-from calib.problems import Matrix, _check_finite, _finite_or_inf
+from calib.problems import Matrix, _check_finite, _finite_or_inf, as_matrix
 
 SQRT2 = float(np.sqrt(2.0))
 
@@ -168,10 +168,6 @@ def qp_points(n_inequalities: int) -> int:
     return int(n_inequalities) + 2
 
 
-def _as_matrix(A) -> Matrix:
-    return sp.csr_array(A, dtype=float) if sp.issparse(A) else np.atleast_2d(np.asarray(A, dtype=float))
-
-
 @dataclass
 class StandardSDP:
     """min <C, X> + offset s.t. <A_i, X> = b_i (i < m), X symmetric positive semidefinite.
@@ -196,7 +192,7 @@ class StandardSDP:
 
     def __post_init__(self) -> None:
         self.C = np.atleast_2d(np.asarray(self.C.toarray() if sp.issparse(self.C) else self.C, dtype=float))
-        self.A = _as_matrix(self.A)
+        self.A = as_matrix(self.A)
         self.b = np.asarray(self.b, dtype=float).ravel()
 
     @classmethod
@@ -298,10 +294,10 @@ class QP:
     def __post_init__(self) -> None:
         self.c = np.asarray(self.c, dtype=float).ravel()
         n = self.c.size
-        self.Q = _as_matrix(self.Q)
-        self.A = np.zeros((0, n)) if self.A is None else _as_matrix(self.A)
+        self.Q = as_matrix(self.Q)
+        self.A = np.zeros((0, n)) if self.A is None else as_matrix(self.A)
         self.b = np.zeros(0) if self.b is None else np.asarray(self.b, dtype=float).ravel()
-        self.ball_map = None if self.ball_map is None else _as_matrix(self.ball_map)
+        self.ball_map = None if self.ball_map is None else as_matrix(self.ball_map)
         self.radius = None if self.radius is None else float(self.radius)
         self.lower = _finite_or_inf(np.full(n, -np.inf) if self.lower is None else self.lower)
         self.upper = _finite_or_inf(np.full(n, np.inf) if self.upper is None else self.upper)

@@ -35,6 +35,11 @@ def _finite_or_inf(values: np.ndarray) -> np.ndarray:
     return values
 
 
+def as_matrix(A) -> "Matrix":
+    """Float CSR for sparse input, a 2-D float ndarray otherwise (the one coercion of constraint matrices)."""
+    return sp.csr_array(A, dtype=float) if sp.issparse(A) else np.atleast_2d(np.asarray(A, dtype=float))
+
+
 def _check_finite(name: str, where: str, values) -> None:
     data = values.data if sp.issparse(values) else np.asarray(values)
     if not np.all(np.isfinite(data)):
@@ -64,10 +69,7 @@ class StandardLP:
     def __post_init__(self) -> None:
         self.c = np.asarray(self.c, dtype=float).ravel()
         self.b = np.asarray(self.b, dtype=float).ravel()
-        if sp.issparse(self.A):
-            self.A = sp.csr_array(self.A, dtype=float)
-        else:
-            self.A = np.atleast_2d(np.asarray(self.A, dtype=float))
+        self.A = as_matrix(self.A)
 
     @property
     def n_rows(self) -> int:

@@ -170,8 +170,7 @@ class Store:
             raise StoreWriteError(self.path, error) from None
 
     def _migrate(self) -> None:
-        meta = dict(self.db.execute("SELECT key, value FROM campaign").fetchall())
-        if not meta:
+        if not self.meta():
             return
         found = self.meta_int("store_format", 1)
         if found > STORE_FORMAT:
@@ -188,7 +187,7 @@ class Store:
             self.db.execute("INSERT OR REPLACE INTO campaign (key, value) VALUES ('store_format', ?)", (str(STORE_FORMAT),))
 
     def _claim(self, spec) -> None:
-        existing = dict(self.db.execute("SELECT key, value FROM campaign").fetchall())
+        existing = self.meta()
         if existing:
             if existing.get("fingerprint") != spec.fingerprint:  # locate() only picks matching stores
                 raise InputError(str(self.path), f"campaign {spec.name!r} already exists with a different spec",
