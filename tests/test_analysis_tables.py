@@ -199,7 +199,7 @@ def test_tables_command_writes_timings_apart(store_path, tmp_path, capsys):
     assert main(["tables", str(store_path), "--json", str(json_path), "--timings", str(timings), "--tau", "0.05"]) == 0
     assert "seconds" not in json_path.read_text() and "_s\"" not in json_path.read_text()
     frame = pd.read_csv(timings)
-    assert {"orig_median_s", "reduced_median_s", "speedup", "at_safe_k"} <= set(frame.columns)
+    assert {"baseline_median_s", "reduced_median_s", "speedup", "faster_share", "at_safe_k"} <= set(frame.columns)
     at_safe = frame[frame["at_safe_k"]]
     assert len(at_safe) == 3 and np.all(at_safe["speedup"] > 0)
     assert main(["tables", str(store_path), "--delta", "1.5"]) == 2

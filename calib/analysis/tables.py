@@ -17,7 +17,9 @@ published bounds.
 
 A table holds one analysis per tolerance of a ladder (``taus``), all at one confidence target.
 Timings are not part of the table (they differ between two runs of one campaign, the table must
-not): see :mod:`calib.analysis.timing`. These are empirical statements about the instances
+not): see :mod:`calib.analysis.timing`. The one exception is asked for explicitly: the policy
+answer (:mod:`calib.analysis.policy`, ``policy=True`` or a predicate requiring time saved) rests
+on measured times, and a table carrying it can differ between runs. These are empirical statements about the instances
 measured, not proofs.
 """
 
@@ -33,6 +35,7 @@ import pandas as pd
 
 from calib import SCHEMA_VERSION, __version__, theory
 from calib.analysis import bounds
+from calib.analysis import policy as policy_answer
 from calib.analysis.law import Law, fit_law
 from calib.analysis.logistic import LogisticFit, fit_logistic
 from calib.analysis.stats import clopper_pearson_lower, wilson_lower
@@ -185,10 +188,15 @@ def _error_column(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
     return error
 
 
-def summarise(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence) -> pd.DataFrame:
-    """Per (cell, k): trials, successes, rate, bounds, error quantiles; rows already covered."""
+def summarise(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, policy: bool = False) -> pd.DataFrame:
+    """Per (cell, k): trials, successes, rate, bounds, error quantiles (and, with ``policy``, the
+    columns of :mod:`calib.analysis.policy`); rows already covered."""
     rows = rows.assign(success=evaluate(rows, predicate).astype(int), error=_error_column(rows, predicate))
-    grouped = rows.groupby(CELL_KEYS + ["k"], sort=True).agg(
+    extra = {}
+    if policy:
+        rows = pd.concat([rows, policy_answer.row_columns(rows, predicate)], axis=1)
+        extra = policy_answer.aggregations()
+    grouped = rows.groupby(CELL_KEYS + ["k"], sort=True).agg(**extra,
         trials=("success", "size"), successes=("success", "sum"), kind=("kind", "first"),
         class_params=("class_params", "first"), projected_dim=("projected_dim", "first"),
         n_points=("n_points", "first"), k_label=("k_label", "first"),
@@ -249,7 +257,7 @@ def cell_entry(cell: pd.DataFrame, predicate: Predicate, confidence: Confidence,
         "transition": transition(fit, confidence),
         "theory": _theory(first["kind"], n_points, safe_k, predicate, eps),
         "grid": _grid(cell),
-    }
+    } | policy_answer.entry_block(cell, confidence)
 
 
 # ----- per class: laws ----------------------------------------------------------------------
@@ -333,8 +341,10 @@ def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
     return mask, items
 
 
-def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None) -> dict:
-    """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws."""
+def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None,
+                   policy: bool = False) -> dict:
+    """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws;
+    with ``policy`` (or a predicate that requires saving time) each entry carries its policy answer."""
     unbounded, excluded_unbounded = unbounded_exclusions(rows)
     rows = rows[~unbounded]
     covered = rows["kind"].map(predicate.covers).astype(bool)
@@ -344,7 +354,7 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
     excluded += excluded_unbounded
     entries = []
     if covered.any():
-        summary = summarise(rows[covered], predicate, confidence)
+        summary = summarise(rows[covered], predicate, confidence, policy or predicate.faster)
         entries = [cell_entry(cell, predicate, confidence, eps) for _, cell in summary.groupby(CELL_KEYS, sort=True)]
     classes: dict[tuple, list] = {}
     for entry in entries:
@@ -356,8 +366,9 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
 
 def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                 taus: Optional[Iterable[float]] = None, eps: Optional[float] = None,
-                rows: Optional[pd.DataFrame] = None) -> dict:
-    """The JSON-ready safe-k table of a store: one analysis per tau of the ladder (or the predicate alone)."""
+                rows: Optional[pd.DataFrame] = None, policy: bool = False) -> dict:
+    """The JSON-ready safe-k table of a store: one analysis per tau of the ladder (or the predicate alone);
+    ``policy`` adds the policy answer of :mod:`calib.analysis.policy` (it depends on measured times)."""
     rows = load_rows(store) if rows is None else rows
     if rows.empty:
         raise InputError(str(store.path), "the store has no trial rows yet", "run `calib run SPEC` first")
@@ -373,7 +384,7 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                    "interval": "two-sided delta-method interval on ln k at the same confidence"},
         "theory": {"rules": sorted(theory.RULES), "eps_choice": eps, "eps_convention": bounds.EPS_CONVENTION},
         "notice": NOTICE,
-        "analyses": [build_analysis(rows, each, confidence, eps) for each in predicates],
+        "analyses": [build_analysis(rows, each, confidence, eps, policy) for each in predicates],
     }
     return seal(table)
 

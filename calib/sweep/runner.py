@@ -154,7 +154,7 @@ class Coordinator:
         self._in_flight += 1
 
     def _queue_trials(self, trials: list[Trial], stored_row: dict) -> None:
-        original = {name: stored_row[name] for name in ORIGINAL_FIELDS}
+        original = {name: stored_row.get(name) for name in ORIGINAL_FIELDS}
         retrievals = tuple(retrieval_names(stored_row["kind"], self.spec.retrievals))
         self._ready.extend(TrialTask(trial, retrievals, self.spec.solver, original, self.spec.plugins) for trial in trials)
 
