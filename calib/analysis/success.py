@@ -33,9 +33,12 @@ warm start must also have saved simplex iterations (iterations_saved > 0). Such 
 on measured times, so it can differ between two runs of one campaign.
 
 Exact retrievals (``exact`` in the record: a warm start, or a restricted repair that widened to all
-columns) return the original's own optimum: their errors are zero by construction. Under every
-preset that judges the retrieved point (``usable``, ``policy``, a custom set of ``obj``/``feas``/
-``sign``) they succeed only when they also save time in the sense above, never by error alone.
+columns) return the original's own optimum: their errors are zero by construction, so their
+success is about saving time, never about error. With the cost condition (``policy``,
+``--faster``) they succeed exactly when they save time. Under a preset that judges the retrieved
+point without it (``usable``, custom ``obj``/``feas``/``sign``) they count as failures: the
+reduction gave no answer of its own, and those presets must not depend on measured times (their
+tables are byte-identical between runs). ``bound`` and ``classify`` never look at the point.
 
 The *primary tolerance* tau of a preset is the tolerance(s) it sets; :func:`with_tau` moves them
 together, which is how a table carries a ladder of tolerances.
@@ -213,12 +216,9 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
         values = pd.to_numeric(rows[column], errors="coerce").abs()
         # a checked metric that is missing where it applies is a failure, never a pass
         success &= ~applies | (values.le(tolerance) & values.notna())
-    solved = rows["kind"].isin(OPTIMIZATION_KINDS)
-    if predicate.faster or predicate.judges_points():
-        saves = saves_time(rows)
-        if predicate.faster:
-            success &= ~solved | saves
-        if predicate.judges_points() and "exact" in rows:
-            success &= ~rows["exact"].eq(True) | saves  # an exact retrieval succeeds by saving, never by error
+    if predicate.faster:
+        success &= ~rows["kind"].isin(OPTIMIZATION_KINDS) | saves_time(rows)
+    elif predicate.judges_points() and "exact" in rows:
+        success &= ~rows["exact"].eq(True)  # solved the original: no answer of the reduction, and no time to judge it by
     covered = rows["kind"].map(predicate.covers).astype(bool)
     return success & covered
