@@ -60,7 +60,7 @@ def psd_violation(x: np.ndarray) -> float:
 
     ||X_-||_F is the 2-norm of the negative eigenvalues, and ||X||_F = ||x|| (svec keeps norms).
 
-    >>> psd_violation(svec(np.diag([3.0, -4.0]))), psd_violation(svec(np.diag([0.03, -0.04])))
+    >>> psd_violation(svec(np.diag([3.0, -4.0]))), round(psd_violation(svec(np.diag([0.03, -0.04]))), 12)
     (0.8, 0.8)
     """
     values = np.linalg.eigvalsh(smat(x))

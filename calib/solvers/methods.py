@@ -51,15 +51,20 @@ def _nonzeros(A) -> int:
     return int(A.nnz) if sp.issparse(A) else int(np.count_nonzero(A))
 
 
-def auto_lp_method(A) -> str:
-    """The ``auto`` method of an LP with constraint matrix A (rule in the module docstring).
+def dense_and_large(A) -> bool:
+    """At least :data:`DENSE_IPM_NONZEROS` nonzeros filling at least :data:`DENSE_IPM_FILL` of A.
 
-    >>> auto_lp_method(np.ones((400, 1000))), auto_lp_method(sp.identity(1000, format="csr"))
-    ('ipm', 'simplex')
+    >>> dense_and_large(np.ones((400, 1000))), dense_and_large(sp.identity(1000, format="csr"))
+    (True, False)
     """
     m, n = A.shape
     nonzeros = _nonzeros(A)
-    return "ipm" if nonzeros >= DENSE_IPM_NONZEROS and nonzeros >= DENSE_IPM_FILL * m * n else "simplex"
+    return nonzeros >= DENSE_IPM_NONZEROS and nonzeros >= DENSE_IPM_FILL * m * n
+
+
+def auto_lp_method(A) -> str:
+    """The ``auto`` method of an LP with constraint matrix A: ``ipm`` when :func:`dense_and_large`, else ``simplex``."""
+    return "ipm" if dense_and_large(A) else "simplex"
 
 
 def configured(kind: str, solver: dict) -> tuple[str, ...]:
