@@ -329,9 +329,11 @@ def render(target: Target, original, choice, k: int, k_source: str, m: int, reco
     lines += _stat_lines(projection["metrics"])
     checks = predicate.as_dict()
     tolerances = ", ".join(f"{key} <= {value:g}" for key, value in checks.items()
-                           if key not in ("name", "classify") and value is not None)
+                           if key not in ("name", "classify", "faster") and value is not None)
     if checks.get("classify"):
         tolerances = ", ".join(filter(None, ["feasibility verdict matches", tolerances]))
+    if checks.get("faster"):
+        tolerances = ", ".join(filter(None, [tolerances, "faster end to end than the fair baseline"]))
     for name, entry in summary["retrievals"].items():
         verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
         lines.append(f"  {name}: success {entry['successes']}/{entry['trials']} under '{predicate.name}' "
