@@ -114,3 +114,16 @@ def test_policy_k_is_the_fastest_k_whose_bound_meets_the_target():
     none = entry_block(_cell([9, 9, 0], [0.2, 0.3, 2.0]), confidence)["policy"]
     assert none["k"] is None and none["answer"] == NO_SAVING
     assert policy_k([1, 2], [True, True], [0.3, 0.3]) == (1, 0)  # ties: the smaller k
+
+
+def test_policy_counts_an_exact_retrieval_that_saves_time():
+    # A warm start is a failure under the time-free usable preset but a policy success when it saves time.
+    from calib.analysis.policy import row_columns
+    from calib.analysis.success import PRESETS
+    from calib.metrics import record
+
+    base = dict(orig_status="optimal", proj_status="optimal", obj_error=0.0, feas_error=0.0, sign_violation=0.0,
+                exact=True, t_baseline=2.0, iterations_saved=5)
+    rows = pd.DataFrame([{**record(**base, t_total=1.0), "status": "ok", "kind": "lp"},
+                         {**record(**base, t_total=3.0), "status": "ok", "kind": "lp"}])
+    assert row_columns(rows, PRESETS["usable"])["policy_success"].tolist() == [1, 0]
