@@ -402,6 +402,8 @@ def table_to_frame(table: dict) -> pd.DataFrame:
                                                   "n_points", "safe_k", "safe_fraction", "safe_k_reason")}
             base |= {"k50": entry["transition"]["k50"], "k_target": entry["transition"]["k_target"],
                      "law_a": law["a"], "law_C": law["C"], "error_metric": entry["error_metric"]}
+            if "policy" in entry:
+                base["policy_k"] = entry["policy"]["k"]
             for point in entry["grid"]:
                 lines.append({**base, **point})
     frame = pd.DataFrame(lines)
