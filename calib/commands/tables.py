@@ -35,6 +35,10 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                             "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
     group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
                                                  "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
+    group.add_argument("--solver-errors", default="exclude", metavar="{exclude,fail}",
+                       help="projected solves that end in a solver error: 'exclude' counts them in their own column and "
+                            "leaves them out of the rates (default); 'fail' counts them as failures (strict reading). "
+                            "A time limit is always a failure")
 
 
 def predicate_from(args: argparse.Namespace, default_preset: str = "bound"):
@@ -59,7 +63,8 @@ def analyse(args: argparse.Namespace):
     store = Store.open_existing(args.store)
     try:
         rows = load_rows(store)
-        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows)
+        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows,
+                            solver_errors=getattr(args, "solver_errors", "exclude"))
         spec = store.stored_spec()
     finally:
         store.close()
@@ -76,7 +81,7 @@ def register(subparsers) -> None:
                     "and/or CSV when asked. Timings go to their own file (--timings): they differ between runs, "
                     "the table does not.")
     parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
-    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v1.json)")
+    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v2.json)")
     parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
     parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
     add_analysis_options(parser)
