@@ -82,14 +82,17 @@ def test_rank_planted_lp_needs_about_its_rank(table_file):
 
 
 def test_theory_ratios_use_the_stated_eps(table_file):
-    # Dasgupta-Gupta (2003) at the eps the table states; ratio = bound / safe k.
+    # Dasgupta-Gupta (2003, proof of Theorem 2.1: per-pair failure <= 2 exp(-k c / 2), union over
+    # n(n-1)/2 pairs) at the eps and the failure probability delta the table states; ratio = bound / safe k.
     table = json.loads(table_file.read_text())
+    delta = table["target"]["delta"]
     for analysis in table["analyses"]:
         for entry in analysis["entries"]:
-            eps = entry["theory"]["eps"]
-            assert eps == analysis["tau"]
+            eps, n = entry["theory"]["eps"], entry["n_points"]
+            assert eps == analysis["tau"] and entry["theory"]["failure"] == delta
             bound = entry["theory"]["bounds"]["dasgupta-gupta"]
-            assert bound["k"] == math.ceil(4 * math.log(entry["n_points"]) / (eps**2 / 2 - eps**3 / 3))
+            assert bound["failure"] == delta
+            assert bound["k"] == math.ceil(2 * math.log(n * (n - 1) / delta) / (eps**2 / 2 - eps**3 / 3))
             if entry["safe_k"]:
                 assert bound["ratio"] == pytest.approx(bound["k"] / entry["safe_k"], rel=1e-5)
         for law in analysis["laws"]:
@@ -121,7 +124,7 @@ def test_csv_has_one_line_per_tau_cell_and_k(table_file, tmp_path):
 
 @pytest.mark.parametrize("edit, message", [
     (lambda t: t["analyses"][0]["entries"][0].update(safe_k=3), "checksum mismatch"),
-    (lambda t: t.update(format_version=2), "format version 2"),
+    (lambda t: t.update(format_version=1), "format version 1"),
     (lambda t: t["analyses"][0]["entries"][0].pop("grid"), "schema"),
     (lambda t: t.update(format="other"), "not a calib safe-k table"),
 ])

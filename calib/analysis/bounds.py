@@ -9,7 +9,7 @@ How a success predicate is turned into the eps of the theory (written into every
   "the bound at eps = tau"). Predicates without a tolerance (``classify``) need ``--eps``.
 
 Every rule of :data:`calib.theory.RULES` maps (n, eps) -> k. Its constant C_rule in k = C ln n is
-read off the rule itself as (k(e^35) - k(e^5)) / 30, which is exact for rules linear in ln n up to
+read off the rule itself as (k(e^50) - k(e^20)) / 30, which is exact for rules linear in ln n up to
 their rounding (error <= 1/30). The ratios reported are bound k / measured safe k per size and
 C_rule / C_fitted per law: how far below the theory the measurements sit.
 
@@ -39,7 +39,7 @@ import numpy as np
 from calib import theory
 from calib.analysis.success import Predicate, primary_tau
 
-_LOG_SPAN = (5.0, 35.0)
+_LOG_SPAN = (20.0, 50.0)
 
 EPS_CONVENTION = ("point sets: eps is the distortion tolerance; LPs, SDPs, QPs: eps is --eps when given, else "
                   "the predicate's primary tolerance tau (a stated convention, not a theorem)")
