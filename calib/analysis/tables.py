@@ -411,13 +411,16 @@ def table_to_frame(table: dict) -> pd.DataFrame:
             base = {"tau": analysis["tau"], "predicate": analysis["predicate"]["name"]}
             base |= {key: entry[key] for key in ("family", "size", "projector", "retrieval", "kind", "projected_dim",
                                                   "n_points", "safe_k", "safe_fraction", "safe_k_reason")}
+            base |= {"instances": entry["instances"], "class_safe_k": entry["class"]["safe_k"],
+                     "class_reason": entry["class"]["reason"], "cell_solver_errors": entry["solver_errors"]}
             base |= {"k50": entry["transition"]["k50"], "k_target": entry["transition"]["k_target"],
                      "law_a": law["a"], "law_C": law["C"], "error_metric": entry["error_metric"]}
             for point in entry["grid"]:
                 lines.append({**base, **point})
     frame = pd.DataFrame(lines)
     if not frame.empty:
-        frame["safe_k"] = frame["safe_k"].astype("Int64")
+        for column in ("safe_k", "class_safe_k"):
+            frame[column] = frame[column].astype("Int64")
     return frame
 
 
