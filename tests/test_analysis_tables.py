@@ -160,12 +160,15 @@ def test_lookup_round_trips_k_to_success_to_k(table_file):
 
 def test_lookup_answers_from_the_law_and_flags_extrapolation(table_file, capsys):
     table = read_table(table_file)
-    inside = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05))
-    outside = k_for(table, Query("lp-planted", 5000, "gaussian", tau=0.05))
+    inside = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05, scope="instances"))
+    outside = k_for(table, Query("lp-planted", 5000, "gaussian", tau=0.05, scope="instances"))
     assert inside["safe_k"] == 8 and not inside["extrapolated"]
-    assert outside["safe_k"] == 8 and outside["extrapolated"]
+    assert outside["safe_k"] == 8 and outside["extrapolated"] and "20.7 x the largest measured n" in outside["extrapolation"]
+    # the class answer (the default): one instance per size cannot speak for the class
+    klass = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05))
+    assert klass["safe_k"] is None and "29 are needed" in klass["method"]
     # a looser target can only lower the answer (the monotone rule on the same counts)
-    looser = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05), Confidence(delta=0.5, level=0.95))
+    looser = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05, scope="instances"), Confidence(delta=0.5, level=0.95))
     assert looser["safe_k"] <= inside["safe_k"]
     # a tau between ladder steps is answered conservatively by the stricter step
     assert k_for(table, Query("lp-planted", 170, "gaussian", tau=0.03))["tau"] == 0.01
@@ -175,6 +178,15 @@ def test_lookup_answers_from_the_law_and_flags_extrapolation(table_file, capsys)
                  "--k", "7", "--tau", "0.05", "--json"]) == 0
     answer = json.loads(capsys.readouterr().out)
     assert 0 < answer["success"] < 1 and answer["error"]["metric"] == "proj_gap"
+    # in the family's own size keys: n and m from the family, a measured size answered as measured
+    assert main(["lookup", str(table_file), "--family", "lp-planted", "--size", "rows=60,cols=120", "--param", "rank=8",
+                 "--projector", "gaussian", "--tau", "0.05", "--scope", "instances", "--json"]) == 0
+    answer = json.loads(capsys.readouterr().out)
+    assert (answer["n"], answer["m"], answer["safe_k"]) == (121, 60, 8) and answer["method"] == "measured at this size"
+    # a size whose m is below what the class needs (the law gives 8): no reduction, never a k above m
+    assert main(["lookup", str(table_file), "--family", "lp-planted", "--n", "5000", "--m", "6",
+                 "--projector", "gaussian", "--tau", "0.05", "--scope", "instances"]) == 0
+    assert "no reduction meets the target at this size" in capsys.readouterr().out
 
 
 def test_lookup_refuses_unknown_classes_and_bad_values(table_file):

@@ -230,11 +230,16 @@ class ClassScope:
     anova: Anova
 
 
+def design_rho(anova: Anova, cluster_size, confidence: float) -> float:
+    """The rho_U of the design effect: 0 when every instance has one trial per k (no clustering)."""
+    return 0.0 if np.all(np.asarray(cluster_size) <= 1.0) else anova.rho_upper(confidence)
+
+
 def class_scope(counts: CellCounts, confidence: float) -> ClassScope:
     """Per-k class lower bounds of one cell (module text)."""
     anova = pooled_anova(counts)
     size = mean_cluster_size(counts.trials)
-    rho_upper = 0.0 if np.all(size <= 1.0) else anova.rho_upper(confidence)
+    rho_upper = design_rho(anova, size, confidence)
     successes, trials = counts.successes.sum(axis=1), counts.trials.sum(axis=1)
     lower = class_lower_bound(successes, trials, size, rho_upper, confidence)
     effective = trials / (1.0 + (size - 1.0) * rho_upper)
