@@ -207,3 +207,34 @@ def test_class_answer_is_in_the_table_json():
     assert entry["instances"] == 3 and entry["safe_k"] == 4 and entry["class"]["safe_k"] is None
     assert entry["class"]["reason"].startswith("3 instances cannot certify 90% at 95% confidence")
     json.dumps(entry, allow_nan=False)
+
+
+# ----- design advice before spending -----------------------------------------------------------
+
+@pytest.mark.parametrize("instances, replicates", [(3, 10), (10, 3), (30, 1), (10, 2), (1, 29), (28, 1)])
+def test_design_advice_matches_the_exact_binomial_bound(instances, replicates):
+    # Reference: scipy.stats.binomtest exact interval (one-sided 95% = lower end of two-sided 90%).
+    # For the instances: all N = instances x replicates trials succeeding must reach 0.9. For the class,
+    # when each instance decides alone: all instances succeeding must reach 0.9.
+    from calib.analysis.scope import design_advice
+
+    def reaches(n):
+        return stats.binomtest(n, n).proportion_ci(confidence_level=0.90, method="exact").low >= 0.9
+
+    advice = design_advice(instances, replicates, 0.9, 0.95)
+    assert advice["instances_ok"] == reaches(instances * replicates)
+    assert advice["class_sure"] == reaches(instances)
+    assert reaches(instances * advice["replicates_needed"]) and reaches(instances + advice["instances_to_add"])
+    assert advice["class_possible"] == (reaches(instances) or (replicates > 1 and reaches(instances * replicates)))
+
+
+def test_dry_run_gives_the_advice_per_size(tmp_path, capsys):
+    from calib.cli import main
+
+    spec = tmp_path / "spec.toml"
+    spec.write_text('[campaign]\nname = "advice"\nroot_seed = 1\nreplicates = 1\n\n[[families]]\nname = "lp-planted"\n'
+                    'sizes = [{rows = 20, cols = 40}]\ninstances = 10\n\n[sweep]\nprojectors = ["gaussian"]\nk = [4, 8]\n')
+    assert main(["run", str(spec), "--dry-run", "--no-probe", "--out", str(tmp_path / "out")]) == 0
+    out = capsys.readouterr().out
+    assert "these instances: cannot certify 90% at 95% (10 trials per k, 29 needed): use replicates = 3" in out
+    assert "the class: cannot certify 90% at 95% with 10 instance(s) x 1 replicate(s); use instances = 29 (add 19)" in out

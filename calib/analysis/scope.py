@@ -244,3 +244,56 @@ def class_scope(counts: CellCounts, confidence: float) -> ClassScope:
     lower = class_lower_bound(successes, trials, size, rho_upper, confidence)
     effective = trials / (1.0 + (size - 1.0) * rho_upper)
     return ClassScope(lower, effective, size, anova.rho(), rho_upper, anova)
+
+
+def design_advice(instances: int, replicates: int, target: float, confidence: float) -> dict:
+    """What a design of ``instances`` x ``replicates`` trials per k can certify, before any trial runs.
+
+    - for the instances measured: all instances x replicates trials at a k must be able to reach
+      the target, so instances x replicates >= :func:`trials_needed`; else the smallest change is
+      more replicates;
+    - for the class: sure only with at least :func:`instances_needed` instances (each instance may
+      decide alone); with fewer, only when the instances turn out to agree closely, which needs
+      rho_U <= (instances x replicates / needed - 1) / (replicates - 1); impossible with one
+      replicate. The smallest change is more instances.
+
+    >>> advice = design_advice(3, 10, 0.9, 0.95)
+    >>> advice["instances_ok"], advice["class_sure"], advice["class_possible"], advice["instances_to_add"]
+    (True, False, True, 26)
+    >>> design_advice(10, 1, 0.9, 0.95)["replicates_needed"]
+    3
+    """
+    needed = instances_needed(target, confidence)
+    trials = instances * replicates
+    rho_max = None
+    if instances < needed and replicates > 1 and trials >= needed:
+        rho_max = (trials / needed - 1.0) / (replicates - 1.0)
+    return {"instances": instances, "replicates": replicates, "needed": needed,
+            "instances_ok": trials >= needed, "replicates_needed": int(math.ceil(needed / instances)),
+            "class_sure": instances >= needed, "class_possible": instances >= needed or rho_max is not None,
+            "class_rho_max": rho_max, "instances_to_add": max(0, needed - instances)}
+
+
+def advice_text(advice: dict, target: float, confidence: float) -> str:
+    """One line of :func:`design_advice` for the dry run and the run's warning.
+
+    >>> advice_text(design_advice(3, 10, 0.9, 0.95), 0.9, 0.95)
+    'these instances: can certify 90% at 95% (30 trials per k); the class: only if the 3 instances agree closely (intraclass correlation upper limit <= 0.0038); sure with 29 instances (add 26)'
+    """
+    needed = advice["needed"]
+    level = f"{target:.0%} at {confidence:.0%}"
+    trials = advice["instances"] * advice["replicates"]
+    if advice["instances_ok"]:
+        mine = f"these instances: can certify {level} ({trials} trials per k)"
+    else:
+        mine = (f"these instances: cannot certify {level} ({trials} trials per k, {needed} needed): "
+                f"use replicates = {advice['replicates_needed']}")
+    if advice["class_sure"]:
+        klass = f"the class: can certify {level} ({advice['instances']} instances >= {needed})"
+    elif advice["class_possible"]:
+        klass = (f"the class: only if the {advice['instances']} instances agree closely (intraclass correlation upper "
+                 f"limit <= {advice['class_rho_max']:.2g}); sure with {needed} instances (add {advice['instances_to_add']})")
+    else:
+        klass = (f"the class: cannot certify {level} with {advice['instances']} instance(s) x {advice['replicates']} "
+                 f"replicate(s); use instances = {needed} (add {advice['instances_to_add']})")
+    return f"{mine}; {klass}"
