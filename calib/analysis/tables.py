@@ -44,6 +44,7 @@ import pandas as pd
 from calib import SCHEMA_VERSION, __version__, theory
 from calib.analysis import bounds
 from calib.analysis.cells import ALL_PASS, CellStats, cell_stats, instances_needed, safe_k_rule
+from calib.analysis.classrule import fraction_rule
 from calib.analysis.law import Law, fit_law
 from calib.analysis.logistic import LogisticFit
 from calib.analysis.rows import load_rows
@@ -266,9 +267,10 @@ def _law_of(entries: list[dict], values: list, reasons: list[str], name: str) ->
     return law, law_json(law, sizes, n, values, name, censored)
 
 
-def class_law(entries: list[dict]) -> dict:
+def class_law(entries: list[dict], rule: Optional[dict] = None) -> dict:
     """The laws of one class (its entries across sizes, sorted by n) beside the published constants:
-    for the safe k of both scopes and for k50, each fitted on its uncensored sizes only."""
+    for the safe k of both scopes and for k50, each fitted on its uncensored sizes only; with the
+    class's policy rule (:func:`policy_rule`) when given."""
     entries = sorted(entries, key=lambda entry: (entry["n_points"], entry["size"]))
     first = entries[0]
     safe_law, safe_json = _law_of(entries, [e["safe_k"] for e in entries], [e["safe_k_reason"] for e in entries], "safe_k")
@@ -282,8 +284,30 @@ def class_law(entries: list[dict]) -> dict:
                  for name, constant in bounds.rule_constants(eps, first["theory"]["failure"]).items()}
     return {key: first[key] for key in ("family", "class_params", "projector", "retrieval", "kind")} | {
         "safe_k_law": safe_json, "class_safe_k_law": class_json, "k50_law": k50_json,
-        "theory": {"eps": eps, "eps_source": source, "rules": rules},
+        "theory": {"eps": eps, "eps_source": source, "rules": rules}, "policy_rule": rule,
     }
+
+
+def policy_rule(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) -> dict:
+    """The rule k = f m certified across the sizes of one class (:mod:`calib.analysis.classrule`).
+
+    The unit is the size for families whose sizes are files (every instance index the same
+    problem), else the instance.
+    """
+    from calib.families import REGISTRY
+
+    if solver_errors == "exclude":
+        rows = rows[~rows["solver_error"]]
+    family = REGISTRY.get(rows["family"].iloc[0])
+    if family is not None and family.fixed:
+        unit, names, word = rows["size"], {}, "file"
+    else:
+        unit = rows["instance_id"]
+        names = {iid: f"{size} instance {iid[:12]}" for iid, size in zip(rows["instance_id"], rows["size"])}
+        word = "instance"
+    names = names or {size: size.split("=", 1)[-1] for size in rows["size"]}
+    return fraction_rule(rows["k_label"].fillna(""), unit.to_numpy(), rows["success"].to_numpy(), names,
+                         confidence.target, confidence.level, word)
 
 
 def class_namer(items: list[dict]):
@@ -357,7 +381,12 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
     classes: dict[tuple, list] = {}
     for entry in entries:
         classes.setdefault(_class_key(entry), []).append(entry)
-    laws = [class_law(members) for _, members in sorted(classes.items())]
+    rules = {}
+    if entries:
+        for key, class_rows in rows.groupby(CLASS_KEYS, sort=True):
+            rules[(key[0], json.dumps(json.loads(key[1]), sort_keys=True), key[2], key[3])] = \
+                policy_rule(class_rows, confidence, solver_errors)
+    laws = [class_law(members, rules.get(key)) for key, members in sorted(classes.items())]
     return {"tau": primary_tau(predicate), "predicate": predicate.as_dict(), "excluded": excluded,
             "entries": entries, "laws": laws}
 

@@ -125,8 +125,14 @@ def _fit_text(name: str, fit: dict, eps: str = "") -> str:
 def _law_text(law: dict) -> str:
     rules = ", ".join(f"{name} C = {rule['C']:.4g}" for name, rule in law["theory"]["rules"].items())
     eps = f" (bounds at eps = {law['theory']['eps']:g}: {rules})" if law["theory"]["eps"] is not None else ""
-    return "\n".join([_fit_text("class safe k", law["class_safe_k_law"]),
-                      _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])])
+    lines = [_fit_text("class safe k", law["class_safe_k_law"]),
+             _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])]
+    rule = law.get("policy_rule")
+    if rule and rule["grid"]:
+        lines.append(f"  policy rule {rule['rule']}: {rule['statement']}")
+        if rule["failing"]:
+            lines.append(f"    {rule['unit']}s below the target at f = {rule['failing_at']:g}: {', '.join(rule['failing'])}")
+    return "\n".join(lines)
 
 
 def scope_lines(entry: dict) -> list[str]:

@@ -132,7 +132,26 @@ def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
     for plan in plans:
         advice = design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)
         lines.append(f"  {plan.label}: {advice_text(advice, ADVICE_TARGET, ADVICE_CONFIDENCE)}")
+    for label, files in _file_classes(plans).items():
+        advice = design_advice(files, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)
+        verdict = ("can certify a rule k = f m" if advice["class_sure"] else
+                   f"cannot certify a rule k = f m for the class; use {advice['needed']} files (add {advice['instances_to_add']})")
+        lines.append(f"  {label}: {files} file(s), the units of the class: {verdict} (each file may decide alone)")
     return lines
+
+
+def _file_classes(plans: list[SizePlan]) -> dict[str, int]:
+    """Classes whose sizes are files (a folder alone): class label -> number of files."""
+    from calib.families import get
+
+    classes: dict[str, int] = {}
+    for plan in plans:
+        family = get(plan.family)
+        if family.fixed and family.expand is not None:
+            rest = {key: value for key, value in plan.params.items() if key not in family.size_keys}
+            label = f"{plan.family} " + ",".join(f"{key}={value}" for key, value in sorted(rest.items()))
+            classes[label] = classes.get(label, 0) + 1
+    return classes
 
 
 def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
