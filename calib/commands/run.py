@@ -51,9 +51,6 @@ def run(args: argparse.Namespace) -> int:
     from calib.sweep.estimate import design_warning, size_plans
     from calib.sweep.runner import run_campaign
 
-    warning = design_warning(spec, size_plans(spec))
-    if warning:
-        print(warning, file=sys.stderr)
     previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
     bar = None if args.quiet else _ProgressBar(spec.name)
     try:
@@ -68,6 +65,9 @@ def run(args: argparse.Namespace) -> int:
     statuses = ", ".join(f"{count} {status}" for status, count in sorted(summary.statuses.items()) if status != "ok")
     print(f"trials: {summary.planned} planned, {summary.skipped} already stored, {summary.ran} run"
           f" ({statuses or 'none failed'}) in {summary.seconds:.1f} s on {summary.executor}")
+    warning = design_warning(spec, size_plans(spec))
+    if warning:
+        print(warning)
     solver_errors = count_solver_errors(summary.store_path)
     if solver_errors:
         print(f"{solver_errors} projected solve(s) ended in a solver error: counted apart and left out of the success "
