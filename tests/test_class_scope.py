@@ -238,3 +238,33 @@ def test_dry_run_gives_the_advice_per_size(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "these instances: cannot certify 90% at 95% (10 trials per k, 29 needed): use replicates = 3" in out
     assert "the class: cannot certify 90% at 95% with 10 instance(s) x 1 replicate(s); use instances = 29 (add 19)" in out
+
+
+def test_a_stored_solver_error_is_reported_by_run_and_kept_out_of_the_rate(tmp_path, capsys):
+    # A real tiny campaign, then one stored projected solve marked as a solver error (a mock of what
+    # an adapter stores when the solver fails): the table counts it apart, the rate ignores it.
+    import sqlite3
+
+    from analysis_campaign import run_spec
+    from calib.commands.run import count_solver_errors
+    from calib.sweep.store import Store
+    from calib.analysis.tables import build_table
+
+    spec = ('[campaign]\nname = "solver-error"\nroot_seed = 3\nreplicates = 3\n\n[[families]]\nname = "lp-planted"\n'
+            'sizes = [{rows = 4, cols = 8}]\n\n[sweep]\nprojectors = ["gaussian"]\nk = [4]\nretrievals = ["basis-lstsq"]\n')
+    path = run_spec(spec, tmp_path)
+    with sqlite3.connect(path) as db:
+        trial, metrics = db.execute("SELECT trial_id, metrics FROM trials ORDER BY trial_id LIMIT 1").fetchone()
+        record = json.loads(metrics)
+        record.update(proj_status="error", proj_gap=None)
+        db.execute("UPDATE trials SET metrics = ? WHERE trial_id = ?", (json.dumps(record), trial))
+    db.close()
+    assert count_solver_errors(path) == 1
+    store = Store.open_existing(path)
+    try:
+        table = build_table(store, make_predicate("bound"), Confidence())
+    finally:
+        store.close()
+    (point,) = table["analyses"][0]["entries"][0]["grid"]
+    assert point["solver_errors"] == 1 and point["trials"] == 2
+    assert "solver error" in table["target"]["solver_errors_rule"]
