@@ -98,8 +98,11 @@ def test_spec_reads_methods_projected_and_scs_settings(tmp_path):
 
 
 def _cell(successes, times, trials=10, baseline=1.0):
-    return pd.DataFrame({"k": [10, 20, 40], "trials": trials, "kind": "lp", "policy_successes": successes,
-                         "time_median": times, "baseline_median": baseline})
+    """Raw rows of one cell (the columns of calib.analysis.policy.row_columns): per k, ``trials`` rows of
+    which the first ``successes`` are policy successes, all with end-to-end time ``times[k]``."""
+    rows = [{"k": k, "kind": "lp", "policy_success": int(i < count), "t_total_s": time, "t_baseline_s": baseline}
+            for k, count, time in zip([10, 20, 40], successes, times) for i in range(trials)]
+    return pd.DataFrame(rows)
 
 
 def test_policy_k_is_the_fastest_k_whose_bound_meets_the_target():

@@ -31,8 +31,6 @@ from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate
 
 #: the answer of a cell where no swept k is usable and faster often enough
 NO_SAVING = "no k saves time at this size"
-#: per-(cell, k) columns :func:`policy_columns` adds to a summary
-COLUMNS = ("policy_successes", "time_median", "baseline_median")
 _DIGITS = 4
 
 
@@ -72,18 +70,22 @@ def policy_k(ks, passes, times) -> tuple[int | None, int | None]:
 
 
 def entry_block(cell: pd.DataFrame, confidence) -> dict:
-    """``{"policy": ...}`` for a cell summary sorted by k that carries :data:`COLUMNS`, else ``{}``."""
-    if "policy_successes" not in cell or cell["kind"].iloc[0] not in OPTIMIZATION_KINDS:
+    """``{"policy": ...}`` for the rows of one cell carrying :func:`row_columns`, else ``{}``."""
+    if "policy_success" not in cell or cell["kind"].iloc[0] not in OPTIMIZATION_KINDS:
         return {}
-    lower = clopper_pearson_lower(cell["policy_successes"], cell["trials"], confidence.level)
-    passes = np.asarray(lower) >= confidence.target
-    ks, times, baselines = cell["k"].tolist(), cell["time_median"].to_numpy(float), cell["baseline_median"].to_numpy(float)
+    per_k = cell.groupby("k", sort=True).agg(trials=("policy_success", "size"), **aggregations())
+    ks = per_k.index.tolist()
+    successes, trials = per_k["policy_successes"].to_numpy(), per_k["trials"].to_numpy()
+    lower = np.atleast_1d(clopper_pearson_lower(successes, trials, confidence.level))
+    passes = lower >= confidence.target
+    times, baselines = per_k["time_median"].to_numpy(float), per_k["baseline_median"].to_numpy(float)
     k, index = policy_k(ks, passes, times)
-    grid = [{"k": int(each), "successes": int(successes), "lower_bound": _num(bound), "passes": bool(ok),
+    grid = [{"k": int(each), "successes": int(count), "lower_bound": _num(bound), "passes": bool(ok),
              "time_median_s": _num(time), "baseline_median_s": _num(base)}
-            for each, successes, bound, ok, time, base in zip(ks, cell["policy_successes"], lower, passes, times, baselines)]
-    block = {"k": k, "answer": NO_SAVING, "time_median_s": None, "baseline_median_s": _num(np.nanmedian(baselines))
-             if np.isfinite(baselines).any() else None, "speedup": None, "grid": grid}
+            for each, count, bound, ok, time, base in zip(ks, successes, lower, passes, times, baselines)]
+    block = {"k": k, "answer": NO_SAVING, "time_median_s": None,
+             "baseline_median_s": _num(np.nanmedian(baselines)) if np.isfinite(baselines).any() else None,
+             "speedup": None, "grid": grid}
     if k is not None:
         time, base = times[index], baselines[index]
         block.update(time_median_s=_num(time), baseline_median_s=_num(base), speedup=_num(base / time) if time > 0 else None,

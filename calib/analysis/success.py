@@ -47,10 +47,12 @@ together, which is how a table carries a ladder of tolerances.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, replace
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from calib.errors import InputError
 from calib.metrics import FIELDS
@@ -177,6 +179,8 @@ def with_tau(predicate: Predicate, tau: float) -> Predicate:
 
 
 def _numbers(rows: pd.DataFrame, column: str) -> pd.Series:
+    import pandas as pd
+
     if column not in rows:
         return pd.Series(np.nan, index=rows.index)
     return pd.to_numeric(rows[column], errors="coerce")
@@ -186,6 +190,7 @@ def saves_time(rows: pd.DataFrame) -> pd.Series:
     """Per row: faster end to end than the fair baseline (t_total < t_baseline), and for a warm start
     fewer simplex iterations than the cold solve (iterations_saved > 0 where recorded).
 
+    >>> import pandas as pd
     >>> saves_time(pd.DataFrame({"t_total": [1.0, 3.0, 1.0], "t_baseline": [2.0, 2.0, 2.0],
     ...                          "iterations_saved": [None, None, -4]})).tolist()
     [True, False, False]
@@ -199,6 +204,7 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
 
     Rows of kinds the predicate does not cover come out False; drop them first (:meth:`Predicate.covers`).
     """
+    import pandas as pd  # here, not at import: the CLI builds its parsers from this module's presets
     success = rows["status"].eq("ok")
     orig_feasible = rows["orig_status"].eq("optimal")
     if predicate.classify:
