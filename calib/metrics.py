@@ -87,8 +87,11 @@ FIELDS: dict[str, Field] = {
     "distortion_max": Field("worst pairwise |‖T(p-q)‖²/‖p-q‖² - 1| over the pairs checked", "ratio", "points"),
     "distortion_q99": Field("99th percentile (linear interpolation) of the pairwise distortion over the pairs "
                             "checked", "ratio", "points"),
-    "pairs_checked": Field("number of point pairs the distortion was measured on (all pairs, or the deterministic "
-                           "sample of calib.reduce.points)", "count", "points"),
+    "pairs_checked": Field("number of point pairs the distortion was measured on (all pairs up to 10,000 points, "
+                           "else the uniform sample of calib.reduce.points)", "count", "points"),
+    "pairs_total": Field("number of all point pairs, n(n-1)/2: pairs_checked below it marks a sampled trial, whose "
+                         "claim covers all but a bounded share of the pairs (calib.reduce.points.sampled_claim)",
+                         "count", "points"),
     "t_sketch": Field("draw T plus apply it to the data", "s", "all"),
     "t_solve_orig": Field("the original solve (cached per instance, measured when it ran)", "s", _SOLVED),
     "t_solve_proj": Field("solve the projected problem", "s", _SOLVED),

@@ -22,9 +22,9 @@ FORMAT = "calib.safe-k"
 VERSION = 2
 
 
-def schema() -> dict:
-    """The JSON Schema of the table format (version :data:`VERSION`)."""
-    return json.loads(resources.files("calib").joinpath("schemas", SCHEMA_FILE).read_text(encoding="utf-8"))
+def schema(name: str = SCHEMA_FILE) -> dict:
+    """A JSON Schema shipped in ``calib/schemas`` (by default the table's, format version :data:`VERSION`)."""
+    return json.loads(resources.files("calib").joinpath("schemas", name).read_text(encoding="utf-8"))
 
 
 def checksum(table: dict) -> str:
@@ -44,15 +44,23 @@ def dumps(table: dict) -> str:
     return json.dumps(table, indent=2, sort_keys=True, allow_nan=False) + "\n"
 
 
-def validate(table: dict, where: str) -> None:
-    """Raise :class:`InputError` naming ``where`` unless ``table`` matches the schema."""
+def schema_error(document: dict, name: str = SCHEMA_FILE) -> str:
+    """The first violation of schema ``name`` as "at PATH: message", or "" when ``document`` matches."""
     import jsonschema
 
-    errors = sorted(jsonschema.Draft202012Validator(schema()).iter_errors(table), key=lambda error: list(error.absolute_path))
-    if errors:
-        first = errors[0]
-        at = "/".join(str(part) for part in first.absolute_path) or "(top level)"
-        raise InputError(where, f"does not match the safe-k table schema v{VERSION} at {at}: {first.message}",
+    errors = sorted(jsonschema.Draft202012Validator(schema(name)).iter_errors(document),
+                    key=lambda error: list(error.absolute_path))
+    if not errors:
+        return ""
+    at = "/".join(str(part) for part in errors[0].absolute_path) or "(top level)"
+    return f"at {at}: {errors[0].message}"
+
+
+def validate(table: dict, where: str) -> None:
+    """Raise :class:`InputError` naming ``where`` unless ``table`` matches the schema."""
+    error = schema_error(table)
+    if error:
+        raise InputError(where, f"does not match the safe-k table schema v{VERSION} {error}",
                          "re-create it with `calib tables STORE --json FILE`")
 
 

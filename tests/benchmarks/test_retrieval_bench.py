@@ -10,7 +10,7 @@ from calib import projectors
 from calib.families import get
 from calib.reduce import HANDLERS
 from calib.reduce.base import Context
-from calib.reduce.points import pair_distortions, pair_sample
+from calib.reduce.points import all_pair_squared_distances, distortion_summary
 
 SOLVER = {"time_limit_s": 60.0}
 
@@ -38,9 +38,10 @@ def test_sdp_retrieval_theta_30_nodes(benchmark, retrieval):
     benchmark(handler.retrievals[retrieval], context)
 
 
-def test_point_distortion_2000_points(benchmark):
+@pytest.mark.parametrize("n_points", [2000, 10_000])
+def test_point_distortion_every_pair(benchmark, n_points):
     rng = np.random.default_rng(0)
-    points = rng.standard_normal((2000, 256))
+    points = rng.standard_normal((n_points, 256))
     projected = points @ rng.standard_normal((256, 64)) / 8.0
-    i, j = pair_sample(2000)
-    benchmark(pair_distortions, points, projected, i, j)
+    originals = all_pair_squared_distances(points)
+    benchmark.pedantic(distortion_summary, args=(originals, projected), rounds=3)

@@ -1,0 +1,111 @@
+"""Instance features: cheap numbers that describe the structure a projection acts on.
+
+A projector T (k x m) combines the m rows of one matrix M (m x N) of the instance, the *sketched
+matrix*:
+
+| kind   | M                                   | m (projected dimension) |
+|--------|-------------------------------------|-------------------------|
+| lp     | [A b], standard form                | constraint rows         |
+| sdp    | [A b], rows = svec constraints      | constraints             |
+| qp     | [Q  Aᵀ  c], rows = variables        | variables (x = Tᵀu)     |
+| points | the points as columns, d x n        | ambient dimension d     |
+
+Features of M, stored per instance and carried into the table so classes can be compared and k
+related to structure:
+
+- ``rows``, ``cols``, ``nonzeros`` of M;
+- ``stable_rank`` = ‖M‖_F² / ‖M‖₂² (≤ rank; robust to tiny singular values; Rudelson & Vershynin,
+  "Sampling from large matrices", J. ACM 54(4), 2007), the spectral norm from ARPACK (``svds``) for
+  large M;
+- ``rank``: the numerical rank, singular values above σ_max · max(m, N) · machine eps (the rule of
+  ``numpy.linalg.matrix_rank``);
+- ``row_coherence`` = (m / r) max_i ‖U_(i)‖², U the m x r left singular vectors of the rank r:
+  1 when every row carries the same share of the column space, m / r when one row carries a whole
+  direction alone (Candès & Recht, "Exact matrix completion via convex optimization", Found. Comput.
+  Math. 9, 2009, Definition 1.2). A coherent M needs more rows kept by a sampling sketch, and its
+  subspace is what a subspace embedding must preserve.
+
+``rank`` and ``row_coherence`` need a thin SVD, O(m N min(m, N)) flops: computed when that is at most
+:data:`SVD_FLOPS` (a few seconds on one core), else None with the reason in ``skipped``.
+"""
+
+from __future__ import annotations
+
+from typing import Callable
+
+import numpy as np
+import scipy.sparse as sp
+
+#: the largest m * N * min(m, N) for which the thin SVD is taken
+SVD_FLOPS = 2e10
+
+
+def _hstack(blocks) -> sp.csr_matrix | np.ndarray:
+    if any(sp.issparse(block) for block in blocks):
+        return sp.hstack([sp.csr_matrix(block) for block in blocks], format="csr")
+    return np.hstack(blocks)
+
+
+def _column(vector) -> np.ndarray:
+    return np.asarray(vector, dtype=float).reshape(-1, 1)
+
+
+def _lp(problem):
+    return _hstack([problem.A, _column(problem.b)])
+
+
+def _qp(problem):
+    blocks = [problem.Q]
+    if problem.A is not None:
+        blocks.append(problem.A.T)
+    return _hstack(blocks + [_column(problem.c)])
+
+
+def _points(problem):
+    return problem.columns
+
+
+#: kind -> the sketched matrix of an instance of that kind (module docstring)
+SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _points}
+
+
+def spectral_norm(matrix) -> float:
+    """‖M‖₂: exact for dense M, ARPACK's largest singular value for sparse M."""
+    if sp.issparse(matrix):
+        from scipy.sparse.linalg import svds
+
+        if min(matrix.shape) < 3:
+            return float(np.linalg.norm(matrix.toarray(), 2))
+        return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
+    return float(np.linalg.norm(matrix, 2))
+
+
+def matrix_features(matrix) -> dict:
+    """The features of one m x N matrix (module docstring); JSON-ready.
+
+    >>> f = matrix_features(np.array([[1.0, 0.0], [0.0, 1.0], [0.0, 0.0], [0.0, 0.0]]))
+    >>> f["rank"], f["stable_rank"], f["row_coherence"], f["nonzeros"]
+    (2, 2.0, 2.0, 2)
+    """
+    m, n = matrix.shape
+    nonzeros = int(matrix.nnz if sp.issparse(matrix) else np.count_nonzero(matrix))
+    frobenius = float(sp.linalg.norm(matrix) if sp.issparse(matrix) else np.linalg.norm(matrix))
+    features = {"rows": int(m), "cols": int(n), "nonzeros": nonzeros, "stable_rank": None, "rank": None,
+                "row_coherence": None, "skipped": ""}
+    if frobenius == 0.0:
+        return features | {"rank": 0, "skipped": "the matrix is zero"}
+    if m * n * min(m, n) > SVD_FLOPS:
+        norm = spectral_norm(matrix)
+        return features | {"stable_rank": round(frobenius ** 2 / norm ** 2, 6),
+                           "skipped": f"rank and row coherence: a thin SVD of {m} x {n} exceeds the cheap budget"}
+    dense = matrix.toarray() if sp.issparse(matrix) else np.asarray(matrix, dtype=float)
+    left, singular, _ = np.linalg.svd(dense, full_matrices=False)
+    rank = int(np.sum(singular > singular[0] * max(m, n) * np.finfo(float).eps))
+    leverage = np.sum(left[:, :rank] ** 2, axis=1)
+    return features | {"stable_rank": round(float(np.sum(singular ** 2) / singular[0] ** 2), 6), "rank": rank,
+                       "row_coherence": round(float(m / rank * leverage.max()), 6)}
+
+
+def instance_features(kind: str, problem) -> dict:
+    """The features of an instance's sketched matrix (module docstring)."""
+    return matrix_features(SKETCHED[kind](problem))

@@ -1,0 +1,59 @@
+"""Instance features of the sketched matrix, checked against numpy and scipy as references."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import scipy.linalg
+import scipy.sparse as sp
+
+from calib import features
+from calib.features import instance_features, matrix_features
+from reduce_helpers import instance
+
+
+@pytest.mark.parametrize("sparse", [False, True])
+def test_rank_stable_rank_and_coherence_match_numpy_and_scipy(sparse):
+    rng = np.random.default_rng(0)
+    low_rank = rng.standard_normal((60, 5)) @ rng.standard_normal((5, 30))
+    low_rank[0] *= 50.0  # one heavy row: coherence above 1
+    matrix = sp.csr_matrix(low_rank) if sparse else low_rank
+    got = matrix_features(matrix)
+    assert got["rank"] == np.linalg.matrix_rank(low_rank) == 5  # numpy's default tolerance rule
+    singular = scipy.linalg.svdvals(low_rank)
+    assert got["stable_rank"] == pytest.approx(np.sum(singular ** 2) / singular[0] ** 2, rel=1e-6)
+    basis = scipy.linalg.orth(low_rank)  # orthonormal basis of the column space (scipy)
+    assert got["row_coherence"] == pytest.approx(60 / 5 * np.max(np.sum(basis ** 2, axis=1)), rel=1e-6)
+    assert 1.0 <= got["row_coherence"] <= 60 / 5
+    assert got["nonzeros"] == np.count_nonzero(low_rank) and (got["rows"], got["cols"]) == (60, 30)
+
+
+def test_large_matrix_skips_the_svd_but_keeps_the_stable_rank(monkeypatch):
+    monkeypatch.setattr(features, "SVD_FLOPS", 10.0)
+    matrix = sp.random(200, 100, density=0.05, random_state=1, format="csr")
+    got = matrix_features(matrix)
+    assert got["rank"] is None and got["row_coherence"] is None and "exceeds the cheap budget" in got["skipped"]
+    singular = scipy.linalg.svdvals(matrix.toarray())
+    assert got["stable_rank"] == pytest.approx(np.sum(singular ** 2) / singular[0] ** 2, rel=1e-6)
+
+
+def test_planted_rank_is_seen_in_the_lp_sketched_matrix():
+    # lp-planted with rank = 6: the equality rows are combinations of 6 rows, and b = A x lies in
+    # their span, so [A b] has rank 6 whatever the number of rows
+    built = instance("lp-planted", {"rows": 40, "cols": 80, "rank": 6})
+    got = instance_features("lp", built.problem)
+    assert got["rank"] == 6 and got["rows"] == 40 and got["cols"] == 81
+
+
+@pytest.mark.parametrize("family,params,kind,rows", [
+    ("sdp-planted", {"order": 6, "constraints": 12}, "sdp", 12),
+    ("qp-random", {"vars": 20, "rows": 10}, "qp", 20),
+    ("points-gaussian", {"points": 30, "dim": 50}, "points", 50),
+])
+def test_every_kind_has_a_sketched_matrix_whose_rows_are_its_projected_dimension(family, params, kind, rows):
+    from calib.reduce import HANDLERS
+
+    built = instance(family, params)
+    got = instance_features(kind, built.problem)
+    assert got["rows"] == rows == HANDLERS[kind].projected_dim(built.problem)
+    assert got["rank"] >= 1 and got["stable_rank"] <= got["rank"] + 1e-9
