@@ -9,7 +9,10 @@ Three figures per family, for one analysis (one tolerance) of the table:
   extrapolates) and the published bounds at the table's eps;
 - ``speedup-<family>``: error (median of the error metric, or the failure rate when the predicate
   checks no metric) against the speed-up of sketch + projected solve + retrieval over the original
-  solve, one point per k, the safe k ringed.
+  solve, one point per k, the safe k ringed;
+- ``projectors-<family>`` (families swept with two projectors or more): k50 per projector with its
+  interval (over instances when the cell has several), one row per size and retrieval, so projector
+  types are compared on the same instances at a glance; ``calib compare`` gives the paired tests.
 """
 
 from __future__ import annotations
@@ -191,9 +194,54 @@ def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
     return Plot(f"speedup-{family}", f"Error against speed-up: {family}", caption, _png(figure))
 
 
+def _compares_projectors(analysis: dict, family: str) -> bool:
+    return len({entry["projector"] for entry in analysis["entries"] if entry["family"] == family}) > 1
+
+
+def projectors_plot(analysis: dict, family: str, target: dict) -> Plot:
+    """k50 per projector with its interval, one row per (size, class, retrieval) of one family."""
+    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
+    name = class_namer(entries)
+    rows = sorted({(entry["n_points"], entry["size"], name(entry["class_params"]), entry["retrieval"]) for entry in entries})
+    projectors = sorted({entry["projector"] for entry in entries})
+    figure = Figure(figsize=(7.2, 0.9 + 0.5 * len(rows) * max(1, len(projectors)) / 2.0), layout="constrained")
+    ax = figure.subplots()
+    step = 0.8 / max(1, len(projectors))
+    missing = 0
+    for row, (n, size, params, retrieval) in enumerate(rows):
+        for index, projector in enumerate(projectors):
+            match = [e for e in entries if (e["n_points"], e["size"], name(e["class_params"]), e["retrieval"], e["projector"])
+                     == (n, size, params, retrieval, projector)]
+            fit = match[0]["transition"] if match else None
+            y = row - 0.4 + step * (index + 0.5)
+            if fit is None or fit["k50"] is None:
+                missing += bool(match)
+                continue
+            low, high = fit["k50_interval"]
+            ax.errorbar([fit["k50"]], [y], xerr=[[fit["k50"] - low], [high - fit["k50"]]], fmt="o", markersize=4,
+                        color=f"C{index}", capsize=2, label=projector)
+    ax.set_yticks(range(len(rows)), [" ".join(filter(None, [size, params, retrieval])) for _, size, params, retrieval in rows], fontsize=7)
+    ax.invert_yaxis()
+    _log_x(ax)
+    ax.set_xlabel("k50 (fitted k at 50% success)")
+    ax.set_title(f"{family}: k50 per projector", fontsize=10)
+    handles, labels = ax.get_legend_handles_labels()
+    if handles:
+        unique = dict(zip(labels, handles))  # one legend entry per projector
+        figure.legend(unique.values(), unique.keys(), loc="outside lower center", ncols=len(unique), fontsize=7)
+    caption = (f"Dot: k50 of the logistic fit; bar: its interval at {target['confidence']:.0%} (over instances when the "
+               "cell has several). Cells whose outcomes separate completely have no k50 and are not drawn"
+               + (f" ({missing} here)" if missing else "") + ". `calib compare` tests the differences paired on the same instances.")
+    return Plot(f"projectors-{family}", f"k50 per projector: {family}", caption, _png(figure))
+
+
 def figure_ids(analysis: dict) -> list[str]:
     """Ids of every figure :func:`all_plots` draws for ``analysis``."""
-    return [f"{kind}-{family}" for family in _families(analysis) for kind in ("success", "law", "speedup")]
+    ids = []
+    for family in _families(analysis):
+        ids += [f"{kind}-{family}" for kind in ("success", "law", "speedup")]
+        ids += [f"projectors-{family}"] if _compares_projectors(analysis, family) else []
+    return ids
 
 
 def all_plots(table: dict, analysis: dict, timings: pd.DataFrame) -> list[Plot]:
@@ -202,4 +250,6 @@ def all_plots(table: dict, analysis: dict, timings: pd.DataFrame) -> list[Plot]:
     for family in _families(analysis):
         plots += [success_plot(analysis, family, table["target"]), law_plot(analysis, family),
                   speedup_plot(analysis, family, timings)]
+        if _compares_projectors(analysis, family):
+            plots.append(projectors_plot(analysis, family, table["target"]))
     return plots
