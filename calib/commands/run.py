@@ -64,11 +64,37 @@ def run(args: argparse.Namespace) -> int:
     statuses = ", ".join(f"{count} {status}" for status, count in sorted(summary.statuses.items()) if status != "ok")
     print(f"trials: {summary.planned} planned, {summary.skipped} already stored, {summary.ran} run"
           f" ({statuses or 'none failed'}) in {summary.seconds:.1f} s on {summary.executor}")
+    if summary.searches:
+        print(search_report(spec, summary.searches))
     if summary.lost:
         print(f"warning: {summary.lost} trials were lost by the executor and not stored; run the same command again to retry them",
               file=sys.stderr)
         return 1
     return 0
+
+
+def search_report(spec, cells) -> str:
+    """The trace and verdict of every k search of a run, then the evidence notice."""
+    from calib.analysis.tables import NOTICE
+    from calib.sweep.search import trace_lines
+
+    target = spec.target
+    rule = target_text(target.predicate, target.rate)
+    lines = [f"k search: smallest k with success rate >= {target.rate:g} under {rule}, per cell"]
+    for cell in cells:
+        lines.append(cell.label + (f" (interrupted: {cell.interrupted})" if cell.interrupted else ""))
+        lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
+    lines.append(NOTICE)
+    return "\n".join(lines)
+
+
+def target_text(predicate, rate: float) -> str:
+    """``'bound' (gap <= 1e-06)``: the predicate's name and the tolerances it checks."""
+    checks = {key: value for key, value in predicate.as_dict().items() if key not in ("name", "classify") and value is not None}
+    text = ", ".join(f"{key} <= {value:g}" for key, value in checks.items())
+    if predicate.classify:
+        text = ", ".join(filter(None, ["feasibility verdict matches", text]))
+    return f"'{predicate.name}' ({text})"
 
 
 #: local worker processes allowed per core: each runs one solver thread, more only adds memory

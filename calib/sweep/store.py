@@ -251,6 +251,13 @@ class Store:
     def done_trial_ids(self) -> set[str]:
         return {row[0] for row in self.db.execute("SELECT DISTINCT trial_id FROM trials")}
 
+    def stored_retrievals(self) -> dict[str, set]:
+        """trial id -> the retrievals it has rows for."""
+        stored: dict[str, set] = {}
+        for trial_id, retrieval in self.db.execute("SELECT trial_id, retrieval FROM trials"):
+            stored.setdefault(trial_id, set()).add(retrieval)
+        return stored
+
     def instance_row(self, instance_id: str) -> Optional[dict]:
         cursor = self.db.execute("SELECT * FROM instances WHERE instance_id = ?", (instance_id,))
         row = cursor.fetchone()
