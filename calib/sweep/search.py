@@ -37,6 +37,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Optional, Sequence
 
+import numpy as np
 from scipy.optimize import brentq
 from scipy.special import betaln
 
@@ -102,14 +103,23 @@ def confidence_sequence(successes: int, trials: int, rate: float, alpha: float) 
 
 
 def first_decision(outcomes: Sequence[bool], rate: float, alpha: float) -> tuple[Optional[str], int]:
-    """(verdict, trials used): the first prefix of ``outcomes`` that decides, or (None, len)."""
-    successes = 0
-    for count, outcome in enumerate(outcomes, start=1):
-        successes += bool(outcome)
-        verdict = decide(successes, count, rate, alpha)
-        if verdict is not None:
-            return verdict, count
-    return None, len(outcomes)
+    """(verdict, trials used): the first prefix of ``outcomes`` that decides, or (None, len).
+
+    >>> first_decision([False] * 8, 0.9, 0.05 / 9)
+    ('fail', 5)
+    """
+    if len(outcomes) == 0:
+        return None, 0
+    successes = np.cumsum(np.asarray(outcomes, dtype=bool))
+    trials = np.arange(1, successes.size + 1)
+    a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
+    log_m = (betaln(a + successes, b + trials - successes) - betaln(a, b)
+             - successes * math.log(rate) - (trials - successes) * math.log1p(-rate))
+    decided = np.flatnonzero((log_m >= math.log(1.0 / alpha)) & (successes != rate * trials))
+    if not decided.size:
+        return None, len(outcomes)
+    first = decided[0]
+    return ("pass" if successes[first] > rate * trials[first] else "fail"), int(first) + 1
 
 
 def trials_before_decision(successes: int, trials: int, rate: float, alpha: float, cap: int) -> int:
@@ -119,10 +129,18 @@ def trials_before_decision(successes: int, trials: int, rate: float, alpha: floa
     >>> trials_before_decision(0, 0, 0.9, 0.05 / 9, 1000)
     5
     """
-    for extra in range(1, cap - trials + 1):
-        if decide(successes + extra, trials + extra, rate, alpha) or decide(successes, trials + extra, rate, alpha):
-            return extra
-    return max(0, cap - trials)
+    extra = np.arange(1, cap - trials + 1)
+    if extra.size == 0:
+        return 0
+    level = math.log(1.0 / alpha)
+    a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
+    failures = trials - successes
+    base = -betaln(a, b) - successes * math.log(rate) - failures * math.log1p(-rate)
+    all_pass = betaln(a + successes + extra, b + failures) + base - extra * math.log(rate)
+    all_fail = betaln(a + successes, b + failures + extra) + base - extra * math.log1p(-rate)
+    possible = np.flatnonzero(((all_pass >= level) & (successes + extra > rate * (trials + extra)))
+                              | ((all_fail >= level) & (successes < rate * (trials + extra))))
+    return int(extra[possible[0]]) if possible.size else int(extra[-1])
 
 
 def max_looks(low: int, high: int) -> int:

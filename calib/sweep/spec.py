@@ -213,6 +213,10 @@ def parse_spec(raw: dict, source: str = "spec") -> Spec:
     retrievals = _parse_retrievals(sweep.get("retrievals"), kinds, errors)
     solver = _parse_solver(raw.get("solver", {}), errors)
     target = _parse_target(raw.get("target"), k_grid, errors)
+    for kind in sorted(kinds):
+        if target is not None and not target.predicate.covers(kind):
+            errors.add("target.preset", f"preset {target.predicate.name!r} decides nothing on {kind} problems",
+                       "choose a preset that checks this kind (calib tables --help lists them)")
     if not errors.problems:
         _check_grid(cells, k_grid, errors, family_registry)
     if errors.problems:
