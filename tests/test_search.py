@@ -19,6 +19,10 @@ import pytest
 from scipy import stats
 from scipy.special import betaln
 
+from engine_helpers import search_verdicts as _verdicts
+from engine_helpers import trial_ids as _trial_ids
+from engine_helpers import write_search_spec as _spec
+
 from calib.cli import main
 from calib.errors import InputError
 from calib.sweep.runner import run_campaign
@@ -191,43 +195,6 @@ def test_decisions_and_bounds_agree():
 
 # ----- on the engine ------------------------------------------------------------------------
 
-SEARCH_SPEC = """
-[campaign]
-name = "{name}"
-root_seed = 77
-replicates = {replicates}
-
-[[families]]
-name = "lp-planted"
-sizes = [{{rows = 12, cols = 24}}]
-instances = 2
-params = {{rank = 3, cost = "nonnegative"}}
-
-[sweep]
-projectors = ["gaussian"]
-k = {k}
-{target}
-"""
-
-TARGET = '[target]\npreset = "bound"\ntolerance = 1e-6\ndelta = 0.3\nconfidence = 0.9'
-
-
-def _spec(folder, name="srch", replicates=20, k="{search = {low = 1, high = 12}}", target=TARGET):
-    path = folder / f"{name}.toml"
-    path.write_text(textwrap.dedent(SEARCH_SPEC.format(name=name, replicates=replicates, k=k, target=target)))
-    return path
-
-
-def _trial_ids(store) -> set:
-    with sqlite3.connect(store) as db:
-        return {row[0] for row in db.execute("SELECT trial_id FROM trials")}
-
-
-def _verdicts(summary) -> list:
-    return [(cell.search.safe_k, [(s.k, s.trials, s.successes, s.verdict) for s in cell.search.steps])
-            for cell in summary.searches]
-
-
 def test_search_runs_then_a_grid_reuses_every_search_trial(tmp_path):
     spec = _spec(tmp_path)
     first = run_campaign(load_spec(spec), tmp_path / "out", inline=True)
@@ -301,3 +268,37 @@ def test_search_target_predicate_is_the_table_predicate():
     assert spec.target.predicate == with_tau(make_predicate("bound"), 1e-6)
     with pytest.raises(InputError):
         make_predicate("nope")
+
+
+@pytest.fixture(scope="module")
+def search_reference(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("search-reference")
+    return run_campaign(load_spec(_spec(folder)), folder / "out", inline=True)
+
+
+@pytest.mark.parametrize("mode, count", [("mid-trial-transaction", 9), ("after-trial-commit", 20)])
+def test_kill9_during_a_search_then_resume_loses_and_duplicates_nothing(tmp_path, search_reference, mode, count):
+    import os
+    import signal
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    driver = Path(__file__).with_name("engine_kill_driver.py")
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(Path(__file__).resolve().parents[1]), str(driver.parent)])}
+    spec = _spec(tmp_path)
+    reference = search_reference
+    out = tmp_path / "out"
+    done = subprocess.run([sys.executable, str(driver), mode, str(count), "run", str(spec), "--out", str(out),
+                           "--workers", "2", "--quiet"], env=env, capture_output=True, text=True, timeout=120)
+    assert done.returncode == -signal.SIGKILL, done.stderr
+    store = out / "srch.sqlite"
+    with sqlite3.connect(store) as db:
+        stored = db.execute("SELECT COUNT(*) FROM trials").fetchone()[0]
+    assert stored < reference.ran
+    resumed = run_campaign(load_spec(spec), out, workers=2)
+    assert _verdicts(resumed) == _verdicts(reference)
+    assert resumed.skipped == stored and resumed.skipped + resumed.ran == reference.ran
+    with sqlite3.connect(store) as db:
+        rows, distinct = db.execute("SELECT COUNT(*), COUNT(DISTINCT trial_id) FROM trials").fetchone()
+    assert rows == distinct == reference.ran and _trial_ids(store) == _trial_ids(reference.store_path)
