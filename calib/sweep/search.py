@@ -16,9 +16,16 @@ Ramdas, McAuliffe & Sekhon 2021, "Time-uniform, nonparametric, nonasymptotic con
 sequences", Ann. Statist. 49(2)). ln M_n(p) is convex in p with its minimum at s/n, so trials stop
 as soon as M_n(t) >= 1/alpha: with s/n > t every p <= t is excluded (k passes: its lower bound is
 above t), with s/n < t every p >= t is (k fails: its upper bound is below t). Looking after every
-trial costs nothing in validity. A k that reaches its cap of trials undecided counts as failing.
-The prior is Beta(5 t, 5 (1 - t)), centred on the target (any prior keeps the guarantee; this one
-makes the typical passing k, with p near 1, stop after about 60 trials at t = 0.9).
+trial costs nothing in validity. The prior is Beta(5 t, 5 (1 - t)), centred on the target (any
+prior keeps the guarantee; this one makes the typical passing k, with p near 1, stop after about
+60 trials at t = 0.9).
+
+The last look. A k still undecided after its cap N of trials gets one fixed-n test: it passes when
+the one-sided Clopper–Pearson lower bound (Clopper & Pearson 1934) of its N trials reaches t, and
+fails otherwise. Each k spends half its alpha on the sequence and half on this look, so a false
+pass at that k has probability <= alpha/2 + alpha/2 (a union bound; the look at the fixed N is one
+event whatever the sequence did before). The last look is what lets a k with, say, 79 successes in
+80 trials pass, where the anytime bound alone would need more trials than the cap.
 
 Many k: error spent by Bonferroni. Bracket-and-bisection on [low, high] tests at most
 K = 2 + ceil(log2(high - low)) values of k (high, low, then halving the gap), each at
@@ -40,6 +47,8 @@ from typing import Optional, Sequence
 import numpy as np
 from scipy.optimize import brentq
 from scipy.special import betaln
+
+from calib.analysis.stats import clopper_pearson_lower
 
 #: strength a + b of the Beta prior of the mixture (centred on the target rate)
 PRIOR_STRENGTH = 5.0
@@ -163,7 +172,7 @@ class Step:
     successes: int
     lower: float
     upper: float
-    verdict: str  # "pass" | "fail" | "undecided"
+    verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target)
 
 
 @dataclass
@@ -194,21 +203,25 @@ class KSearch:
         if self.done:
             return None
         successes = sum(self._outcomes)
-        more = trials_before_decision(successes, len(self._outcomes), self.rate, self.alpha, self.cap)
+        more = trials_before_decision(successes, len(self._outcomes), self.rate, self.alpha / 2, self.cap)
         return self.k, len(self._outcomes) + max(1, more)
 
     def offer(self, outcomes: Sequence[bool]) -> None:
         """Outcomes of the first trials at the current k, in trial order (a longer list is fine)."""
         outcomes = [bool(value) for value in outcomes[:self.cap]]
-        verdict, used = first_decision(outcomes, self.rate, self.alpha)
-        if verdict is None and len(outcomes) < self.cap:
+        verdict, used = first_decision(outcomes, self.rate, self.alpha / 2)
+        if verdict is not None:
+            self._record(verdict, outcomes[:used])
+        elif len(outcomes) < self.cap:
             self._outcomes = outcomes
-            return
-        self._record(verdict or "undecided", outcomes[:used])
+        else:  # the last look: a fixed-n Clopper–Pearson bound on all cap trials
+            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - self.alpha / 2))
+            self._record("pass" if lower >= self.rate else "fail at the cap", outcomes, lower)
 
-    def _record(self, verdict: str, outcomes: list) -> None:
+    def _record(self, verdict: str, outcomes: list, last_lower: float = 0.0) -> None:
         successes = sum(outcomes)
-        lower, upper = confidence_sequence(successes, len(outcomes), self.rate, self.alpha)
+        lower, upper = confidence_sequence(successes, len(outcomes), self.rate, self.alpha / 2)
+        lower = max(lower, last_lower)
         self.steps.append(Step(self.k, len(outcomes), successes, lower, upper, verdict))
         self._outcomes = []
         if verdict == "pass":
@@ -252,6 +265,7 @@ def trace_lines(search: KSearch, target_text: str) -> list[str]:
         verdict = f"safe k = {search.safe_k}: {target_text} at confidence {search.confidence:g}"
         verdict += f" ({search.reason})" if search.reason else ""
     lines.append(f"  {verdict}")
-    lines.append(f"  bounds: beta-binomial confidence sequence at {1 - search.alpha:.4g} per k "
-                 f"(Bonferroni over at most {looks} k values); {MONOTONE}")
+    lines.append(f"  bounds: per k, a beta-binomial confidence sequence at {1 - search.alpha / 2:.4g} and a last "
+                 f"Clopper–Pearson look at the cap at {1 - search.alpha / 2:.4g} (Bonferroni over at most {looks} k values); "
+                 f"{MONOTONE}")
     return lines
