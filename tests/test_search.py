@@ -195,7 +195,7 @@ def test_decisions_and_bounds_agree():
 
 # ----- on the engine ------------------------------------------------------------------------
 
-def test_search_runs_then_a_grid_reuses_every_search_trial(tmp_path):
+def test_search_runs_then_a_grid_reuses_every_search_trial(tmp_path, capsys):
     spec = _spec(tmp_path)
     first = run_campaign(load_spec(spec), tmp_path / "out", inline=True)
     (cell,) = first.searches
@@ -204,6 +204,12 @@ def test_search_runs_then_a_grid_reuses_every_search_trial(tmp_path):
     searched = _trial_ids(first.store_path)
     again = run_campaign(load_spec(spec), tmp_path / "out", inline=True)
     assert again.ran == 0 and _verdicts(again) == _verdicts(first)  # replayed from the store
+    capsys.readouterr()
+    assert main(["tables", str(first.store_path), "--tau", "1e-6"]) == 0  # the table shows the tested k
+    text = capsys.readouterr().out
+    listed = {int(line.split("=")[1].split()[0]) for line in text.splitlines() if line.startswith("   k=")}
+    assert listed == {step.k for step in cell.search.steps}
+    assert "safe k = 3: success rate >= 0.7" in text and "bisection assumes" in text and "not a proof" in text
 
     # the same campaign grown into a grid: every search trial inside the grid is reused, in the same store
     grid = _spec(tmp_path, k="[1, 2, 3, 6, 12]", target="")

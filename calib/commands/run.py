@@ -82,7 +82,7 @@ def search_report(spec, cells) -> str:
     rule = target_text(target.predicate, target.rate)
     lines = [f"k search: smallest k with success rate >= {target.rate:g} under {rule}, per cell"]
     for cell in cells:
-        lines.append(cell.label + (f" (interrupted: {cell.interrupted})" if cell.interrupted else ""))
+        lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
         lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
     lines.append(NOTICE)
     return "\n".join(lines)

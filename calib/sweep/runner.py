@@ -346,15 +346,7 @@ class SearchCoordinator(Coordinator):
 
     def run(self) -> RunSummary:
         start = time.perf_counter()
-        self.stored = self.store.stored_retrievals()
-        self.cells = search_cells(self.spec)
-        self.progress = Progress(total=0)
-        self.requested: set[str] = set()   # trial ids some search asked for
-        self.reused = 0
-        self._outcomes: dict[str, dict] = {}   # trial id -> retrieval -> success
-        self._rows: dict[str, dict] = {}       # instance id -> stored instance row
-        self._pending_originals: set[str] = set()
-        self._lost_ids: set[str] = set()
+        self._prepare()
         self._notify()
         self._advance()
         while self._in_flight:
@@ -365,6 +357,17 @@ class SearchCoordinator(Coordinator):
         return RunSummary(self.store.path, self.executor.name, len(self.requested), self.reused,
                           self.progress.done, dict(self.progress.statuses), self.lost, self.originals,
                           time.perf_counter() - start, searches=self.cells)
+
+    def _prepare(self) -> None:
+        self.stored = self.store.stored_retrievals()
+        self.cells = search_cells(self.spec)
+        self.progress = Progress(total=0)
+        self.requested: set[str] = set()   # trial ids some search asked for
+        self.reused = 0
+        self._outcomes: dict[str, dict] = {}   # trial id -> retrieval -> success
+        self._rows: dict[str, dict] = {}       # instance id -> stored instance row
+        self._pending_originals: set[str] = set()
+        self._lost_ids: set[str] = set()
 
     def _advance(self) -> None:
         """Feed every search what the store holds; submit what they still need."""
@@ -448,3 +451,28 @@ class SearchCoordinator(Coordinator):
         if isinstance(result, Failure) and result.status == "lost":
             self._lost_ids.add(trial_id)
         super()._store_trial(trial_id, result)
+
+
+class _NoExecutor:
+    """Takes tasks and runs none: what a replay of stored searches submits is what is missing."""
+
+    name = "none"
+    slots = 0
+
+    def submit(self, token: str, task, timeout) -> None:
+        pass
+
+
+def replay_searches(spec: Spec, store: Store) -> list[SearchCell]:
+    """The k searches of ``spec`` decided from ``store`` alone (read only, nothing runs).
+
+    A search is a pure function of its trials' outcomes, so this gives the verdicts `calib run`
+    printed; a search that needs a trial the store lacks is marked not finished.
+    """
+    coordinator = SearchCoordinator(spec, store, _NoExecutor())
+    coordinator._prepare()
+    coordinator._advance()
+    for cell in coordinator.cells:
+        if not cell.search.done and not cell.interrupted:
+            cell.interrupted = "search not finished: run the campaign again to complete it"
+    return coordinator.cells
