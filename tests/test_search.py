@@ -308,3 +308,10 @@ def test_kill9_during_a_search_then_resume_loses_and_duplicates_nothing(tmp_path
     with sqlite3.connect(store) as db:
         rows, distinct = db.execute("SELECT COUNT(*), COUNT(DISTINCT trial_id) FROM trials").fetchone()
     assert rows == distinct == reference.ran and _trial_ids(store) == _trial_ids(reference.store_path)
+
+
+def test_the_example_search_spec_reads():
+    from pathlib import Path
+
+    spec = load_spec(Path(__file__).resolve().parents[1] / "instances" / "quickstart-search.toml")
+    assert spec.k_grid.is_search and spec.target.rate == pytest.approx(0.9)
