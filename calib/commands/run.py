@@ -132,6 +132,9 @@ class _ProgressBar:
 
             self.bar = tqdm(total=progress.total, unit="trial", file=sys.stderr, dynamic_ncols=True, desc=self.name,
                             mininterval=0.5, smoothing=0.05)
+        if progress.total != self.bar.total:  # a k search learns its trials as it goes
+            self.bar.total = progress.total
+            self.bar.refresh()
         self.bar.update(progress.done - self.bar.n)
         if progress.failed != self.failed:
             self.failed = progress.failed
