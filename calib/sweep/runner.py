@@ -322,8 +322,9 @@ def search_cells(spec: Spec) -> list[SearchCell]:
     return cells
 
 
-def trial_successes(rows: list[dict], instance_row: dict, predicate) -> dict[str, bool]:
-    """retrieval -> success of one stored trial under ``predicate`` (:func:`calib.analysis.success.evaluate`)."""
+def trial_successes(rows: list[dict], kinds: dict[str, str], predicate) -> dict[str, dict[str, bool]]:
+    """trial id -> retrieval -> success of stored trial rows under ``predicate``, in one
+    :func:`calib.analysis.success.evaluate` call; ``kinds`` maps each row's instance id to its kind."""
     import json
 
     import pandas as pd
@@ -335,10 +336,13 @@ def trial_successes(rows: list[dict], instance_row: dict, predicate) -> dict[str
     for row in rows:
         metrics = json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}
         record = {name: metrics.get(name) for name in FIELDS}  # as calib.analysis.tables.load_rows reads them
-        record.update(status=row["status"], kind=instance_row["kind"])
+        record.update(status=row["status"], kind=kinds[row["instance_id"]])
         records.append(record)
     frame = pd.DataFrame.from_records(records, columns=["status", "kind", *FIELDS])
-    return dict(zip((row["retrieval"] for row in rows), evaluate(frame, predicate).tolist()))
+    successes: dict[str, dict[str, bool]] = {}
+    for row, success in zip(rows, evaluate(frame, predicate).tolist()):
+        successes.setdefault(row["trial_id"], {})[row["retrieval"]] = bool(success)
+    return successes
 
 
 class SearchCoordinator(Coordinator):
@@ -380,17 +384,17 @@ class SearchCoordinator(Coordinator):
 
     def _read(self, cell: SearchCell, k: int, count: int) -> Optional[list]:
         """The outcomes of the first ``count`` trials at k, or None after submitting the missing ones."""
-        outcomes, missing = [], []
-        for trial in cell.trials_at(k, count):
+        trials = cell.trials_at(k, count)
+        missing = []
+        for trial in trials:
+            stored = not self._missing(trial, (cell.retrieval,))
             if trial.trial_id not in self.requested:
                 self.requested.add(trial.trial_id)
-                self.reused += not self._missing(trial, (cell.retrieval,))
-            outcome = self._outcome(trial, cell.retrieval)
-            if outcome is None:
+                self.reused += stored
+            if not stored:
                 missing.append(trial)
-            outcomes.append(outcome)
         if not missing:
-            return outcomes
+            return self._successes(trials, cell.retrieval)
         for trial in missing:
             if trial.trial_id in self._lost_ids:
                 cell.interrupted = "the executor lost trials of this search: run the same command again to resume"
@@ -398,15 +402,15 @@ class SearchCoordinator(Coordinator):
             self._request(trial, cell.retrieval)
         return None
 
-    def _outcome(self, trial: Trial, retrieval: str) -> Optional[bool]:
-        if self._missing(trial, (retrieval,)):
-            return None
-        known = self._outcomes.get(trial.trial_id, {})
-        if retrieval not in known:
-            row = self._instance(trial.instance.instance_id)
-            known = self._outcomes[trial.trial_id] = trial_successes(self.store.trial_records(trial.trial_id), row,
-                                                                     self.spec.target.predicate)
-        return known[retrieval]
+    def _successes(self, trials: list[Trial], retrieval: str) -> list[bool]:
+        """Success of each stored trial for ``retrieval``; the ones not yet known are read in one batch."""
+        unknown = [trial for trial in trials if retrieval not in self._outcomes.get(trial.trial_id, {})]
+        if unknown:
+            rows = self.store.trial_rows_of([trial.trial_id for trial in unknown])
+            kinds = {trial.instance.instance_id: self._instance(trial.instance.instance_id)["kind"] for trial in unknown}
+            for trial_id, known in trial_successes(rows, kinds, self.spec.target.predicate).items():
+                self._outcomes.setdefault(trial_id, {}).update(known)
+        return [self._outcomes[trial.trial_id][retrieval] for trial in trials]
 
     def _instance(self, instance_id: str) -> Optional[dict]:
         if instance_id not in self._rows:

@@ -289,6 +289,16 @@ class Store:
         names = [d[0] for d in cursor.description]
         return [dict(zip(names, row)) for row in cursor.fetchall()]
 
+    def trial_rows_of(self, trial_ids: list[str]) -> list[dict]:
+        """The stored rows of these trials (one per retrieval), in chunks below SQLite's variable limit."""
+        rows: list[dict] = []
+        for start in range(0, len(trial_ids), 500):
+            chunk = trial_ids[start:start + 500]
+            cursor = self.db.execute(f"SELECT * FROM trials WHERE trial_id IN ({', '.join('?' * len(chunk))}) ORDER BY rowid", chunk)
+            names = [d[0] for d in cursor.description]
+            rows += [dict(zip(names, row)) for row in cursor.fetchall()]
+        return rows
+
     def matching_trial_ids(self, prefix: str, limit: int = 5) -> list[str]:
         """Stored trial ids starting with ``prefix`` (at most ``limit``)."""
         rows = self.db.execute("SELECT DISTINCT trial_id FROM trials WHERE trial_id >= ? AND trial_id < ? LIMIT ?",
