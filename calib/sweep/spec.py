@@ -495,6 +495,15 @@ def _parse_solver(value, errors: _Collector) -> dict:
     return solver
 
 
+def solver_settings(raw_solver) -> dict:
+    """The ``[solver]`` settings a raw table puts in force (defaults filled in), as parsing gives them.
+
+    >>> solver_settings({}) == solver_settings({"time_limit_s": 60})
+    True
+    """
+    return _parse_solver(raw_solver if raw_solver is not None else {}, _Collector())
+
+
 def _parse_highs(value, errors: _Collector) -> dict:
     """Extra HiGHS options: a table of scalars, each accepted by HiGHS itself (checked here)."""
     from calib.solvers.highs import new_highs

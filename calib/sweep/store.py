@@ -389,10 +389,14 @@ def growth_problem(stored: dict, new: dict) -> str:
     >>> growth_problem({"campaign": {"root_seed": 1}}, {"campaign": {"root_seed": 2}})
     'campaign.root_seed changes from 1 to 2 (every instance and random stream derives from it)'
     """
+    from calib.sweep.spec import solver_settings
+
     for table, key, why in _TRIAL_ALTERING:
         before, after = stored.get(table, {}), new.get(table, {})
         if key is not None:
             before, after = before.get(key), after.get(key)
+        else:  # compare the settings in force, defaults filled in
+            before, after = solver_settings(before), solver_settings(after)
         if canonical_json(before) != canonical_json(after):
             name = f"{table}.{key}" if key else f"[{table}]"
             return f"{name} changes from {canonical_json(before)} to {canonical_json(after)} ({why})"
