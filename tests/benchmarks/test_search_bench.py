@@ -41,7 +41,7 @@ CASES = {
 REDUCED = {
     "basis-pursuit": ("{measurements = 60, length = 80, sparsity = 8}", (4, 60)),
     "planted-4-projectors": ("{rows = 60, cols = 120}", (2, 60)),
-    "points": ("{points = 100, dim = 200}", (10, 200)),
+    "points": ("{points = 20, dim = 1000}", (200, 1000)),  # 20 points: a safe k near 600, inside the range
 }
 
 INSTANCES, REPLICATES = 2, 40  # cap per k: 80 trials
