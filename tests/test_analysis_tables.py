@@ -82,14 +82,17 @@ def test_rank_planted_lp_needs_about_its_rank(table_file):
 
 
 def test_theory_ratios_use_the_stated_eps(table_file):
-    # Dasgupta-Gupta (2003) at the eps the table states; ratio = bound / safe k.
+    # Dasgupta-Gupta (2003, proof of Theorem 2.1: per-pair failure <= 2 exp(-k c / 2), union over
+    # n(n-1)/2 pairs) at the eps and the failure probability delta the table states; ratio = bound / safe k.
     table = json.loads(table_file.read_text())
+    delta = table["target"]["delta"]
     for analysis in table["analyses"]:
         for entry in analysis["entries"]:
-            eps = entry["theory"]["eps"]
-            assert eps == analysis["tau"]
+            eps, n = entry["theory"]["eps"], entry["n_points"]
+            assert eps == analysis["tau"] and entry["theory"]["failure"] == delta
             bound = entry["theory"]["bounds"]["dasgupta-gupta"]
-            assert bound["k"] == math.ceil(4 * math.log(entry["n_points"]) / (eps**2 / 2 - eps**3 / 3))
+            assert bound["failure"] == delta
+            assert bound["k"] == math.ceil(2 * math.log(n * (n - 1) / delta) / (eps**2 / 2 - eps**3 / 3))
             if entry["safe_k"]:
                 assert bound["ratio"] == pytest.approx(bound["k"] / entry["safe_k"], rel=1e-5)
         for law in analysis["laws"]:
@@ -121,7 +124,7 @@ def test_csv_has_one_line_per_tau_cell_and_k(table_file, tmp_path):
 
 @pytest.mark.parametrize("edit, message", [
     (lambda t: t["analyses"][0]["entries"][0].update(safe_k=3), "checksum mismatch"),
-    (lambda t: t.update(format_version=2), "format version 2"),
+    (lambda t: t.update(format_version=1), "format version 1"),
     (lambda t: t["analyses"][0]["entries"][0].pop("grid"), "schema"),
     (lambda t: t.update(format="other"), "not a calib safe-k table"),
 ])
@@ -157,12 +160,15 @@ def test_lookup_round_trips_k_to_success_to_k(table_file):
 
 def test_lookup_answers_from_the_law_and_flags_extrapolation(table_file, capsys):
     table = read_table(table_file)
-    inside = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05))
-    outside = k_for(table, Query("lp-planted", 5000, "gaussian", tau=0.05))
+    inside = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05, scope="instances"))
+    outside = k_for(table, Query("lp-planted", 5000, "gaussian", tau=0.05, scope="instances"))
     assert inside["safe_k"] == 8 and not inside["extrapolated"]
-    assert outside["safe_k"] == 8 and outside["extrapolated"]
+    assert outside["safe_k"] == 8 and outside["extrapolated"] and "20.7 x the largest measured n" in outside["extrapolation"]
+    # the class answer (the default): one instance per size cannot speak for the class
+    klass = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05))
+    assert klass["safe_k"] is None and "29 are needed" in klass["method"]
     # a looser target can only lower the answer (the monotone rule on the same counts)
-    looser = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05), Confidence(delta=0.5, level=0.95))
+    looser = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05, scope="instances"), Confidence(delta=0.5, level=0.95))
     assert looser["safe_k"] <= inside["safe_k"]
     # a tau between ladder steps is answered conservatively by the stricter step
     assert k_for(table, Query("lp-planted", 170, "gaussian", tau=0.03))["tau"] == 0.01
@@ -172,6 +178,15 @@ def test_lookup_answers_from_the_law_and_flags_extrapolation(table_file, capsys)
                  "--k", "7", "--tau", "0.05", "--json"]) == 0
     answer = json.loads(capsys.readouterr().out)
     assert 0 < answer["success"] < 1 and answer["error"]["metric"] == "proj_gap"
+    # in the family's own size keys: n and m from the family, a measured size answered as measured
+    assert main(["lookup", str(table_file), "--family", "lp-planted", "--size", "rows=60,cols=120", "--param", "rank=8",
+                 "--projector", "gaussian", "--tau", "0.05", "--scope", "instances", "--json"]) == 0
+    answer = json.loads(capsys.readouterr().out)
+    assert (answer["n"], answer["m"], answer["safe_k"]) == (121, 60, 8) and answer["method"] == "measured at this size"
+    # a size whose m is below what the class needs (the law gives 8): no reduction, never a k above m
+    assert main(["lookup", str(table_file), "--family", "lp-planted", "--n", "5000", "--m", "6",
+                 "--projector", "gaussian", "--tau", "0.05", "--scope", "instances"]) == 0
+    assert "no reduction meets the target at this size" in capsys.readouterr().out
 
 
 def test_lookup_refuses_unknown_classes_and_bad_values(table_file):

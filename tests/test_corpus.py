@@ -123,7 +123,7 @@ CASES = [
     # --- safe-k tables (calib lookup) --------------------------------------------------------
     ("table-not-json", ["lookup", "tables/not_json.json", *_LOOKUP], ["tables/not_json.json", "is not JSON"], True),
     ("table-truncated", ["lookup", "tables/truncated.json", *_LOOKUP], ["tables/truncated.json", "is not JSON"], False),
-    ("table-wrong-version", ["lookup", "tables/wrong_version.json", *_LOOKUP], ["tables/wrong_version.json", "format version 2"], False),
+    ("table-wrong-version", ["lookup", "tables/wrong_version.json", *_LOOKUP], ["tables/wrong_version.json", "format version 1"], False),
     ("table-wrong-format", ["lookup", "tables/wrong_format.json", *_LOOKUP], ["tables/wrong_format.json", "not a calib safe-k table"], False),
     ("table-tampered-value", ["lookup", "tables/tampered_value.json", *_LOOKUP], ["tables/tampered_value.json", "checksum mismatch"], True),
     ("table-schema-violation", ["lookup", "tables/schema_violation.json", *_LOOKUP], ["tables/schema_violation.json", "'notice' is a required property"], False),

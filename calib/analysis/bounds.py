@@ -9,9 +9,25 @@ How a success predicate is turned into the eps of the theory (written into every
   "the bound at eps = tau"). Predicates without a tolerance (``classify``) need ``--eps``.
 
 Every rule of :data:`calib.theory.RULES` maps (n, eps) -> k. Its constant C_rule in k = C ln n is
-read off the rule itself as (k(e^35) - k(e^5)) / 30, which is exact for rules linear in ln n up to
+read off the rule itself as (k(e^50) - k(e^20)) / 30, which is exact for rules linear in ln n up to
 their rounding (error <= 1/30). The ratios reported are bound k / measured safe k per size and
 C_rule / C_fitted per law: how far below the theory the measurements sit.
+
+Every bound is taken at the table's own failure probability delta (the safe k targets success
+1 - delta), so "bound / measured" compares like with like:
+
+- ``achlioptas`` with beta = ln(1/delta) / ln n (his failure probability n^-beta equals delta):
+  k = (4 + 2 beta) ln n / (eps^2/2 - eps^3/3) = (4 ln n + 2 ln(1/delta)) / (eps^2/2 - eps^3/3);
+- ``dasgupta-gupta`` at delta: their proof bounds the failure of one pair by
+  2 exp(-k (eps^2/2 - eps^3/3) / 2) and takes the union over the n(n-1)/2 pairs, so the k that makes
+  the union at most delta is k = 2 ln(n (n - 1) / delta) / (eps^2/2 - eps^3/3) (their theorem states
+  the special case delta = 1 - 1/n);
+- ``chi2-union`` with its failure parameter set to delta (exact chi-square pair tail, union bound);
+- ``frankl-maehara`` and ``ln-over-eps2`` state no failure probability: shown as published, with
+  ``failure`` null.
+
+References: S. Dasgupta and A. Gupta, Random Structures & Algorithms 22(1):60–65, 2003 (Theorem 2.1
+and its proof); D. Achlioptas, J. Computer and System Sciences 66(4):671–687, 2003 (Theorem 1.1).
 """
 
 from __future__ import annotations
@@ -23,7 +39,7 @@ import numpy as np
 from calib import theory
 from calib.analysis.success import Predicate, primary_tau
 
-_LOG_SPAN = (5.0, 35.0)
+_LOG_SPAN = (20.0, 50.0)
 
 EPS_CONVENTION = ("point sets: eps is the distortion tolerance; LPs, SDPs, QPs: eps is --eps when given, else "
                   "the predicate's primary tolerance tau (a stated convention, not a theorem)")
@@ -58,17 +74,47 @@ def theory_eps(predicate: Predicate, kind: str, eps: Optional[float] = None) -> 
     return float(chosen), source
 
 
-def bound_k(n_points: int, eps: float) -> dict[str, int]:
-    """k of every published rule for ``n_points`` points at ``eps``.
+def dasgupta_gupta_at(n, eps, failure):
+    """Dasgupta–Gupta's union bound at total failure probability ``failure`` (module text).
 
-    >>> bound_k(1001, 0.5)["dasgupta-gupta"]
-    332
+    >>> int(dasgupta_gupta_at(1000, 0.5, 0.1))  # ceil(2 ln(1000 * 999 / 0.1) / (1/8 - 1/24))
+    387
     """
-    return {name: int(rule(np.asarray(float(n_points)), np.asarray(eps))) for name, rule in sorted(theory.RULES.items())}
+    n, eps, failure = (np.asarray(value, dtype=float) for value in (n, eps, failure))
+    return np.ceil(2.0 * np.log(n * (n - 1.0) / failure) / (eps**2 / 2.0 - eps**3 / 3.0)).astype(np.int64)
 
 
-def rule_constants(eps: float) -> dict[str, float]:
-    """C_rule of every published rule at ``eps`` (k ~= C_rule ln n); see the module text.
+def rules_at(failure: Optional[float]) -> dict[str, tuple]:
+    """name -> ((n, eps) -> k at ``failure``, the failure probability it holds at or None)."""
+    if failure is None:
+        return {name: (rule, None) for name, rule in theory.RULES.items()}
+    rules = {}
+    for name, bound in theory.BOUNDS.items():
+        if name == "dasgupta-gupta":
+            rules[name] = (lambda n, eps: dasgupta_gupta_at(n, eps, failure), failure)
+        elif bound.parameters(2.0, failure):
+            rules[name] = ((lambda bound: lambda n, eps: bound.k(n, eps, **bound.parameters(n, failure)))(bound), failure)
+        else:
+            rules[name] = (bound.k, None)
+    return rules
+
+
+def bound_k(n_points: int, eps: float, failure: Optional[float] = None) -> dict[str, dict]:
+    """k of every published rule for ``n_points`` points at ``eps`` and total failure ``failure``
+    (each rule's own default when None), with the failure probability it holds at (None: not stated).
+
+    >>> bound_k(1001, 0.5)["dasgupta-gupta"]["k"]
+    332
+    >>> bound_k(1000, 0.5, 0.1)["achlioptas"]  # ceil((4 ln 1000 + 2 ln 10) / (1/8 - 1/24))
+    {'k': 387, 'failure': 0.1}
+    """
+    n = np.asarray(float(n_points))
+    return {name: {"k": int(rule(n, np.asarray(eps))), "failure": at}
+            for name, (rule, at) in sorted(rules_at(failure).items())}
+
+
+def rule_constants(eps: float, failure: Optional[float] = None) -> dict[str, float]:
+    """C_rule of every published rule at ``eps`` and ``failure`` (k ~= C_rule ln n); see the module text.
 
     >>> round(rule_constants(0.5)["dasgupta-gupta"], 1)  # 4 / (1/8 - 1/24) = 48
     48.0
@@ -76,7 +122,7 @@ def rule_constants(eps: float) -> dict[str, float]:
     low, high = (np.asarray(np.exp(x)) for x in _LOG_SPAN)
     eps = np.asarray(eps)
     return {name: float(rule(high, eps) - rule(low, eps)) / (_LOG_SPAN[1] - _LOG_SPAN[0])
-            for name, rule in sorted(theory.RULES.items())}
+            for name, (rule, _) in sorted(rules_at(failure).items())}
 
 
 def ratio(bound: float, measured: Optional[float]) -> Optional[float]:

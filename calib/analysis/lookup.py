@@ -1,20 +1,28 @@
-"""Answers from a safe-k table, in both directions.
+"""Answers from a safe-k table, in both directions, in the user's terms and within bounds.
 
-``k_for``: which k for (family, n, projector) at a target 1 - delta?
+``k_for``: which k for (family, size, projector) at a target 1 - delta?
 
-- the safe k from the law k = a + C ln n fitted over the measured sizes, rounded up; the safe k of
-  each size is recomputed from the stored counts when delta or the confidence differ from the
-  table's (the same monotone Clopper–Pearson rule), so any target can be asked;
-- the k where the logistic model reaches 1 - delta (a point estimate, no confidence claim).
+- the size is given in the family's own terms (its size keys, an MPS file, a saved instance: see
+  :func:`size_of`), from which the family's own rules give n (the JL point count) and the projected
+  dimension m; ``n`` alone (and ``m``) remain for experts;
+- the scope: the class answer by default (the class safe k of each size, :mod:`calib.analysis.scope`),
+  or the answer for the instances measured (``scope="instances"``); each size's safe k is recomputed
+  from the stored counts when delta or the confidence differ from the table's (the same rules);
+- a size that was measured is answered with its measured safe k; another size with the law
+  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.tables.censored_law`),
+  rounded up; never below 1 and never above m: a value above m is answered "no reduction meets
+  the target at this size", a value below 1 is raised to 1 with a flag;
+- an n outside the measured sizes is an extrapolation, flagged with how far (x the largest, or
+  the smallest, measured n);
+- the k where the logistic model reaches 1 - delta (a point estimate, no confidence claim), also
+  capped at m.
 
 ``success_for``: at a given k, the model's expected success and the measured error quantiles.
 
 The logistic model at n: k50(n) from the law fitted to the per-size k50, the slope interpolated
 linearly in ln n between the measured sizes (held constant beyond them); success(k) =
 expit(slope (ln k - ln k50(n))) and k(p) = k50(n) exp(logit(p) / slope), exact inverses of each
-other. An n outside the measured sizes is an extrapolation and is flagged.
-
-``n`` is the number of points the JL theory counts (for an LP with rows projected: columns + 1).
+other.
 """
 
 from __future__ import annotations
@@ -28,14 +36,18 @@ import numpy as np
 from scipy import special
 
 from calib.analysis.law import fit_law
+from calib.analysis.scope import Anova, class_lower_bound, design_rho
 from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.tables import Confidence, class_namer, safe_k_rule
+from calib.analysis.tables import Confidence, censored_law, censoring, class_namer, safe_k_rule
 from calib.errors import InputError
+
+SCOPES = ("class", "instances")
 
 
 @dataclass(frozen=True)
 class Query:
-    """What is asked: the class (family, projector, retrieval, non-size params) and the size n."""
+    """What is asked: the class (family, projector, retrieval, non-size params), the size (n, and the
+    projected dimension m when known) and the scope of the answer."""
 
     family: str
     n: int
@@ -43,11 +55,72 @@ class Query:
     retrieval: Optional[str] = None
     params: dict = field(default_factory=dict)
     tau: Optional[float] = None
+    m: Optional[int] = None
+    scope: str = "class"
+    size: str = ""
 
     def __post_init__(self) -> None:
         if isinstance(self.n, bool) or not isinstance(self.n, (int, np.integer)) or self.n < 2:
             raise InputError("--n", f"must be an integer >= 2 (points the projection keeps), got {self.n!r}",
                              "for an LP with rows projected give its columns + 1")
+        if self.m is not None and (isinstance(self.m, bool) or not isinstance(self.m, (int, np.integer)) or self.m < 1):
+            raise InputError("--m", f"must be a positive integer (the projected dimension), got {self.m!r}",
+                             "for an LP with rows projected give its rows")
+        if self.scope not in SCOPES:
+            raise InputError("--scope", f"unknown scope {self.scope!r}", f"choose one of {', '.join(SCOPES)}")
+
+
+def _value(text: str):
+    """A KEY=VALUE value as JSON when it parses (numbers, booleans), else the text itself."""
+    try:
+        return json.loads(text)
+    except (TypeError, ValueError):
+        return text
+
+
+def size_of(family_name: str, size: dict, params: Optional[dict] = None) -> tuple[int, int, str]:
+    """(n, m, size label) of a size given in the family's own keys, by the family's own rules.
+
+    >>> size_of("lp-planted", {"rows": "2000", "cols": "4000"})
+    (4001, 2000, 'rows=2000,cols=4000')
+    """
+    from calib.families import get
+
+    family = get(family_name, "--family")
+    unknown = sorted(set(size) - set(family.size_keys))
+    if unknown:
+        raise InputError("--size", f"{unknown[0]!r} is not a size key of {family_name}",
+                         f"give {', '.join(family.size_keys)} (other parameters go in --param)")
+    given = {key: _value(value) if isinstance(value, str) else value for key, value in {**(params or {}), **size}.items()}
+    full = family.resolve(given, "--size")
+    return int(family.n_points(full)), int(family.projected_dim(full)), family.size_label(full)
+
+
+def size_of_mps(path) -> tuple[int, int, str]:
+    """(n, m, label) of an LP in an MPS file: its standard form's columns + 1 and rows (row projection)."""
+    from pathlib import Path
+
+    from calib.problems import read_mps
+    from calib.theory import lp_points
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(str(path), "no such MPS file", "give the path of an .mps or .mps.gz file")
+    lp = read_mps(path).to_standard().lp
+    return lp_points(lp.n_cols), int(lp.n_rows), path.name
+
+
+def size_of_instance(path) -> tuple[str, int, int, str, dict]:
+    """(family, n, m, size label, class params) of an instance saved by calib (its manifest)."""
+    from calib.families import get
+    from calib.instance_io import read_manifest
+
+    manifest = read_manifest(path)
+    family = get(manifest["family"], str(path))
+    params = family.resolve(manifest["params"], str(path))
+    keys = set(family.size_keys)
+    return (family.name, int(family.n_points(params)), int(family.projected_dim(params)), family.size_label(params),
+            {key: value for key, value in params.items() if key not in keys})
 
 
 def select_analysis(table: dict, tau: Optional[float]) -> tuple[dict, str]:
@@ -99,13 +172,30 @@ def class_entries(analysis: dict, query: Query) -> list[dict]:
     return sorted(found, key=lambda entry: entry["n_points"])
 
 
-def _safe_ks(entries: list[dict], confidence: Confidence) -> list[Optional[int]]:
-    """Safe k of each size by the monotone Clopper–Pearson rule at ``confidence``, from the counts."""
+def _lower_bounds(entry: dict, confidence: Confidence, scope: str) -> np.ndarray:
+    """Per-k lower bounds of one entry in ``scope`` at ``confidence``, recomputed from its counts."""
+    grid = entry["grid"]
+    successes, trials = [p["successes"] for p in grid], [p["trials"] for p in grid]
+    if scope == "instances":
+        return clopper_pearson_lower(successes, trials, confidence.level)
+    anova = entry["class"]["anova"]
+    fields = Anova(anova["ss_between"], anova["ss_within"], int(anova["df_between"]), int(anova["df_within"]),
+                   anova["n0"], int(anova["instances"]))
+    sizes = [p["cluster_size"] for p in grid]
+    return class_lower_bound(successes, trials, sizes, design_rho(fields, sizes, confidence.level), confidence.level)
+
+
+def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class") -> list[tuple[Optional[int], str]]:
+    """(safe k, reason) of each size in ``scope`` by the monotone rule at ``confidence``, from the counts."""
     out = []
     for entry in entries:
-        grid = entry["grid"]
-        lower = clopper_pearson_lower([p["successes"] for p in grid], [p["trials"] for p in grid], confidence.level)
-        out.append(safe_k_rule([p["k"] for p in grid], lower >= confidence.target)[0])
+        lower = _lower_bounds(entry, confidence, scope)
+        safe, reason = safe_k_rule([p["k"] for p in entry["grid"]], lower >= confidence.target)
+        if scope == "class" and safe is None:
+            from calib.analysis.cells import class_reason
+
+            reason = class_reason(safe, reason, entry["instances"], confidence.target, confidence.level)
+        out.append((safe, reason))
     return out
 
 
@@ -145,8 +235,38 @@ def transition_at(entries: list[dict], n: int) -> Transition:
 
 
 def _measured_range(entries: list[dict], n: int) -> dict:
+    """The measured n, whether ``n`` lies outside them, and how far (x the largest / smallest measured n)."""
     sizes = [entry["n_points"] for entry in entries]
-    return {"measured_n": sizes, "extrapolated": not (min(sizes) <= n <= max(sizes))}
+    low, high = min(sizes), max(sizes)
+    factor = n / high if n > high else (low / n if n < low else None)
+    side = "largest" if n > high else "smallest"
+    return {"measured_n": sizes, "extrapolated": factor is not None,
+            "extrapolation": "" if factor is None else f"n = {n} is {factor:.3g} x the {side} measured n ({high if n > high else low})"}
+
+
+NO_REDUCTION = "no reduction meets the target at this size"
+
+
+def bounded(value: float, m: Optional[int]) -> tuple[Optional[int], str]:
+    """A law's value as an answer: rounded up, at least 1, never above m (module text).
+
+    >>> bounded(12.2, 40), bounded(-3.0, 40), bounded(47.0, 40)
+    ((13, ''), (1, 'the law gives -3 < 1: raised to 1'), (None, 'no reduction meets the target at this size (the law gives 47 > m = 40)'))
+    """
+    k = math.ceil(value - 1e-9)
+    if m is not None and k > m:
+        return None, f"{NO_REDUCTION} (the law gives {value:.3g} > m = {m})"
+    if k < 1:
+        return 1, f"the law gives {value:.3g} < 1: raised to 1"
+    return k, ""
+
+
+def _measured(entries: list[dict], query: Query) -> Optional[int]:
+    """Index of the measured size the query names (same n, and same m when known), else None."""
+    for index, entry in enumerate(entries):
+        if entry["n_points"] == query.n and (query.m is None or entry["projected_dim"] == query.m):
+            return index
+    return None
 
 
 def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) -> dict:
@@ -156,23 +276,38 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)
     sizes = [entry["n_points"] for entry in entries]
-    safe = _safe_ks(entries, confidence)
-    law = fit_law(sizes, safe)
-    answer = {"family": query.family, "n": query.n, "projector": query.projector, "retrieval": entries[0]["retrieval"],
+    answers = safe_ks(entries, confidence, query.scope)
+    censored = [censoring(k, reason, entry["projected_dim"]) for (k, reason), entry in zip(answers, entries)]
+    law = censored_law(sizes, [k for k, _ in answers], censored)
+    answer = {"family": query.family, "n": query.n, "m": query.m, "size": query.size, "scope": query.scope,
+              "projector": query.projector, "retrieval": entries[0]["retrieval"],
               "tau": analysis["tau"], "predicate": analysis["predicate"]["name"], "delta": confidence.delta,
               "confidence": confidence.level, "note": note, **_measured_range(entries, query.n),
-              "measured_safe_k": safe, "law": {"a": law.a, "C": law.C, "reason": law.reason}}
-    if law.ok:
+              "instances": [entry["instances"] for entry in entries],
+              "measured_safe_k": [k for k, _ in answers], "censored": censored,
+              "law": {"a": law.a, "C": law.C, "reason": law.reason}, "flag": ""}
+    if query.m is None:
+        answer["flag"] = "projected dimension unknown (give --size, --mps or --m): the answer is not capped at m"
+    measured = _measured(entries, query)
+    if measured is not None:
+        k, reason = answers[measured]
+        answer |= {"safe_k": k, "safe_k_law_value": None,
+                   "method": "measured at this size" + (f": none ({reason})" if k is None else "")}
+    elif law.ok:
         value = law.at(query.n)
-        answer |= {"safe_k": max(1, math.ceil(value - 1e-9)), "safe_k_law_value": value, "method": "law k = a + C ln n"}
-    elif query.n in sizes and safe[sizes.index(query.n)] is not None:
-        answer |= {"safe_k": safe[sizes.index(query.n)], "safe_k_law_value": None, "method": "measured at this n (no law)"}
+        k, flag = bounded(value, query.m)
+        answer |= {"safe_k": k, "safe_k_law_value": value, "method": "law k = a + C ln n over the uncensored sizes"}
+        answer["flag"] = "; ".join(filter(None, [flag, answer["flag"]]))
     else:
-        reasons = sorted({reason for entry in entries for reason in [entry["safe_k_reason"]] if reason})
+        reasons = sorted({reason for _, reason in answers if reason})
         answer |= {"safe_k": None, "safe_k_law_value": None,
                    "method": f"none: {law.reason}" + (f" ({'; '.join(reasons)})" if reasons else "")}
     model = transition_at(entries, query.n)
-    answer |= {"k_model": model.k_at(confidence.target) if model.k50 else None, "model_reason": model.reason}
+    k_model = model.k_at(confidence.target) if model.k50 else None
+    model_reason = model.reason
+    if k_model is not None and query.m is not None and k_model > query.m:
+        k_model, model_reason = None, f"{NO_REDUCTION} (the model reaches the target at k = {model.k_at(confidence.target):.3g} > m = {query.m})"
+    answer |= {"k_model": k_model, "model_reason": model_reason}
     return answer
 
 

@@ -62,17 +62,20 @@ def _size_text(analysis: dict):
 
 
 def entries_table(analysis: dict) -> str:
-    """One line per cell: safe k, the transition and the published bounds with their ratios."""
+    """One line per cell: the class safe k (the default answer), the safe k for the instances measured,
+    solver errors, the transition and the published bounds (at the table's delta) with their ratios."""
     rules = sorted({name for entry in analysis["entries"] for name in entry["theory"]["bounds"]})
-    header = ["family", "size", "projector", "retrieval", "m", "n", "safe k", "safe k / m", "why", "k50",
-              "k50 interval", "k at target", "fit note", "eps"]
+    header = ["family", "size", "projector", "retrieval", "m", "n", "instances", "class safe k", "class: why",
+              "safe k (these instances)", "safe k / m", "why", "solver errors", "k50", "k50 interval", "k at target",
+              "fit note", "eps"]
     header += [f"{rule} k (ratio)" for rule in rules]
     lines = []
     size = _size_text(analysis)
     for entry in analysis["entries"]:
         fit, bounds = entry["transition"], entry["theory"]["bounds"]
         line = [entry["family"], size(entry), entry["projector"], entry["retrieval"], entry["projected_dim"],
-                entry["n_points"], entry["safe_k"], entry["safe_fraction"], entry["safe_k_reason"], fit["k50"],
+                entry["n_points"], entry["instances"], entry["class"]["safe_k"], entry["class"]["reason"], entry["safe_k"],
+                entry["safe_fraction"], entry["safe_k_reason"], entry["solver_errors"], fit["k50"],
                 _interval(fit["k50_interval"]), fit["k_target"], fit["reason"], entry["theory"]["eps"]]
         line += [f"{bounds[rule]['k']} ({bounds[rule]['ratio']:.3g}×)" if rule in bounds and bounds[rule]["ratio"]
                  else (bounds[rule]["k"] if rule in bounds else None) for rule in rules]
@@ -100,12 +103,14 @@ def laws_table(analysis: dict) -> str:
 
 def grid_table(analysis: dict) -> str:
     """Every (cell, k) line of the analysis."""
-    header = ["family", "size", "projector", "retrieval", "k", "trials", "successes", "errors", "rate",
-              "Clopper-Pearson lower", "Wilson lower", "passes", "median error", "90% error"]
+    header = ["family", "size", "projector", "retrieval", "k", "trials", "successes", "errors", "solver errors",
+              "instances", "rate", "Clopper-Pearson lower", "Wilson lower", "passes", "class lower", "class passes",
+              "median error", "90% error"]
     size = _size_text(analysis)
     lines = [[entry["family"], size(entry), entry["projector"], entry["retrieval"], point["k"], point["trials"],
-              point["successes"], point["errors"], point["rate"], point["lower_bound"], point["wilson_lower"],
-              "yes" if point["passes"] else "no", point["error_median"], point["error_q90"]]
+              point["successes"], point["errors"], point["solver_errors"], point["instances"], point["rate"],
+              point["lower_bound"], point["wilson_lower"], "yes" if point["passes"] else "no", point["class_lower_bound"],
+              "yes" if point["class_passes"] else "no", point["error_median"], point["error_q90"]]
              for entry in analysis["entries"] for point in entry["grid"]]
     return html_table(header, lines)
 
@@ -133,7 +138,8 @@ def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
             ["campaign", campaign["name"]], ["spec fingerprint", campaign["spec_fingerprint"]],
             ["root seed", campaign["root_seed"]], ["code version", table["code_version"]],
             ["target success rate", target["success_rate"]], ["confidence", target["confidence"]],
-            ["bound", target["bound"]], ["interval", target["interval"]],
+            ["bound", target["bound"]], ["class bound", target["class_bound"]], ["interval", target["interval"]],
+            ["solver errors", target["solver_errors_rule"]], ["time limits", target["time_limit"]],
             ["eps of the bounds", table["theory"]["eps_convention"]], ["table checksum", table["checksum"]]]),
     ]
     for analysis in table["analyses"]:

@@ -28,10 +28,12 @@ together, which is how a table carries a ladder of tolerances.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, replace
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
-import pandas as pd
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 from calib.errors import InputError
 from calib.metrics import FIELDS
@@ -145,6 +147,7 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
 
     Rows of kinds the predicate does not cover come out False; drop them first (:meth:`Predicate.covers`).
     """
+    import pandas as pd  # here, not at import: the CLI builds its parsers from this module's presets
     success = rows["status"].eq("ok")
     orig_feasible = rows["orig_status"].eq("optimal")
     if predicate.classify:

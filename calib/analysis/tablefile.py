@@ -1,6 +1,6 @@
 """Safe-k table files: stable bytes, a checksum against edits, and validation on reading.
 
-The JSON Schema of the format ships in the package (``calib/schemas/safe-k-table.v1.json``) so
+The JSON Schema of the format ships in the package (``calib/schemas/safe-k-table.v2.json``) so
 other tools can read a table without reading calib's code. A table carries
 ``checksum = "sha256:" + sha256(canonical JSON of the table without its checksum)``, where the
 canonical JSON has sorted keys and no whitespace; a table edited by hand no longer matches and is
@@ -17,13 +17,13 @@ from pathlib import Path
 from calib import __version__
 from calib.errors import InputError
 
-SCHEMA_FILE = "safe-k-table.v1.json"
+SCHEMA_FILE = "safe-k-table.v2.json"
 FORMAT = "calib.safe-k"
-VERSION = 1
+VERSION = 2
 
 
 def schema() -> dict:
-    """The JSON Schema of table format version 1."""
+    """The JSON Schema of the table format (version :data:`VERSION`)."""
     return json.loads(resources.files("calib").joinpath("schemas", SCHEMA_FILE).read_text(encoding="utf-8"))
 
 

@@ -1,24 +1,34 @@
-"""Safe-k tables: from the raw store to per-(family, size, projector, retrieval) safe k and laws.
+"""Safe-k tables: the JSON of per-(family, size, projector, retrieval) safe k, both scopes, and laws.
 
-For each cell and each swept k: trials, successes, success rate, the one-sided Clopper–Pearson
-and Wilson lower bounds at the chosen confidence, and the median and 90th percentile of the error
-metric. Per cell:
+Data flow: :func:`calib.analysis.rows.load_rows` reads the store (the edge), :func:`build_analysis`
+is a pure function of that frame, :func:`write_table` writes the files (the other edge). The
+statistics of a cell come from :func:`calib.analysis.cells.cell_stats`; this module assembles their
+JSON (:func:`cell_entry` is the one place a cell's JSON is put together).
 
-- the safe k: the smallest swept k whose Clopper–Pearson bound reaches the target rate 1 - delta
-  while every larger swept k does too (a monotone rule: a lucky small k below a failing larger one
-  is not trusted); null with the reason when there is none;
-- the transition from a logistic fit of success on ln k (:mod:`calib.analysis.logistic`): k50 and
-  the k where the fitted rate is 1 - delta, each with a delta-method interval;
-- the published bounds at the eps of :mod:`calib.analysis.bounds` and their ratio to the safe k.
+Per cell and swept k: trials, successes, instances, solver errors (apart), the success rate, the
+one-sided Clopper–Pearson and Wilson lower bounds of the pooled count (scope: these instances),
+the class lower bound of :mod:`calib.analysis.scope` (scope: the class), and the median and 90th
+percentile of the error metric. Per cell:
 
-Per class (family with its non-size parameters, projector, retrieval) across sizes: the law
-k = a + C ln n for the safe k and for k50 (:mod:`calib.analysis.law`), beside the constants of the
-published bounds.
+- the safe k of each scope: the smallest swept k whose bound reaches 1 - delta while every larger
+  swept k does too (a monotone rule); null with the reason when there is none (for the class: the
+  design's limit, e.g. "3 instances cannot certify 90% ...");
+- the transition from a logistic fit of success on ln k with the cluster-robust covariance over
+  instances: k50 and the k where the fitted rate is 1 - delta, each with its interval;
+- the published bounds at the eps of :mod:`calib.analysis.bounds` and at the table's failure
+  probability delta, with their ratio to each safe k.
+
+Per class (family with its non-size parameters, projector, retrieval) across sizes: the laws
+k = a + C ln n of the safe k of each scope and of k50 (:mod:`calib.analysis.law`), fitted on the
+uncensored sizes only (no safe k, a safe k equal to the projected dimension, or every swept k
+passing are censored: shown, never fitted), beside the constants of the published bounds.
+
+Solver errors: a projected solve that ends in a solver error is its own outcome (counted per k,
+left out of the rates unless ``solver_errors="fail"``); a time limit is a failure.
 
 A table holds one analysis per tolerance of a ladder (``taus``), all at one confidence target.
 Timings are not part of the table (they differ between two runs of one campaign, the table must
-not): see :mod:`calib.analysis.timing`. These are empirical statements about the instances
-measured, not proofs.
+not): see :mod:`calib.analysis.timing`. These are empirical statements, not proofs.
 """
 
 from __future__ import annotations
@@ -33,20 +43,20 @@ import pandas as pd
 
 from calib import SCHEMA_VERSION, __version__, theory
 from calib.analysis import bounds
+from calib.analysis.cells import ALL_PASS, CellStats, cell_stats, instances_needed, safe_k_rule
+from calib.analysis.classrule import fraction_rule
 from calib.analysis.law import Law, fit_law
-from calib.analysis.logistic import LogisticFit, fit_logistic
-from calib.analysis.stats import clopper_pearson_lower, wilson_lower
-from calib.analysis.success import Predicate, evaluate, primary_tau, with_tau
+from calib.analysis.logistic import LogisticFit
+from calib.analysis.rows import load_rows
+from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate, primary_tau, with_tau
 from calib.analysis.tablefile import FORMAT, VERSION, dumps, seal
 from calib.errors import InputError
-from calib.metrics import FIELDS
-from calib.sweep.store import DAMAGED_FIX, Store
+from calib.sweep.store import Store
 
 CELL_KEYS = ["family", "size", "params", "projector", "retrieval"]
 CLASS_KEYS = ["family", "class_params", "projector", "retrieval"]
 NOTICE = ("Safe-k tables are empirical evidence on the instances measured, not a proof: check a reduction "
           "policy on your own instances (`calib probe`) before relying on it in production.")
-ALL_PASS = "all swept k pass: the safe k may be smaller than the grid shows"
 _DIGITS = 6
 
 
@@ -82,96 +92,26 @@ def num(value, digits: int = _DIGITS) -> Optional[float]:
     return float(f"{value:.{digits}g}")
 
 
-# ----- rows ---------------------------------------------------------------------------------
-
-def _size_keys(family: str, params: dict) -> tuple:
-    from calib.families import REGISTRY
-
-    return REGISTRY[family].size_keys if family in REGISTRY else tuple(sorted(params))
-
-
-def _size_label(family: str, params: dict) -> str:
-    from calib.families.base import size_label
-
-    return size_label(_size_keys(family, params), params)
-
-
-def _class_params(family: str, params: dict) -> str:
-    keys = set(_size_keys(family, params))
-    return json.dumps({key: value for key, value in params.items() if key not in keys}, sort_keys=True)
-
-
-def load_rows(store: Store) -> pd.DataFrame:
-    """Tidy table: one row per (trial, retrieval) with instance columns and every metric field.
-
-    Rows that calib could not have written (metrics or parameters that are not JSON objects, a
-    trial without its instance, a k that is not a positive integer) are refused with
-    :class:`InputError` naming the store and the trial, never guessed around.
-    """
-    db = store.db
-    try:
-        trials = pd.read_sql_query("SELECT * FROM trials ORDER BY trial_id, retrieval", db)
-        instances = pd.read_sql_query(
-            "SELECT instance_id, family, params, idx, kind, projected_dim, n_points, orig_seconds FROM instances", db)
-    except (pd.errors.DatabaseError, ValueError) as error:
-        raise InputError(str(store.path), f"cannot read the trial rows: {error}", DAMAGED_FIX) from None
-    rows = trials.merge(instances, on="instance_id", how="left", validate="many_to_one")
-    _check_rows(rows, store.path)
-    metrics = [_json_object(text, store.path, trial, "metrics") if isinstance(text, str) else {}
-               for text, trial in zip(rows["metrics"], rows["trial_id"])]
-    expanded = pd.DataFrame.from_records([{name: record.get(name) for name in FIELDS} for record in metrics],
-                                         index=rows.index, columns=list(FIELDS))
-    rows = pd.concat([rows.drop(columns=["metrics"]), expanded], axis=1)
-    decoded = [_json_object(params, store.path, trial, "instance params") for params, trial in zip(rows["params"], rows["trial_id"])]
-    rows["size"] = [_size_label(family, params) for family, params in zip(rows["family"], decoded)]
-    rows["class_params"] = [_class_params(family, params) for family, params in zip(rows["family"], decoded)]
-    return rows
-
-
-def _check_rows(rows: pd.DataFrame, path) -> None:
-    """Refuse rows whose instance is missing or whose k or replicate is not an integer."""
-    orphans = rows["family"].isna()
-    if orphans.any():
-        trial = rows.loc[orphans, "trial_id"].iloc[0]
-        raise InputError(str(path), f"trial {trial} names an instance that is not stored", DAMAGED_FIX)
-    for column, minimum in (("k", 1), ("replicate", 0), ("projected_dim", 1), ("n_points", 1)):
-        values = rows[column]
-        if pd.api.types.is_integer_dtype(values.dtype):  # what SQLite gives for INTEGER cells: one vector test
-            good = values >= minimum
-        else:
-            good = values.map(lambda v: isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= minimum)
-        if not good.all():
-            bad = rows.loc[~good.astype(bool)].iloc[0]
-            raise InputError(str(path), f"trial {bad['trial_id']} has {column} = {bad[column]!r}, not an integer >= {minimum}", DAMAGED_FIX)
-
-
-def _json_object(text, path, trial: str, what: str) -> dict:
-    try:
-        value = json.loads(text)
-    except (TypeError, ValueError):
-        value = None
-    if not isinstance(value, dict):
-        raise InputError(str(path), f"trial {trial}: its {what} are not a JSON object", DAMAGED_FIX)
-    return value
-
-
 # ----- per cell -----------------------------------------------------------------------------
 
-def safe_k_rule(ks, passes) -> tuple[Optional[int], str]:
-    """The monotone safe-k rule on a grid sorted by k: (safe k or None, reason).
+#: how projected solves that end in a solver error are read
+SOLVER_ERRORS = ("exclude", "fail")
+SOLVER_ERROR_TEXT = {
+    "exclude": "a projected solve that ends in a solver error (projected status 'error') is counted in its own "
+               "column and left out of the rates (it says nothing about k); --solver-errors fail counts it as a failure",
+    "fail": "a projected solve that ends in a solver error counts as a failure (strict reading, --solver-errors fail)",
+}
+TIME_LIMIT_TEXT = ("a projected solve or trial that hits its time limit is a failure (a policy cannot wait for it); "
+                   "a trial that raised or crashed is a failure, counted in the errors column")
+CLASS_SCOPE = ("the class the instances were drawn from: Clopper-Pearson on the counts divided by the design effect "
+               "1 + (m - 1) rho_U, rho_U the upper confidence limit of the intraclass correlation (Kish 1965; "
+               "Rao & Scott 1992); with one replicate, or when every instance decides alone, a binomial on instances")
+INSTANCES_SCOPE = "the instances measured: exact Clopper-Pearson on all trials, valid conditional on these instances"
 
-    >>> safe_k_rule([4, 8, 16, 32], [True, False, True, True])
-    (16, '')
-    >>> safe_k_rule([4, 8], [False, False])
-    (None, 'no swept k reaches the target')
-    """
-    ks, passes = np.asarray(ks), np.asarray(passes, dtype=bool)
-    if not passes[-1]:
-        reason = "no swept k reaches the target" if not passes.any() else "the largest swept k misses the target"
-        return None, reason
-    failing = np.flatnonzero(~passes)
-    first = failing[-1] + 1 if failing.size else 0
-    return int(ks[first]), (ALL_PASS if first == 0 else "")
+
+def solver_error_mask(rows: pd.DataFrame) -> pd.Series:
+    """Rows whose trial ran but whose projected solve ended in a solver error (its status 'error')."""
+    return rows["status"].eq("ok") & rows["proj_status"].eq("error") & rows["kind"].isin(OPTIMIZATION_KINDS)
 
 
 def _error_column(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
@@ -185,29 +125,32 @@ def _error_column(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
     return error
 
 
-def summarise(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence) -> pd.DataFrame:
-    """Per (cell, k): trials, successes, rate, bounds, error quantiles; rows already covered."""
-    rows = rows.assign(success=evaluate(rows, predicate).astype(int), error=_error_column(rows, predicate))
-    grouped = rows.groupby(CELL_KEYS + ["k"], sort=True).agg(
-        trials=("success", "size"), successes=("success", "sum"), kind=("kind", "first"),
-        class_params=("class_params", "first"), projected_dim=("projected_dim", "first"),
-        n_points=("n_points", "first"), k_label=("k_label", "first"),
-        errors=("status", lambda s: int((s != "ok").sum())),
-        error_median=("error", "median"), error_q90=("error", lambda e: e.quantile(0.9) if e.notna().any() else np.nan),
-    ).reset_index()
-    grouped["rate"] = grouped["successes"] / grouped["trials"]
-    grouped["lower_bound"] = clopper_pearson_lower(grouped["successes"], grouped["trials"], confidence.level)
-    grouped["wilson_lower"] = wilson_lower(grouped["successes"], grouped["trials"], confidence.level)
-    grouped["passes"] = grouped["lower_bound"] >= confidence.target
-    return grouped
+def _per_k(cell: pd.DataFrame) -> pd.DataFrame:
+    """Per k of one cell's kept rows: provenance label, trials that raised, error quantiles."""
+    return cell.groupby("k", sort=True).agg(
+        k_label=("k_label", "first"), errors=("status", lambda s: int((s != "ok").sum())),
+        error_median=("error", "median"),
+        error_q90=("error", lambda e: e.quantile(0.9) if e.notna().any() else np.nan))
 
 
-def _grid(cell: pd.DataFrame) -> list[dict]:
-    return [{"k": int(row.k), "k_source": row.k_label or "", "trials": int(row.trials),
-             "successes": int(row.successes), "errors": int(row.errors), "rate": num(row.rate),
-             "lower_bound": num(row.lower_bound), "wilson_lower": num(row.wilson_lower), "passes": bool(row.passes),
-             "error_median": num(row.error_median), "error_q90": num(row.error_q90)}
-            for row in cell.itertuples()]
+def _grid(stats: CellStats, per_k: pd.DataFrame, solver_errors: pd.Series) -> list[dict]:
+    klass = stats.klass
+    return [{"k": int(k), "k_source": per_k.at[k, "k_label"] or "", "trials": int(stats.trials[i]),
+             "successes": int(stats.successes[i]), "errors": int(per_k.at[k, "errors"]),
+             "solver_errors": int(solver_errors.get(k, 0)), "instances": int(stats.instances_per_k[i]),
+             "rate": num(stats.successes[i] / stats.trials[i]), "lower_bound": num(stats.lower[i]),
+             "wilson_lower": num(stats.wilson[i]), "passes": bool(stats.passes[i]),
+             "class_lower_bound": num(klass.lower[i]), "class_passes": bool(stats.class_passes[i]),
+             "effective_trials": num(klass.effective_trials[i]), "cluster_size": num(klass.cluster_size[i]),
+             "error_median": num(per_k.at[k, "error_median"]), "error_q90": num(per_k.at[k, "error_q90"])}
+            for i, k in enumerate(stats.ks)]
+
+
+def interval_scope(fit: LogisticFit) -> str:
+    """What a transition's intervals hold for."""
+    if fit.clusters is None:
+        return "the instance measured (binomial covariance; one instance says nothing of a class)"
+    return f"the class (cluster-robust covariance over {fit.clusters} instances)"
 
 
 def transition(fit: LogisticFit, confidence: Confidence) -> dict:
@@ -215,76 +158,156 @@ def transition(fit: LogisticFit, confidence: Confidence) -> dict:
     if not fit.ok:
         low, high = fit.bracket
         return {"reason": fit.reason, "bracket": [num(low), num(high)], "intercept": None, "slope": None,
-                "covariance": None, "k50": None, "k50_interval": None, "k_target": None, "k_target_interval": None}
+                "covariance": None, "clusters": fit.clusters, "interval_scope": "", "k50": None, "k50_interval": None, "k_target": None,
+                "k_target_interval": None}
     k50, k50_low, k50_high = fit.k_at(0.5, confidence.level)
     k_target, target_low, target_high = fit.k_at(confidence.target, confidence.level)
     return {"reason": "", "bracket": None, "intercept": num(fit.intercept), "slope": num(fit.slope),
-            "covariance": [[num(value) for value in line] for line in fit.covariance],
-            "k50": num(k50), "k50_interval": [num(k50_low), num(k50_high)],
+            "covariance": [[num(value) for value in line] for line in fit.covariance], "clusters": fit.clusters,
+            "interval_scope": interval_scope(fit), "k50": num(k50), "k50_interval": [num(k50_low), num(k50_high)],
             "k_target": num(k_target), "k_target_interval": [num(target_low), num(target_high)]}
 
 
-def _theory(kind: str, n_points: int, safe_k: Optional[int], predicate: Predicate, eps: Optional[float]) -> dict:
+def _theory(kind: str, n_points: int, safe_k: Optional[int], class_safe_k: Optional[int], predicate: Predicate,
+            eps: Optional[float], delta: float) -> dict:
     chosen, source = bounds.theory_eps(predicate, kind, eps)
     if chosen is None:
-        return {"eps": None, "eps_source": source, "bounds": {}}
-    return {"eps": chosen, "eps_source": source,
-            "bounds": {name: {"k": k, "ratio": num(bounds.ratio(k, safe_k))}
-                       for name, k in bounds.bound_k(n_points, chosen).items()}}
+        return {"eps": None, "eps_source": source, "failure": delta, "bounds": {}}
+    return {"eps": chosen, "eps_source": source, "failure": delta,
+            "bounds": {name: {"k": bound["k"], "failure": bound["failure"], "ratio": num(bounds.ratio(bound["k"], safe_k)),
+                              "class_ratio": num(bounds.ratio(bound["k"], class_safe_k))}
+                       for name, bound in bounds.bound_k(n_points, chosen, delta).items()}}
 
 
-def cell_entry(cell: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float]) -> dict:
-    """The table entry of one (family, size, params, projector, retrieval) cell, sorted by k."""
-    cell = cell.sort_values("k")
+def _class_json(stats: CellStats, projected_dim: int, confidence: Confidence) -> dict:
+    klass = stats.klass
+    return {"safe_k": stats.class_safe_k,
+            "safe_fraction": None if stats.class_safe_k is None else num(stats.class_safe_k / projected_dim),
+            "reason": stats.class_reason, "scope": CLASS_SCOPE, "icc": num(klass.rho), "icc_upper": num(klass.rho_upper),
+            "anova": {key: value if isinstance(value, int) else num(value) for key, value in klass.anova.as_dict().items()},
+            "instances_needed": instances_needed(confidence.target, confidence.level)}
+
+
+def cell_entry(cell: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float],
+               solver_errors: str = "exclude") -> Optional[dict]:
+    """The table entry of one (family, size, params, projector, retrieval) cell from its rows.
+
+    ``cell`` holds one row per trial with the columns of :func:`calib.analysis.rows.load_rows` plus
+    ``success``, ``error`` and ``solver_error`` (see :func:`build_analysis`). Rows whose projected
+    solve ended in a solver error are counted apart and, with ``solver_errors="exclude"``, left out
+    of the counts. None when no row is left.
+    """
     first = cell.iloc[0]
-    safe_k, reason = safe_k_rule(cell["k"], cell["passes"])
-    fit = fit_logistic(cell["k"], cell["successes"], cell["trials"])
+    kept = cell[~cell["solver_error"]] if solver_errors == "exclude" else cell
+    if kept.empty:
+        return None
+    stats = cell_stats(kept["k"].to_numpy(), kept["instance_id"].to_numpy(), kept["success"].to_numpy(),
+                       confidence.target, confidence.level)
     projected_dim, n_points = int(first["projected_dim"]), int(first["n_points"])
+    solver_by_k = cell.loc[cell["solver_error"], "k"].value_counts()
     return {
         "family": first["family"], "size": first["size"], "params": json.loads(first["params"]),
         "class_params": json.loads(first["class_params"]), "projector": first["projector"],
         "retrieval": first["retrieval"], "kind": first["kind"], "projected_dim": projected_dim, "n_points": n_points,
-        "safe_k": safe_k, "safe_fraction": None if safe_k is None else num(safe_k / projected_dim),
-        "safe_k_reason": reason, "error_metric": predicate.error_metric(first["kind"]),
-        "transition": transition(fit, confidence),
-        "theory": _theory(first["kind"], n_points, safe_k, predicate, eps),
-        "grid": _grid(cell),
+        "instances": stats.counts.n_instances, "solver_errors": int(cell["solver_error"].sum()),
+        "safe_k": stats.safe_k, "safe_fraction": None if stats.safe_k is None else num(stats.safe_k / projected_dim),
+        "safe_k_reason": stats.reason, "safe_k_scope": INSTANCES_SCOPE,
+        "class": _class_json(stats, projected_dim, confidence),
+        "error_metric": predicate.error_metric(first["kind"]),
+        "transition": transition(stats.fit, confidence),
+        "theory": _theory(first["kind"], n_points, stats.safe_k, stats.class_safe_k, predicate, eps, confidence.delta),
+        "grid": _grid(stats, _per_k(kept), solver_by_k),
     }
 
 
 # ----- per class: laws ----------------------------------------------------------------------
 
-def law_json(law: Law, sizes: list[str], n: list[int], values: list, name: str) -> dict:
-    """JSON view of a law with one point per size (residual None where the size has no value)."""
+def censoring(value, reason: str, projected_dim: int) -> str:
+    """Why a size's value is not fitted as a value ('' when it is): none, no reduction, an upper bound.
+
+    >>> censoring(None, "no swept k reaches the target", 40)
+    'no safe k (no swept k reaches the target)'
+    >>> censoring(40, "", 40)
+    'the safe k is the projected dimension: no reduction'
+    >>> censoring(12, "", 40)
+    ''
+    """
+    if value is None:
+        return f"no safe k ({reason})" if reason else "no value"
+    if value >= projected_dim:
+        return "the safe k is the projected dimension: no reduction"
+    if reason == ALL_PASS:
+        return "every swept k passes: the safe k is an upper bound"
+    return ""
+
+
+def law_json(law: Law, sizes: list[str], n: list[int], values: list, name: str, censored: list[str]) -> dict:
+    """JSON view of a law with one point per size; censored points carry the reason and no residual."""
     residuals = iter(law.residuals)
-    points = [{"size": size, "n": int(count), name: value,
-               "residual": num(next(residuals)) if (law.ok and value is not None) else None}
-              for size, count, value in zip(sizes, n, values)]
+    points = [{"size": size, "n": int(count), name: value, "censored": bool(why), "censoring": why,
+               "residual": num(next(residuals)) if (law.ok and not why) else None}
+              for size, count, value, why in zip(sizes, n, values, censored)]
     return {"a": num(law.a), "C": num(law.C), "C_se": num(law.C_se), "n_min": law.n_min, "n_max": law.n_max,
-            "reason": law.reason, "points": points}
+            "reason": law.reason, "censored": sum(bool(why) for why in censored), "points": points}
 
 
-def class_law(entries: list[dict]) -> dict:
-    """The laws of one class (its entries across sizes, sorted by n) beside the published constants."""
-    entries = sorted(entries, key=lambda entry: (entry["n_points"], entry["size"]))
-    first = entries[0]
+def censored_law(n: list[int], values: list, censored: list[str]) -> Law:
+    """The law k = a + C ln n over the uncensored sizes only (at least two needed)."""
+    law = fit_law(n, [None if why else value for value, why in zip(values, censored)])
+    if not law.ok and any(censored):
+        return Law(reason=f"{law.reason} ({sum(map(bool, censored))} censored size(s) are not fitted as values)")
+    return law
+
+
+def _law_of(entries: list[dict], values: list, reasons: list[str], name: str) -> tuple[Law, dict]:
     sizes = [entry["size"] for entry in entries]
     n = [entry["n_points"] for entry in entries]
-    safe = [entry["safe_k"] for entry in entries]
+    censored = [censoring(value, reason, entry["projected_dim"]) for value, reason, entry in zip(values, reasons, entries)]
+    law = censored_law(n, values, censored)
+    return law, law_json(law, sizes, n, values, name, censored)
+
+
+def class_law(entries: list[dict], rule: Optional[dict] = None) -> dict:
+    """The laws of one class (its entries across sizes, sorted by n) beside the published constants:
+    for the safe k of both scopes and for k50, each fitted on its uncensored sizes only; with the
+    class's policy rule (:func:`policy_rule`) when given."""
+    entries = sorted(entries, key=lambda entry: (entry["n_points"], entry["size"]))
+    first = entries[0]
+    safe_law, safe_json = _law_of(entries, [e["safe_k"] for e in entries], [e["safe_k_reason"] for e in entries], "safe_k")
+    _, class_json = _law_of(entries, [e["class"]["safe_k"] for e in entries], [e["class"]["reason"] for e in entries], "safe_k")
     k50 = [entry["transition"]["k50"] for entry in entries]
-    safe_law, k50_law = fit_law(n, safe), fit_law(n, k50)
-    safe_json = law_json(safe_law, sizes, n, safe, "safe_k")
-    for point, entry in zip(safe_json["points"], entries):
-        point["censored"] = entry["safe_k_reason"] == ALL_PASS
+    _, k50_json = _law_of(entries, k50, [entry["transition"]["reason"] for entry in entries], "k50")
     eps, source = first["theory"]["eps"], first["theory"]["eps_source"]
     rules = {}
     if eps is not None:
         rules = {name: {"C": num(constant), "ratio": num(bounds.ratio(constant, safe_law.C))}
-                 for name, constant in bounds.rule_constants(eps).items()}
+                 for name, constant in bounds.rule_constants(eps, first["theory"]["failure"]).items()}
     return {key: first[key] for key in ("family", "class_params", "projector", "retrieval", "kind")} | {
-        "safe_k_law": safe_json, "k50_law": law_json(k50_law, sizes, n, k50, "k50"),
-        "theory": {"eps": eps, "eps_source": source, "rules": rules},
+        "safe_k_law": safe_json, "class_safe_k_law": class_json, "k50_law": k50_json,
+        "theory": {"eps": eps, "eps_source": source, "rules": rules}, "policy_rule": rule,
     }
+
+
+def policy_rule(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) -> dict:
+    """The rule k = f m certified across the sizes of one class (:mod:`calib.analysis.classrule`).
+
+    The unit is the size for families whose sizes are files (every instance index the same
+    problem), else the instance.
+    """
+    from calib.families import REGISTRY
+
+    if solver_errors == "exclude":
+        rows = rows[~rows["solver_error"]]
+    family = REGISTRY.get(rows["family"].iloc[0])
+    if family is not None and family.fixed:
+        unit, names, word = rows["size"], {}, "file"
+    else:
+        unit = rows["instance_id"]
+        names = {iid: f"{size} instance {iid[:12]}" for iid, size in zip(rows["instance_id"], rows["size"])}
+        word = "instance"
+    names = names or {size: size.split("=", 1)[-1] for size in rows["size"]}
+    return fraction_rule(rows["k_label"].fillna(""), unit.to_numpy(), rows["success"].to_numpy(), names,
+                         confidence.target, confidence.level, word)
 
 
 def class_namer(items: list[dict]):
@@ -333,7 +356,8 @@ def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
     return mask, items
 
 
-def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None) -> dict:
+def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None,
+                   solver_errors: str = "exclude") -> dict:
     """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws."""
     unbounded, excluded_unbounded = unbounded_exclusions(rows)
     rows = rows[~unbounded]
@@ -344,20 +368,41 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
     excluded += excluded_unbounded
     entries = []
     if covered.any():
-        summary = summarise(rows[covered], predicate, confidence)
-        entries = [cell_entry(cell, predicate, confidence, eps) for _, cell in summary.groupby(CELL_KEYS, sort=True)]
+        rows = rows[covered]
+        rows = rows.assign(success=evaluate(rows, predicate).astype(int), error=_error_column(rows, predicate),
+                           solver_error=solver_error_mask(rows))
+        for key, cell in rows.groupby(CELL_KEYS, sort=True):
+            entry = cell_entry(cell, predicate, confidence, eps, solver_errors)
+            if entry is None:
+                excluded.append({"family": key[0], "kind": cell["kind"].iloc[0],
+                                 "reason": f"{key[1]} / {key[3]} / {key[4]}: every projected solve ended in a solver error"})
+            else:
+                entries.append(entry)
     classes: dict[tuple, list] = {}
     for entry in entries:
         classes.setdefault(_class_key(entry), []).append(entry)
-    laws = [class_law(members) for _, members in sorted(classes.items())]
+    rules = {}
+    if entries:
+        for key, class_rows in rows.groupby(CLASS_KEYS, sort=True):
+            rules[(key[0], json.dumps(json.loads(key[1]), sort_keys=True), key[2], key[3])] = \
+                policy_rule(class_rows, confidence, solver_errors)
+    laws = [class_law(members, rules.get(key)) for key, members in sorted(classes.items())]
     return {"tau": primary_tau(predicate), "predicate": predicate.as_dict(), "excluded": excluded,
             "entries": entries, "laws": laws}
 
 
+def check_solver_errors(value: str) -> str:
+    """``--solver-errors`` validated: 'exclude' (default) or 'fail'."""
+    if value not in SOLVER_ERRORS:
+        raise InputError("--solver-errors", f"unknown value {value!r}", f"choose one of {', '.join(SOLVER_ERRORS)}")
+    return value
+
+
 def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                 taus: Optional[Iterable[float]] = None, eps: Optional[float] = None,
-                rows: Optional[pd.DataFrame] = None) -> dict:
+                rows: Optional[pd.DataFrame] = None, solver_errors: str = "exclude") -> dict:
     """The JSON-ready safe-k table of a store: one analysis per tau of the ladder (or the predicate alone)."""
+    solver_errors = check_solver_errors(solver_errors)
     rows = load_rows(store) if rows is None else rows
     if rows.empty:
         raise InputError(str(store.path), "the store has no trial rows yet", "run `calib run SPEC` first")
@@ -369,11 +414,17 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                      "root_seed": store.meta_int("root_seed", 0),
                      "store_schema": store.meta_int("schema_version", SCHEMA_VERSION)},
         "target": {"success_rate": num(confidence.target, 12), "delta": confidence.delta, "confidence": confidence.level,
-                   "bound": "one-sided Clopper-Pearson lower bound (Wilson lower bound shown beside it)",
-                   "interval": "two-sided delta-method interval on ln k at the same confidence"},
-        "theory": {"rules": sorted(theory.RULES), "eps_choice": eps, "eps_convention": bounds.EPS_CONVENTION},
+                   "bound": "instances scope: one-sided Clopper-Pearson lower bound on all trials (Wilson lower bound "
+                            "shown beside it)",
+                   "class_bound": CLASS_SCOPE,
+                   "interval": "two-sided delta-method interval on ln k at the same confidence, from the cluster-robust "
+                               "covariance over instances (Student t with instances - 1 degrees of freedom)",
+                   "solver_errors": solver_errors, "solver_errors_rule": SOLVER_ERROR_TEXT[solver_errors],
+                   "time_limit": TIME_LIMIT_TEXT},
+        "theory": {"rules": sorted(theory.RULES), "eps_choice": eps, "eps_convention": bounds.EPS_CONVENTION,
+                   "failure": confidence.delta},
         "notice": NOTICE,
-        "analyses": [build_analysis(rows, each, confidence, eps) for each in predicates],
+        "analyses": [build_analysis(rows, each, confidence, eps, solver_errors) for each in predicates],
     }
     return seal(table)
 
@@ -389,13 +440,16 @@ def table_to_frame(table: dict) -> pd.DataFrame:
             base = {"tau": analysis["tau"], "predicate": analysis["predicate"]["name"]}
             base |= {key: entry[key] for key in ("family", "size", "projector", "retrieval", "kind", "projected_dim",
                                                   "n_points", "safe_k", "safe_fraction", "safe_k_reason")}
+            base |= {"instances": entry["instances"], "class_safe_k": entry["class"]["safe_k"],
+                     "class_reason": entry["class"]["reason"], "cell_solver_errors": entry["solver_errors"]}
             base |= {"k50": entry["transition"]["k50"], "k_target": entry["transition"]["k_target"],
                      "law_a": law["a"], "law_C": law["C"], "error_metric": entry["error_metric"]}
             for point in entry["grid"]:
                 lines.append({**base, **point})
     frame = pd.DataFrame(lines)
     if not frame.empty:
-        frame["safe_k"] = frame["safe_k"].astype("Int64")
+        for column in ("safe_k", "class_safe_k"):
+            frame[column] = frame[column].astype("Int64")
     return frame
 
 

@@ -13,17 +13,42 @@ def _param(text: str) -> tuple[str, str]:
     return key.strip(), value.strip()
 
 
+def _size(text: str) -> dict:
+    pairs = {}
+    for part in filter(None, (item.strip() for item in text.split(","))):
+        key, value = _param(part)
+        pairs[key] = value
+    if not pairs:
+        raise argparse.ArgumentTypeError(f"expected KEY=VALUE[,KEY=VALUE...], got {text!r}")
+    return pairs
+
+
 def register(subparsers) -> None:
     parser = subparsers.add_parser(
         "lookup", help="answer k for a size from a safe-k table, or the success at a given k",
         description="Read a safe-k table (refused if edited or of another format version) and answer the k that "
-                    "meets the target 1 - delta for the class at size n: from the law k = a + C ln n fitted over "
-                    "the measured sizes (flagged when n lies outside them) and from the logistic model. With --k, "
-                    "answer the other way: the expected success at that k and the measured error.")
+                    "meets the target 1 - delta at a size given in the family's own terms (--size, an MPS file or a "
+                    "saved instance; --n/--m for experts). The class answer by default (--scope instances for the "
+                    "instances measured). A measured size gets its measured safe k; another size the law "
+                    "k = a + C ln n fitted over the uncensored sizes (flagged with how far when n lies outside them). "
+                    "Never a k above the projected dimension: 'no reduction meets the target at this size' instead. "
+                    "With --k, answer the other way: the expected success at that k and the measured error.")
     parser.add_argument("table", help="safe-k table JSON written by `calib tables --json`")
-    parser.add_argument("--family", required=True, help="family name as in the table")
-    parser.add_argument("--n", required=True, type=int,
-                        help="points the projection must keep (the JL n): for an LP with rows projected, its columns + 1")
+    parser.add_argument("--family", help="family name as in the table (read from the manifest with --instance; "
+                                         "an LP family of the table with --mps)")
+    where = parser.add_mutually_exclusive_group(required=True)
+    where.add_argument("--size", type=_size, metavar="KEY=VALUE[,...]",
+                       help="the size in the family's own keys, e.g. --size rows=2000,cols=4000; n and the projected "
+                            "dimension m come from the family's own rules")
+    where.add_argument("--mps", metavar="FILE", help="an LP in an MPS file: n = its standard form's columns + 1, m = its rows")
+    where.add_argument("--instance", metavar="MANIFEST", help="an instance saved by calib (its .json manifest)")
+    where.add_argument("--n", type=int,
+                       help="(experts) points the projection must keep (the JL n): for an LP with rows projected, its "
+                            "columns + 1; give --m too so the answer is capped at the projected dimension")
+    parser.add_argument("--m", type=int, help="(experts, with --n) the projected dimension m of the size")
+    parser.add_argument("--scope", default="class", choices=("class", "instances"),
+                        help="'class' (default): the safe k for the class the measured instances were drawn from; "
+                             "'instances': for the instances measured only")
     parser.add_argument("--projector", required=True, help="projector label as in the table, e.g. gaussian")
     parser.add_argument("--retrieval", help="retrieval method (needed when the table has several)")
     parser.add_argument("--param", type=_param, action="append", default=[], metavar="KEY=VALUE",
@@ -42,7 +67,7 @@ def run(args: argparse.Namespace) -> int:
     from calib.analysis.tables import Confidence
 
     table = read_table(args.table)
-    query = Query(args.family, args.n, args.projector, args.retrieval, dict(args.param), args.tau)
+    query = query_from(args)
     if args.k is not None:
         answer = success_for(table, query, args.k)
     else:
@@ -54,22 +79,51 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+def query_from(args: argparse.Namespace):
+    """The :class:`Query` of the parsed options: n and m from the size, the file or the instance."""
+    from calib.analysis.lookup import Query, size_of, size_of_instance, size_of_mps
+    from calib.errors import InputError
+
+    params, family, m, label = dict(args.param), args.family, args.m, ""
+    if args.instance:
+        family, n, m, label, class_params = size_of_instance(args.instance)
+        if args.family and args.family != family:
+            raise InputError("--family", f"{args.family!r} differs from the instance's family {family!r}", "omit --family")
+        params = {**{key: json.dumps(value) for key, value in class_params.items() if value is not None}, **params}
+    elif family is None:
+        raise InputError("--family", "is required with --size, --mps and --n", "e.g. --family lp-planted")
+    elif args.mps:
+        n, m, label = size_of_mps(args.mps)
+    elif args.size is not None:
+        n, m, label = size_of(family, args.size, params)
+    else:
+        n = args.n
+    if args.m is not None and args.n is None:
+        raise InputError("--m", "goes with --n only", "the other size options compute m themselves")
+    return Query(family, n, args.projector, args.retrieval, params, args.tau, m, args.scope, label)
+
+
 def _fmt(value, spec: str = ".3g") -> str:
     return "n/a" if value is None else format(value, spec)
 
 
 def render(answer: dict) -> str:
     """Human-readable answer of either direction."""
-    head = (f"{answer['family']} n={answer['n']} | {answer['projector']} | {answer['retrieval']} | "
+    size = f" {answer['size']}" if answer.get("size") else ""
+    m = f" m={answer['m']}" if answer.get("m") is not None else ""
+    head = (f"{answer['family']}{size} n={answer['n']}{m} | {answer['projector']} | {answer['retrieval']} | "
             f"predicate {answer['predicate']} (tau = {answer['tau']})")
     lines = [head]
     if answer["note"]:
         lines.append(f"note: {answer['note']}")
     if answer["extrapolated"]:
-        lines.append(f"EXTRAPOLATED: n={answer['n']} lies outside the measured n {answer['measured_n']}")
+        lines.append(f"EXTRAPOLATED: {answer['extrapolation']} (measured n {answer['measured_n']})")
     if "safe_k" in answer:
-        lines.append(f"safe k = {_fmt(answer['safe_k'], '')}  ({answer['method']}; target {1 - answer['delta']:.3g} "
-                     f"at {answer['confidence']:.0%} confidence)")
+        scope = "for the class" if answer["scope"] == "class" else "for the instances measured only"
+        lines.append(f"safe k {scope} = {_fmt(answer['safe_k'], '')}  ({answer['method']}; target {1 - answer['delta']:.3g} "
+                     f"at {answer['confidence']:.0%} confidence; instances per measured size {answer['instances']})")
+        if answer["flag"]:
+            lines.append(f"flag: {answer['flag']}")
         lines.append(f"logistic model: success reaches {1 - answer['delta']:.3g} at k = {_fmt(answer['k_model'])}"
                      + (f" ({answer['model_reason']})" if answer["model_reason"] else ""))
     else:
@@ -82,4 +136,5 @@ def render(answer: dict) -> str:
         if error["metric"]:
             lines.append(f"error {error['metric']} at {error['from_size']}: median {_fmt(error['median'])}, "
                          f"90th percentile {_fmt(error['q90'])}")
+    lines.append("Safe-k tables are empirical evidence, not a proof: check the policy on your own instances (`calib probe`).")
     return "\n".join(lines)

@@ -48,6 +48,7 @@ def run(args: argparse.Namespace) -> int:
     if args.dry_run:
         print(dry_run(spec, args))
         return 0
+    from calib.sweep.estimate import design_warning, size_plans
     from calib.sweep.runner import run_campaign
 
     previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
@@ -64,6 +65,13 @@ def run(args: argparse.Namespace) -> int:
     statuses = ", ".join(f"{count} {status}" for status, count in sorted(summary.statuses.items()) if status != "ok")
     print(f"trials: {summary.planned} planned, {summary.skipped} already stored, {summary.ran} run"
           f" ({statuses or 'none failed'}) in {summary.seconds:.1f} s on {summary.executor}")
+    warning = design_warning(spec, size_plans(spec))
+    if warning:
+        print(warning)
+    solver_errors = count_solver_errors(summary.store_path)
+    if solver_errors:
+        print(f"{solver_errors} projected solve(s) ended in a solver error: counted apart and left out of the success "
+              f"rates by `calib tables` (--solver-errors fail counts them as failures)")
     if summary.searches:
         print(search_report(spec, summary.searches))
     if summary.lost:
@@ -95,6 +103,20 @@ def target_text(predicate, rate: float) -> str:
     if predicate.classify:
         text = ", ".join(filter(None, ["feasibility verdict matches", text]))
     return f"'{predicate.name}' ({text})"
+
+
+def count_solver_errors(store_path) -> int:
+    """Trials of the store that ran but whose projected solve ended in a solver error."""
+    from calib.sweep.store import Store
+
+    store = Store.open_existing(store_path)
+    try:
+        (count,) = store.db.execute(
+            "SELECT COUNT(DISTINCT trial_id) FROM trials WHERE status = 'ok' "
+            "AND json_extract(metrics, '$.proj_status') = 'error'").fetchone()
+    finally:
+        store.close()
+    return int(count)
 
 
 #: local worker processes allowed per core: each runs one solver thread, more only adds memory

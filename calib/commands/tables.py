@@ -35,6 +35,10 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                             "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
     group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
                                                  "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
+    group.add_argument("--solver-errors", default="exclude", metavar="{exclude,fail}",
+                       help="projected solves that end in a solver error: 'exclude' counts them in their own column and "
+                            "leaves them out of the rates (default); 'fail' counts them as failures (strict reading). "
+                            "A time limit is always a failure")
 
 
 def predicate_from(args: argparse.Namespace, default_preset: str = "bound"):
@@ -59,7 +63,8 @@ def analyse(args: argparse.Namespace):
     store = Store.open_existing(args.store)
     try:
         rows = load_rows(store)
-        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows)
+        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows,
+                            solver_errors=getattr(args, "solver_errors", "exclude"))
         spec = store.stored_spec()
     finally:
         store.close()
@@ -76,7 +81,7 @@ def register(subparsers) -> None:
                     "and/or CSV when asked. Timings go to their own file (--timings): they differ between runs, "
                     "the table does not.")
     parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
-    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v1.json)")
+    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v2.json)")
     parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
     parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
     add_analysis_options(parser)
@@ -133,17 +138,39 @@ def _transition_text(transition: dict) -> str:
     if transition["k50"] is None:
         return f"no logistic fit: {transition['reason']}"
     low, high = transition["k50_interval"]
-    return f"k50 = {transition['k50']:.3g} [{low:.3g}, {high:.3g}], k at target = {transition['k_target']:.3g}"
+    return (f"k50 = {transition['k50']:.3g} [{low:.3g}, {high:.3g}], k at target = {transition['k_target']:.3g} "
+            f"(intervals for {transition['interval_scope']})")
+
+
+def _fit_text(name: str, fit: dict, eps: str = "") -> str:
+    censored = f"; {fit['censored']} censored size(s) not fitted" if fit["censored"] else ""
+    if fit["a"] is None:
+        return f"  {name} law: {fit['reason']}"
+    se = f" ± {fit['C_se']:.3g}" if fit["C_se"] is not None else ""
+    return f"  {name} law: k = {fit['a']:.3g} + {fit['C']:.3g}{se} ln n over n in [{fit['n_min']}, {fit['n_max']}]{censored}{eps}"
 
 
 def _law_text(law: dict) -> str:
-    fit = law["safe_k_law"]
-    if fit["a"] is None:
-        return f"  law: {fit['reason']}"
-    se = f" ± {fit['C_se']:.3g}" if fit["C_se"] is not None else ""
     rules = ", ".join(f"{name} C = {rule['C']:.4g}" for name, rule in law["theory"]["rules"].items())
     eps = f" (bounds at eps = {law['theory']['eps']:g}: {rules})" if law["theory"]["eps"] is not None else ""
-    return f"  law: safe k = {fit['a']:.3g} + {fit['C']:.3g}{se} ln n over n in [{fit['n_min']}, {fit['n_max']}]{eps}"
+    lines = [_fit_text("class safe k", law["class_safe_k_law"]),
+             _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])]
+    rule = law.get("policy_rule")
+    if rule and rule["grid"]:
+        lines.append(f"  policy rule {rule['rule']}: {rule['statement']}")
+        if rule["failing"]:
+            lines.append(f"    {rule['unit']}s below the target at f = {rule['failing_at']:g}: {', '.join(rule['failing'])}")
+    return "\n".join(lines)
+
+
+def scope_lines(entry: dict) -> list[str]:
+    """The class answer first (the default), then the answer for the instances measured."""
+    klass = entry["class"]
+    class_k = klass["safe_k"] if klass["safe_k"] is not None else "none"
+    safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
+    return [f"class safe k = {class_k}" + (f"  [{klass['reason']}]" if klass["reason"] else ""),
+            f"for these {entry['instances']} instance(s) only: safe k = {safe}"
+            + (f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else "")]
 
 
 def render_summary(table: dict) -> str:
@@ -159,16 +186,20 @@ def render_summary(table: dict) -> str:
             lines.append(f"  left out {excluded['family']}: {excluded['reason']}")
         label = class_labels(analysis)
         for entry in analysis["entries"]:
-            safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
-            note = f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else ""
             extra = label(entry)
             lines.append(f"\n{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | {entry['retrieval']} | "
-                         f"m={entry['projected_dim']} n={entry['n_points']} -> safe k = {safe}{note}")
+                         f"m={entry['projected_dim']} n={entry['n_points']}, {entry['instances']} instance(s)")
+            lines += [f"   {line}" for line in scope_lines(entry)]
             lines.append(f"   {_transition_text(entry['transition'])}")
+            if entry["solver_errors"]:
+                lines.append(f"   {entry['solver_errors']} projected solve(s) ended in a solver error: "
+                             + ("left out of the rates" if table["target"]["solver_errors"] == "exclude" else "counted as failures"))
             for point in entry["grid"]:
                 mark = "pass" if point["passes"] else "fail"
+                klass = "pass" if point["class_passes"] else "fail"
                 lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
-                             f"  lower={point['lower_bound']:.3f}  {mark}")
+                             f"  lower={point['lower_bound']:.3f} {mark}  class lower={point['class_lower_bound']:.3f} {klass}"
+                             + (f"  solver errors {point['solver_errors']}" if point["solver_errors"] else ""))
         for law in analysis["laws"]:
             extra = label(law)
             lines.append(f"\n{law['family']}{' ' + extra if extra else ''} | {law['projector']} | {law['retrieval']}")

@@ -9,7 +9,7 @@ JL theory counts for it.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import Any, Callable, Optional
 
 import numpy as np
 
@@ -67,6 +67,12 @@ class Family:
         params -> number of points the JL bounds count for this family.
     check : callable
         params -> None; raises InputError for out-of-range parameters.
+    expand : callable or None
+        params -> the list of params they stand for, when a size may be given by a container (a
+        folder alone: one size per file); None: a size stands for itself.
+    fixed : bool
+        Every instance index of a size gives the same problem (read from a file): the size, not
+        the instance, is the unit of a class claim across sizes.
     """
 
     name: str
@@ -79,6 +85,13 @@ class Family:
     projected_dim: Callable[[dict], int]
     n_points: Callable[[dict], int]
     check: Callable[[dict], None] = lambda params: None
+    expand: Optional[Callable[[dict], list]] = None
+    fixed: bool = False
+
+    def sizes(self, params: dict, where: str) -> list[dict]:
+        """The full parameter dicts ``params`` stands for: itself, or one per file of a folder alone."""
+        given = self.expand(params) if self.expand is not None else [params]
+        return [self.resolve(each, where) for each in given]
 
     def resolve(self, params: dict, where: str) -> dict:
         """Fill defaults, reject unknown keys, and validate; returns the full parameter dict."""

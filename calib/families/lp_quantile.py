@@ -21,7 +21,6 @@ from pathlib import Path
 
 import numpy as np
 import scipy.sparse as sp
-from scipy import stats
 
 from calib.errors import InputError
 from calib.families.base import Family, fraction, positive, positive_int, register, require
@@ -103,6 +102,8 @@ def _build_synthetic(params: dict, rng: np.random.Generator):
     beta = rng.standard_normal(n_feat + 1)
     scale = noise * (1.0 + SLOPE_OF_SCALE * features[:, 0])
     y = X @ beta + scale * rng.standard_t(NOISE_DOF, size=n)
+    from scipy import stats  # here, not at import: `calib families` lists the family without it
+
     # the conditional tau-quantile is linear: x^T beta + noise (1 + 0.1 x_1) F^-1(tau)
     q = stats.t.ppf(tau, NOISE_DOF)
     truth = beta.copy()

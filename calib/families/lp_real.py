@@ -10,7 +10,13 @@ used: every instance index gives the same problem.
   their published optimum, from ``optima.csv``, in ``info["optimal_value"]``; the ones from the
   infeasible collection carry ``info["feasible"] = False``).
 - ``mps-dir``: parameters ``dir`` and ``name`` pick ``DIR/NAME`` (``.mps`` or ``.mps.gz`` may be
-  left out). Read errors are :class:`InputError` naming the file.
+  left out). Read errors are :class:`InputError` naming the file. ``dir`` alone (no ``name``) stands
+  for every MPS file of the folder, one size each; ``dir`` is a class parameter and ``name`` the
+  size key, so the folder is one class whose files are its instances (of different sizes: a class
+  claim is made for a policy rule such as k = f m, see :mod:`calib.analysis.classrule`).
+
+Both families are ``fixed``: every instance index of a file is the same problem, so the file, not
+the instance index, is the unit of a class claim.
 """
 
 from __future__ import annotations
@@ -97,6 +103,7 @@ register(Family(
     projected_dim=lambda p: _shape(_netlib_path(p))[0],
     n_points=lambda p: lp_points(_shape(_netlib_path(p))[1]),
     check=_check_netlib,
+    fixed=True,
 ))
 
 
@@ -119,6 +126,18 @@ def _build_user(params: dict, rng: np.random.Generator):
     return _read_standard(path, path.name), {"source": str(path)}
 
 
+def _folder_sizes(params: dict) -> list:
+    """A folder alone stands for every MPS file in it (one size each); a named file for itself."""
+    if params.get("name") not in (None, ""):
+        return [params]
+    require(isinstance(params.get("dir"), str) and params.get("dir") != "", "dir", "must be a nonempty text",
+            "set dir to the folder of your MPS files")
+    names = mps_names(params["dir"])
+    if not names:
+        raise InputError(str(params["dir"]), "holds no MPS file (.mps, .mps.gz)", "put your models there or fix dir")
+    return [{**params, "name": name} for name in names]
+
+
 def _check_user(params: dict) -> None:
     for key in ("dir", "name"):
         require(isinstance(params[key], str) and params[key] != "", key, "must be a nonempty text", f"set {key}")
@@ -129,15 +148,18 @@ register(Family(
     name="mps-dir",
     kind="lp",
     description="An LP of the user's own: the MPS file NAME in folder DIR, in standard form; size "
-                "fixed by the file. All standard-form rows are projected.",
-    size_keys=("dir", "name"),
+                "fixed by the file. DIR alone makes every MPS file of the folder an instance of one class. "
+                "All standard-form rows are projected.",
+    size_keys=("name",),
     defaults={"dir": None, "name": None},
-    param_doc={"dir": "folder holding the MPS files",
-               "name": "file name in that folder (.mps / .mps.gz may be left out)"},
+    param_doc={"dir": "folder holding the MPS files (the class)",
+               "name": "file name in that folder (.mps / .mps.gz may be left out); omit it for every file"},
     build=_build_user,
     projected_dim=lambda p: _shape(_user_path(p))[0],
     n_points=lambda p: lp_points(_shape(_user_path(p))[1]),
     check=_check_user,
+    expand=_folder_sizes,
+    fixed=True,
 ))
 
 

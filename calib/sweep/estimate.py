@@ -8,6 +8,11 @@ of the grid (first projector, replicate 0). Work per size is then
     instances * t_original + trials * (t_trial(k_min) + t_trial(k_max)) / 2,
 
 a linear interpolation in k that is rough by design; divide by the workers for the wall time.
+
+Design advice (:func:`calib.analysis.scope.design_advice`), per size, at the default target of
+``calib tables`` (success 0.9 at 95% confidence): whether the instances x replicates of the spec can
+certify the target for the instances measured and for the class, and the smallest change that
+would (more replicates for an instances-only claim, more instances for the class).
 """
 
 from __future__ import annotations
@@ -114,6 +119,55 @@ def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
     return probes
 
 
+#: the target the advice is given for: the defaults of `calib tables` (success 1 - 0.1 at 95%)
+ADVICE_TARGET, ADVICE_CONFIDENCE = 0.9, 0.95
+
+
+def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
+    """Per size: what the design can certify under each scope, and the smallest change that would."""
+    from calib.analysis.scope import advice_text, design_advice
+
+    lines = [f"design (target {ADVICE_TARGET:.0%} success at {ADVICE_CONFIDENCE:.0%} confidence, the defaults of "
+             f"`calib tables`):"]
+    for plan in plans:
+        advice = design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)
+        lines.append(f"  {plan.label}: {advice_text(advice, ADVICE_TARGET, ADVICE_CONFIDENCE)}")
+    for label, files in _file_classes(plans).items():
+        advice = design_advice(files, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)
+        verdict = ("can certify a rule k = f m" if advice["class_sure"] else
+                   f"cannot certify a rule k = f m for the class; use {advice['needed']} files (add {advice['instances_to_add']})")
+        lines.append(f"  {label}: {files} file(s), the units of the class: {verdict} (each file may decide alone)")
+    return lines
+
+
+def _file_classes(plans: list[SizePlan]) -> dict[str, int]:
+    """Classes whose sizes are files (a folder alone): class label -> number of files."""
+    from calib.families import get
+
+    classes: dict[str, int] = {}
+    for plan in plans:
+        family = get(plan.family)
+        if family.fixed and family.expand is not None:
+            rest = {key: value for key, value in plan.params.items() if key not in family.size_keys}
+            label = f"{plan.family} " + ",".join(f"{key}={value}" for key, value in sorted(rest.items()))
+            classes[label] = classes.get(label, 0) + 1
+    return classes
+
+
+def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
+    """One line when some size cannot surely certify the target for the class, else None."""
+    from calib.analysis.scope import design_advice
+
+    short = [plan for plan in plans
+             if not design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)["class_sure"]]
+    if not short:
+        return None
+    needed = design_advice(1, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)["needed"]
+    return (f"warning: {len(short)} of {len(plans)} size(s) have fewer than {needed} instances, so their class answer "
+            f"({ADVICE_TARGET:.0%} at {ADVICE_CONFIDENCE:.0%}) can be empty; `calib run --dry-run` says per size what "
+            f"would certify it")
+
+
 def _k_count(spec: Spec, ks: list) -> int:
     """k values a size runs: the grid's, or the most a k search tests (an upper bound)."""
     from calib.sweep.search import max_looks
@@ -141,6 +195,7 @@ def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]]
     for plan in plans:
         lines.append(f"  {plan.label}: {plan.instances} instances x {len(spec.projectors)} projector(s) x "
                      f"{_k_range(plan.ks, spec.k_grid.is_search)} x {spec.replicates} replicate(s) = {bound}{plan.trials} trials")
+    lines += advice_lines(spec, plans)
     if probes is None:
         lines.append("estimate: not measured (--no-probe)")
         return "\n".join(lines)

@@ -251,7 +251,7 @@ def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
         if not isinstance(params, dict):
             errors.add(f"{path}.params", "must be a table", "write params = {key = value}")
             params = {}
-        sizes = table.get("sizes", [{}] if not family.size_keys else None)
+        sizes = table.get("sizes", [{}] if not family.size_keys or family.expand is not None else None)
         if not isinstance(sizes, list) or not sizes:
             errors.add(f"{path}.sizes", "missing or empty", f"give a list of sizes like [{{{', '.join(k + ' = ...' for k in family.size_keys)}}}]")
             continue
@@ -262,17 +262,18 @@ def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
                 errors.add(size_path, "must be a table", "write {rows = 100, cols = 200}")
                 continue
             try:
-                full = family.resolve({**params, **size}, size_path)
+                expanded = family.sizes({**params, **size}, size_path)
             except InputError as error:
                 errors.add(error.where, error.problem, error.fix)
                 continue
-            key = (name, canonical_json(full))
-            if key in seen:
-                errors.add(size_path, f"duplicate of {seen[key]} (same family and parameters, so the same trials)",
-                           "list each size of a family once")
-                continue
-            seen[key] = size_path
-            resolved.append(full)
+            for full in expanded:
+                key = (name, canonical_json(full))
+                if key in seen:
+                    errors.add(size_path, f"duplicate of {seen[key]} (same family and parameters, so the same trials)",
+                               "list each size of a family once")
+                    continue
+                seen[key] = size_path
+                resolved.append(full)
         if instances is not None:
             cells.append(FamilyCell(name=name, sizes=tuple(resolved), instances=instances))
     return cells

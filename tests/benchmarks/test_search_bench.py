@@ -82,18 +82,16 @@ def _spec(folder: Path, name: str, case: str, seed: int, reduced: bool, search: 
 
 
 def grid_safe_k(store_path: Path, predicate, delta: float, level: float) -> dict:
-    """projector -> the table's safe k of the (single-size) grid."""
-    from calib.analysis.tables import Confidence, load_rows, safe_k_rule, summarise
+    """projector -> the table's safe k (instances scope) of the (single-size) grid."""
+    from calib.analysis.tables import Confidence, build_table
     from calib.sweep.store import Store
 
     store = Store.open_existing(store_path)
     try:
-        rows = load_rows(store)
+        table = build_table(store, predicate, Confidence(delta, level))
     finally:
         store.close()
-    grouped = summarise(rows, predicate, Confidence(delta, level))
-    return {projector: safe_k_rule(cell.sort_values("k")["k"], cell.sort_values("k")["passes"])[0]
-            for projector, cell in grouped.groupby("projector")}
+    return {entry["projector"]: entry["safe_k"] for entry in table["analyses"][0]["entries"]}
 
 
 def compare(case: str, seed: int, folder: Path, reduced: bool, workers: int) -> list[dict]:

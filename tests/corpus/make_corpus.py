@@ -123,7 +123,7 @@ def make_tables() -> int:
     tampered = json.loads(dumps(table))
     tampered["analyses"][0]["entries"][0]["grid"][0]["successes"] += 1  # checksum kept: an edit by hand
     (root / "tampered_value.json").write_text(dumps(tampered))
-    (root / "wrong_version.json").write_text(dumps(seal({**table, "format_version": 2})))
+    (root / "wrong_version.json").write_text(dumps(seal({**table, "format_version": 1})))
     (root / "wrong_format.json").write_text(dumps(seal({**table, "format": "someone-else.table"})))
     broken = {key: value for key, value in table.items() if key not in ("notice", "checksum")}
     (root / "schema_violation.json").write_text(dumps(seal(broken)))

@@ -1,0 +1,102 @@
+"""The statistics of one cell, a pure function of its stored trials: both scopes and the transition.
+
+Input: one row per trial of one (family, size, params, projector, retrieval) cell with its k, its
+instance and its 0/1 success (solver errors already set aside, see :mod:`calib.analysis.tables`).
+Output (:class:`CellStats`), per swept k and for the cell:
+
+- *instances scope*: trials, successes, the one-sided Clopper–Pearson and Wilson lower bounds of
+  the pooled count and the safe k of the monotone rule (:func:`safe_k_rule`): exact conditional on
+  the instances measured;
+- *class scope*: the design-effect-adjusted Clopper–Pearson bound of :mod:`calib.analysis.scope`
+  and its safe k by the same monotone rule, empty with the reason when the design cannot certify
+  the target;
+- the transition: a logistic fit of success on ln k (:mod:`calib.analysis.logistic`) with the
+  cluster-robust covariance over instances, so the k50 and k-at-target intervals hold for the class.
+
+This is the one place the tables, the lookup's recomputation and the calibration simulations get
+these numbers from. Costs: O(trials + k x instances) per cell plus one logistic fit.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Optional
+
+import numpy as np
+
+from calib.analysis.logistic import LogisticFit, fit_clustered
+from calib.analysis.scope import CellCounts, ClassScope, cell_counts, class_scope, instances_needed, refusal
+from calib.analysis.stats import clopper_pearson_lower, wilson_lower
+
+ALL_PASS = "all swept k pass: the safe k may be smaller than the grid shows"
+
+
+def safe_k_rule(ks, passes) -> tuple[Optional[int], str]:
+    """The monotone safe-k rule on a grid sorted by k: (safe k or None, reason).
+
+    >>> safe_k_rule([4, 8, 16, 32], [True, False, True, True])
+    (16, '')
+    >>> safe_k_rule([4, 8], [False, False])
+    (None, 'no swept k reaches the target')
+    """
+    ks, passes = np.asarray(ks), np.asarray(passes, dtype=bool)
+    if not passes[-1]:
+        reason = "no swept k reaches the target" if not passes.any() else "the largest swept k misses the target"
+        return None, reason
+    failing = np.flatnonzero(~passes)
+    first = failing[-1] + 1 if failing.size else 0
+    return int(ks[first]), (ALL_PASS if first == 0 else "")
+
+
+@dataclass(frozen=True)
+class CellStats:
+    """Both scopes of one cell (arrays are per swept k, sorted by k)."""
+
+    counts: CellCounts
+    successes: np.ndarray
+    trials: np.ndarray
+    lower: np.ndarray
+    wilson: np.ndarray
+    passes: np.ndarray
+    safe_k: Optional[int]
+    reason: str
+    klass: ClassScope
+    class_passes: np.ndarray
+    class_safe_k: Optional[int]
+    class_reason: str
+    fit: LogisticFit
+
+    @property
+    def ks(self) -> np.ndarray:
+        return self.counts.ks
+
+    @property
+    def instances_per_k(self) -> np.ndarray:
+        return (self.counts.trials > 0).sum(axis=1)
+
+
+def class_reason(safe_k: Optional[int], reason: str, n_instances: int, target: float, confidence: float) -> str:
+    """The reason shown beside the class safe k: the design's limit first when it explains it."""
+    if safe_k is not None:
+        return reason
+    limit = refusal(n_instances, target, confidence)
+    return limit or f"{reason} for the class (instance-to-instance spread counted)"
+
+
+def cell_stats(k, instance, success, target: float, confidence: float) -> CellStats:
+    """Both scopes and the clustered transition of one cell from one row per trial (module text)."""
+    counts = cell_counts(k, instance, success)
+    successes, trials = counts.successes.sum(axis=1), counts.trials.sum(axis=1)
+    lower = clopper_pearson_lower(successes, trials, confidence)
+    passes = lower >= target
+    safe_k, reason = safe_k_rule(counts.ks, passes)
+    klass = class_scope(counts, confidence)
+    class_passes = klass.lower >= target
+    class_safe_k, why = safe_k_rule(counts.ks, class_passes)
+    return CellStats(counts, successes, trials, lower, wilson_lower(successes, trials, confidence), passes, safe_k,
+                     reason, klass, class_passes, class_safe_k,
+                     class_reason(class_safe_k, why, counts.n_instances, target, confidence),
+                     fit_clustered(k, success, instance))
+
+
+__all__ = ["ALL_PASS", "CellStats", "cell_stats", "class_reason", "instances_needed", "safe_k_rule"]
