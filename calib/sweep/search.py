@@ -16,7 +16,10 @@ Ramdas, McAuliffe & Sekhon 2021, "Time-uniform, nonparametric, nonasymptotic con
 sequences", Ann. Statist. 49(2)). ln M_n(p) is convex in p with its minimum at s/n, so trials stop
 as soon as M_n(t) >= 1/alpha: with s/n > t every p <= t is excluded (k passes: its lower bound is
 above t), with s/n < t every p >= t is (k fails: its upper bound is below t). Looking after every
-trial costs nothing in validity. The prior is Beta(5 t, 5 (1 - t)), centred on the target (any
+trial costs nothing in validity. With several instances (rates p_i, mean p) visited in turn, each
+complete round multiplies M by factors whose expectations multiply to prod_i (1 + (p_i - p) c) <= 1
+(AM-GM, with c fixed by the mixture point), so M stays a supermartingale over complete rounds; looks
+inside a round are treated alike (common practice, as the table pools instances). The prior is Beta(5 t, 5 (1 - t)), centred on the target (any
 prior keeps the guarantee; this one makes the typical passing k, with p near 1, stop after about
 60 trials at t = 0.9).
 
