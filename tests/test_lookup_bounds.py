@@ -109,3 +109,15 @@ def test_size_keys_are_checked_at_the_edge():
         size_of(FAMILY, {"rank": "3"})
     with pytest.raises(InputError, match="--m"):
         Query(FAMILY, 100, "gaussian", m=0)
+
+
+def test_a_saved_instance_gives_its_family_n_and_m():
+    # the corpus's saved lp-planted 6 x 12 instance: m = rows = 6, n = cols + 1 = 13 (the family's rules)
+    from pathlib import Path
+
+    from calib.analysis.lookup import size_of_instance
+
+    manifest = Path(__file__).parent / "corpus" / "instances" / "valid" / "inst.json"
+    family, n, m, label, class_params = size_of_instance(manifest)
+    assert (family, n, m, label) == ("lp-planted", 13, 6, "rows=6,cols=12")
+    assert "rows" not in class_params and class_params["cost"] == "dual"

@@ -302,6 +302,8 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
         reasons = sorted({reason for _, reason in answers if reason})
         answer |= {"safe_k": None, "safe_k_law_value": None,
                    "method": f"none: {law.reason}" + (f" ({'; '.join(reasons)})" if reasons else "")}
+    if answer["safe_k"] is not None and query.m is not None and answer["safe_k"] >= query.m:
+        answer["flag"] = "; ".join(filter(None, [f"k = m = {query.m}: {NO_REDUCTION}", answer["flag"]]))
     model = transition_at(entries, query.n)
     k_model = model.k_at(confidence.target) if model.k50 else None
     model_reason = model.reason

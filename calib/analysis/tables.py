@@ -47,6 +47,7 @@ import pandas as pd
 from calib import SCHEMA_VERSION, __version__, theory
 from calib.analysis import bounds
 from calib.analysis import policy as policy_answer
+# safe_k_rule and load_rows are also imported from here by lookup, export and older callers
 from calib.analysis.cells import ALL_PASS, CellStats, cell_stats, instances_needed, safe_k_rule
 from calib.analysis.classrule import fraction_rule
 from calib.analysis.law import Law, fit_law
