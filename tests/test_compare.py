@@ -71,7 +71,7 @@ SPREAD = 0.15       # instance-to-instance spread of ln k50 (shared by both proj
 def synthetic_pair_rows(a_success, b_success, k=8):
     """Rows of projectors A and B at one k: pair index i is instance i // 5, replicate i % 5."""
     base = {"family": "f", "size": "s", "params": "{}", "retrieval": "r", "kind": "lp", "projected_dim": 60,
-            "t_sketch": 0.01, "t_solve_proj": 0.02, "t_retrieve": 0.0}
+            "t_sketch": 0.01, "t_solve_proj": 0.02, "t_retrieve": 0.0, "t_total": 0.03}
     frames = []
     for name, outcomes in (("A", a_success), ("B", b_success)):
         frames.append(pd.DataFrame([{**base, "projector": name, "instance_id": f"i{index // 5}", "k": k,
@@ -92,7 +92,8 @@ def simulated_campaign(rng, instances: int, replicates: int, k50_factor_a: float
         frames.append(pd.DataFrame({
             "family": "f", "size": "s", "params": "{}", "retrieval": "r", "kind": "lp", "projected_dim": 60,
             "projector": name, "instance_id": [f"i{x}" for x in i.ravel()], "k": ks[j.ravel()].astype(int),
-            "replicate": r.ravel(), "success": success.ravel(), "t_sketch": 0.01, "t_solve_proj": 0.02, "t_retrieve": 0.0}))
+            "replicate": r.ravel(), "success": success.ravel(), "t_sketch": 0.01, "t_solve_proj": 0.02,
+            "t_retrieve": 0.0, "t_total": 0.03}))
     return frames[0], frames[1]
 
 
