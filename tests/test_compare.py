@@ -138,6 +138,23 @@ def test_detected_difference_reads_as_more_k_in_the_verdict():
     assert result["verdict"].startswith("A needs ") and "more k than B" in result["verdict"]
 
 
+def test_a_difference_without_transitions_is_stated_as_a_success_difference():
+    # B succeeds only at the largest k, A never: no k50 exists, yet 8 instances show the difference
+    rows = []
+    for name, top in (("A", 0.0), ("B", 1.0)):
+        for i in range(8):
+            for k in (4, 8, 12):
+                rows.append({"family": "f", "size": "s", "params": "{}", "retrieval": "r", "kind": "lp",
+                             "projected_dim": 12, "projector": name, "instance_id": f"i{i}", "k": k, "replicate": 0,
+                             "success": bool(top) and k == 12, "t_sketch": 0.01, "t_solve_proj": 0.02,
+                             "t_retrieve": 0.0, "t_total": 0.03})
+    frame = pd.DataFrame(rows)
+    result = compare_pair(frame[frame.projector.eq("A")], frame[frame.projector.eq("B")], ("A", "B"), ("g",),
+                          Settings(CONFIDENCE, resamples=100))
+    assert result["class_test"]["p"] == pytest.approx(2 / 2 ** 8)
+    assert result["verdict"].startswith("A succeeds less often than B at the same k")
+
+
 def test_three_instances_can_never_detect_and_say_so():
     rng = np.random.default_rng(4)
     a, b = simulated_campaign(rng, instances=3, replicates=10, k50_factor_a=1.5)

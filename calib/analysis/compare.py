@@ -332,6 +332,11 @@ def verdict(result: dict, confidence: Confidence) -> str:
         share = (k50s["ratio"] - 1.0) * 100.0
         direction = f"{share:.0f}% more" if share >= 0 else f"{-share:.0f}% less"
         return f"{a} needs {direction} k than {b} for the same success ({evidence}){_speed_text(result)}"
+    if test["p"] is not None and test["p"] <= alpha:  # a difference without a transition to size it in k
+        word = "less" if test["mean_difference"] < 0 else "more"
+        return (f"{a} succeeds {word} often than {b} at the same k (mean difference {test['mean_difference']:+.3g} "
+                f"over the common k; {evidence}); no k50 to size it in k (the success curves have no fitted "
+                f"transition){_speed_text(result)}")
     minimum = instances_for_any_detection(alpha)
     if result["instances"] < minimum:
         reach = f"{result['instances']} instances can never show a difference at {alpha:g}; at least {minimum} are needed"
