@@ -70,7 +70,8 @@ SPREAD = 0.15       # instance-to-instance spread of ln k50 (shared by both proj
 
 def synthetic_pair_rows(a_success, b_success, k=8):
     """Rows of projectors A and B at one k: pair index i is instance i // 5, replicate i % 5."""
-    base = {"family": "f", "size": "s", "params": "{}", "retrieval": "r", "kind": "lp", "projected_dim": 60,
+    base = {"family": "f", "size": "s", "params": "{}", "class_params": "{}", "retrieval": "r", "kind": "lp",
+            "projected_dim": 60,
             "t_sketch": 0.01, "t_solve_proj": 0.02, "t_retrieve": 0.0, "t_total": 0.03}
     frames = []
     for name, outcomes in (("A", a_success), ("B", b_success)):
@@ -90,8 +91,8 @@ def simulated_campaign(rng, instances: int, replicates: int, k50_factor_a: float
         success = rng.random((instances, len(GRID), replicates)) < p[:, :, None]
         i, j, r = np.meshgrid(range(instances), range(len(GRID)), range(replicates), indexing="ij")
         frames.append(pd.DataFrame({
-            "family": "f", "size": "s", "params": "{}", "retrieval": "r", "kind": "lp", "projected_dim": 60,
-            "projector": name, "instance_id": [f"i{x}" for x in i.ravel()], "k": ks[j.ravel()].astype(int),
+            "family": "f", "size": "s", "params": "{}", "class_params": "{}", "retrieval": "r", "kind": "lp",
+            "projected_dim": 60, "projector": name, "instance_id": [f"i{x}" for x in i.ravel()], "k": ks[j.ravel()].astype(int),
             "replicate": r.ravel(), "success": success.ravel(), "t_sketch": 0.01, "t_solve_proj": 0.02,
             "t_retrieve": 0.0, "t_total": 0.03}))
     return frames[0], frames[1]
@@ -144,7 +145,7 @@ def test_a_difference_without_transitions_is_stated_as_a_success_difference():
     for name, top in (("A", 0.0), ("B", 1.0)):
         for i in range(8):
             for k in (4, 8, 12):
-                rows.append({"family": "f", "size": "s", "params": "{}", "retrieval": "r", "kind": "lp",
+                rows.append({"family": "f", "size": "s", "params": "{}", "class_params": "{}", "retrieval": "r", "kind": "lp",
                              "projected_dim": 12, "projector": name, "instance_id": f"i{i}", "k": k, "replicate": 0,
                              "success": bool(top) and k == 12, "t_sketch": 0.01, "t_solve_proj": 0.02,
                              "t_retrieve": 0.0, "t_total": 0.03})

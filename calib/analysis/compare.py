@@ -380,6 +380,7 @@ def compare_rows(rows: pd.DataFrame, success: pd.Series, settings: Settings, pro
             continue
         first = frame.iloc[0]
         entry = {"family": first["family"], "size": first["size"], "params": json.loads(first["params"]),
+                 "class_params": json.loads(first["class_params"]),
                  "retrieval": first["retrieval"], "kind": first["kind"], "projected_dim": int(first["projected_dim"]),
                  "pairs": [compare_pair(by_projector[x], by_projector[y], (x, y), group, settings) for x, y in pairs]}
         comparisons.append(entry)
@@ -435,10 +436,16 @@ def build_comparison(store, rows: pd.DataFrame, predicate, settings: Settings, p
 
 
 def verdict_lines(document: dict) -> list[str]:
-    """The human-readable summary: one header per group, one verdict line per pair."""
+    """The human-readable summary: one header per group (named by the parameters that tell its family's
+    classes apart), one verdict line per pair."""
+    from calib.analysis.tables import class_namer
+
+    namers = {family: class_namer([group for group in document["groups"] if group["family"] == family])
+              for family in {group["family"] for group in document["groups"]}}
     lines = []
     for group in document["groups"]:
-        lines.append(f"{group['family']} {group['size']} | {group['retrieval']} | m={group['projected_dim']}")
+        name = " ".join(filter(None, [group["family"], group["size"], namers[group["family"]](group["class_params"])]))
+        lines.append(f"{name} | {group['retrieval']} | m={group['projected_dim']}")
         for pair in group["pairs"]:
             lines.append(f"   {pair['verdict']}")
     return lines
