@@ -54,7 +54,7 @@ def test_explicit_tolerances_and_the_tau_ladder():
     assert primary_tau(predicate) == 0.2
     assert with_tau(PRESETS["bound"], 0.01).gap == 0.01
     assert with_tau(PRESETS["distortion"], 0.3).distortion == 0.3
-    with pytest.raises(InputError, match="--tol-gap"):
+    with pytest.raises(InputError, match="--max-gap"):
         make_predicate("bound", gap=-1.0)
     with pytest.raises(InputError, match="no tolerance to vary"):
         with_tau(PRESETS["classify"], 0.1)

@@ -149,7 +149,7 @@ CASES = [
     ("cli-bounds-eps-one", ["bounds", "--n", "10", "--eps", "1"], ["--eps", "(0, 1)"], False),
     ("cli-tables-eps", ["tables", "{store}", "--eps", "1.5"], ["--eps", "(0, 1)"], False),
     ("cli-tables-delta", ["tables", "{store}", "--delta", "0"], ["--delta", "(0, 1)"], False),
-    ("cli-tables-negative-tolerance", ["tables", "{store}", "--tol-gap", "-1"], ["--tol-gap", "positive"], False),
+    ("cli-tables-negative-tolerance", ["tables", "{store}", "--max-gap", "-1"], ["--max-gap", "positive"], False),
     ("cli-tables-json-is-folder", ["tables", "{store}", "--json", "{tmp}"], ["--json", "is a folder"], False),
     ("cli-tables-json-unwritable", ["tables", "{store}", "--json", "/proc/calib-no-such-folder/t.json"], ["--json /proc/calib-no-such-folder/t.json", "cannot write"], False),
     ("cli-store-not-sqlite", ["tables", "misc/not_sqlite.sqlite"], ["misc/not_sqlite.sqlite", "not a calib store"], True),

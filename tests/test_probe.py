@@ -54,7 +54,7 @@ def test_mps_probe_with_eps_and_one_retrieval(capsys):
 
 def test_points_probe_reports_distortion(capsys):
     assert main(["probe", "points-gaussian", "--param", "points=15", "--param", "dim=40", "--k", "20",
-                 "--replicates", "2", "--tol-distortion", "5"]) == 0
+                 "--replicates", "2", "--max-distortion", "5"]) == 0
     text = capsys.readouterr().out
     assert "distortion_max" in text and "pairs_checked          105 / 105" in text
 
@@ -110,7 +110,7 @@ def test_probe_k_list_gives_one_block_per_k(tmp_path, capsys):
 def test_probe_find_k_traces_the_search_and_matches_the_exact_threshold(capsys):
     # rank-3 planted rows: k >= 3 keeps the LP exactly, smaller k cannot (the same fact test_lp_core checks)
     argv = ["probe", "lp-planted", "--param", "rows=12", "--param", "cols=24", "--param", "rank=3",
-            "--param", "cost=nonnegative", "--find-k", "--tol-gap", "1e-6", "--delta", "0.3", "--confidence", "0.9"]
+            "--param", "cost=nonnegative", "--find-k", "--max-gap", "1e-6", "--delta", "0.3", "--confidence", "0.9"]
     assert main(argv) == 0
     text = capsys.readouterr().out
     assert "safe k = 3:" in text and "bisection assumes" in text and "not a proof" in text

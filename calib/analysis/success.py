@@ -112,6 +112,10 @@ PRESETS = {
 #: former preset names still accepted
 ALIASES = {"solution": "usable"}
 
+#: tolerance -> the command-line option that sets it (acceptance thresholds of the analysis, not solver settings)
+OPTIONS = {"gap": "--max-gap", "obj": "--max-obj-error", "feas": "--max-infeasibility", "sign": "--max-sign-violation",
+           "distortion": "--max-distortion"}
+
 #: preset -> tolerances that its tau moves
 PRIMARY = {"usable": ("obj", "feas", "sign"), "policy": ("obj", "feas", "sign"), "bound": ("gap",), "classify": (),
            "distortion": ("distortion",)}
@@ -139,7 +143,7 @@ def make_predicate(preset: str = DEFAULT_PRESET, faster: bool = False, **overrid
     values = {}
     for key, value in overrides.items():
         if value is not None:
-            values[key] = _positive(value, f"--tol-{key}")
+            values[key] = _positive(value, OPTIONS.get(key, key))
     predicate = replace(PRESETS[preset], **values)
     name = f"{preset}+custom" if values else preset
     if faster and not predicate.faster:

@@ -369,7 +369,7 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
     rows = rows[~unbounded]
     covered = rows["kind"].map(predicate.covers).astype(bool)
     excluded = [{"family": family, "kind": kind,
-                 "reason": f"the predicate checks nothing on {kind} problems (see the presets and --tol-* options)"}
+                 "reason": f"the predicate checks nothing on {kind} problems (see the presets and --max-* options)"}
                 for family, kind in sorted(set(zip(rows.loc[~covered, "family"], rows.loc[~covered, "kind"])))]
     excluded += excluded_unbounded
     entries = []

@@ -13,19 +13,19 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
     group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
                        help="'usable' (default; `probe` of a point set defaults to 'distortion'): the verdict matches and "
-                            "the point of each retrieval meets --tol-obj, --tol-feas and --tol-sign; "
+                            "the point of each retrieval meets --max-obj-error, --max-infeasibility and --max-sign-violation; "
                             "'policy': usable and faster end to end than the original solved by its fastest method; "
-                            "'bound': the projected optimum is within --tol-gap of the original; "
+                            "'bound': the projected optimum is within --max-gap of the original; "
                             "'classify': only the feasibility verdict must match; "
-                            "'distortion': point sets, worst pairwise distortion within --tol-distortion")
+                            "'distortion': point sets, worst pairwise distortion within --max-distortion")
     group.add_argument("--faster", action="store_true",
                        help="on any preset: a trial also has to be faster end to end (sketch + projected solve + "
                             "retrieval) than the fair baseline; depends on measured times")
-    group.add_argument("--tol-gap", type=float, metavar="TAU", help="relative gap of the projected optimum (bound preset: 0.05)")
-    group.add_argument("--tol-obj", type=float, metavar="TAU", help="objective error of the retrieved point relative to the objective's scale (usable preset: 0.05)")
-    group.add_argument("--tol-feas", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
-    group.add_argument("--tol-sign", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
-    group.add_argument("--tol-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
+    group.add_argument("--max-gap", type=float, metavar="TAU", help="relative gap of the projected optimum (bound preset: 0.05)")
+    group.add_argument("--max-obj-error", type=float, metavar="TAU", help="objective error of the retrieved point relative to the objective's scale (usable preset: 0.05)")
+    group.add_argument("--max-infeasibility", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
+    group.add_argument("--max-sign-violation", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
+    group.add_argument("--max-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
     group.add_argument("--delta", type=float, default=0.1, help="target success rate is 1 - delta (default 0.1)")
     group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound and the intervals (default 0.95)")
 
@@ -54,8 +54,8 @@ def predicate_from(args: argparse.Namespace, default_preset: str = "usable"):
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
-    predicate = make_predicate(args.preset or default_preset, faster=args.faster, gap=args.tol_gap, obj=args.tol_obj,
-                               feas=args.tol_feas, sign=args.tol_sign, distortion=args.tol_distortion)
+    predicate = make_predicate(args.preset or default_preset, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
+                               feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion)
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
 
