@@ -182,23 +182,28 @@ def describe_exception(error: BaseException) -> str:
 
 
 def solve_original(task: OriginalTask) -> dict:
-    """Instance-row fields of the original solve (``orig_*``, ``solver_options``, ``build_seconds``)."""
+    """Instance-row fields of the original solve (``orig_*``, ``solver_options``, ``build_seconds``)
+    and the instance's ``features`` (JSON, :func:`calib.features.stored_features`)."""
     from calib.keys import canonical_json
     from calib.reduce import HANDLERS
 
+    from calib.features import stored_features
+
     start = time.perf_counter()
+    features = None
     try:
         instance = built_instance(task.instance)
         build_seconds = time.perf_counter() - start
+        features = stored_features(instance.kind, instance.problem)
         original = HANDLERS[instance.kind].solve_original(instance.problem, task.solver)
     except Exception as error:  # a failed build or solve is recorded, the campaign goes on
-        return failed_original("error", describe_exception(error), time.perf_counter() - start)
+        return failed_original("error", describe_exception(error), time.perf_counter() - start) | {"features": features}
     # SQLite stores a NaN REAL as NULL: a point set's original has no objective, so it is None on both sides
     objective = original.objective if original.ok and math.isfinite(original.objective) else None
     return {"orig_status": original.status, "orig_code": original.solver_code, "orig_message": original.solver_message,
             "orig_objective": objective, "orig_seconds": original.seconds,
             "orig_iterations": original.iterations, "solver_options": canonical_json(original.options),
-            "orig_x": original.x, "build_seconds": build_seconds}
+            "orig_x": original.x, "build_seconds": build_seconds, "features": features}
 
 
 def failed_original(status: str, message: str, seconds: float) -> dict:
