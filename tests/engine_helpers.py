@@ -64,3 +64,42 @@ def row_counts(store_path: Path) -> tuple[int, int]:
         return connection.execute("SELECT COUNT(*), COUNT(DISTINCT trial_id) FROM trials").fetchone()
     finally:
         connection.close()
+
+
+SEARCH_SPEC = """
+[campaign]
+name = "{name}"
+root_seed = 77
+replicates = {replicates}
+
+[[families]]
+name = "lp-planted"
+sizes = [{{rows = 12, cols = 24}}]
+instances = 2
+params = {{rank = 3, cost = "nonnegative"}}
+
+[sweep]
+projectors = ["gaussian"]
+k = {k}
+{target}
+"""
+
+#: a rank-3 planted LP: k >= 3 keeps it exactly, smaller k cannot; 2 instances, search 1..12
+TARGET = '[target]\npreset = "bound"\ntolerance = 1e-6\ndelta = 0.3\nconfidence = 0.9'
+
+
+def write_search_spec(folder, name="srch", replicates=20, k="{search = {low = 1, high = 12}}", target=TARGET):
+    path = folder / f"{name}.toml"
+    path.write_text(textwrap.dedent(SEARCH_SPEC.format(name=name, replicates=replicates, k=k, target=target)))
+    return path
+
+
+def trial_ids(store) -> set:
+    with sqlite3.connect(store) as db:
+        return {row[0] for row in db.execute("SELECT trial_id FROM trials")}
+
+
+def search_verdicts(summary) -> list:
+    """Per searched cell: the safe k and every step (k, trials read, successes, verdict)."""
+    return [(cell.search.safe_k, [(s.k, s.trials, s.successes, s.verdict) for s in cell.search.steps])
+            for cell in summary.searches]

@@ -93,7 +93,7 @@ CASES = [
     ("spec-empty-file", ["run", "specs/empty.toml", "--out", "{out}"], ["specs/empty.toml", "campaign: missing table"], False),
     ("spec-mps-dir-missing-folder", ["run", "specs/mps_dir_missing_folder.toml", "--out", "{out}"], ["families[0].sizes[0]: no/such/folder", "no such folder"], False),
     ("spec-mps-dir-truncated-file", ["run", "specs/mps_dir_truncated_file.toml", "--out", "{out}"], ["families[0].sizes[0]: mps/truncated.mps", "ENDATA"], False),
-    ("spec-changed-under-same-name", ["run", "specs/changed_spec_same_name.toml", "--out", "{out}"], ["corpus-store.sqlite", "different spec", "--new-campaign"], True),
+    ("spec-changed-under-same-name", ["run", "specs/changed_spec_same_name.toml", "--out", "{out}"], ["corpus-store.sqlite", "different spec", "root_seed", "--new-campaign"], True),
     ("spec-missing-file", ["run", "specs/no_such_spec.toml", "--out", "{out}"], ["specs/no_such_spec.toml", "no such spec file"], False),
     # --- MPS files (calib probe) -------------------------------------------------------------
     ("mps-truncated", ["probe", "mps/truncated.mps", *_PROBE], ["mps/truncated.mps", "line 9", "ENDATA"], True),

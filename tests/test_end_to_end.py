@@ -51,7 +51,7 @@ def test_changed_spec_under_same_name_is_refused(tmp_path, capsys):
     spec = tmp_path / "tiny.toml"
     spec.write_text(SPEC)
     assert main(["run", str(spec), "--out", str(tmp_path), "--quiet"]) == 0
-    spec.write_text(SPEC.replace("replicates = 4", "replicates = 5"))
+    spec.write_text(SPEC.replace("root_seed = 5", "root_seed = 6"))  # would change every stored trial
     before = (tmp_path / "tiny.sqlite").read_bytes()
     assert main(["run", str(spec), "--out", str(tmp_path), "--quiet"]) == 2
     assert "different spec" in capsys.readouterr().err

@@ -13,7 +13,7 @@ import sqlite3
 
 import pytest
 from engine_faults import fault_plugin  # noqa: F401  (fixture)
-from engine_helpers import table_bytes, write_spec
+from engine_helpers import search_verdicts, table_bytes, trial_ids, write_search_spec, write_spec
 
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
@@ -56,6 +56,15 @@ def test_dask_local_cluster_matches_serial_run_byte_for_byte(tmp_path, serial_ta
     summary = run_campaign(load_spec(write_spec(tmp_path)), tmp_path / "out", scheduler=cluster.scheduler_address)
     assert summary.executor == "dask" and summary.statuses == {"ok": 120} and summary.lost == 0
     assert table_bytes(summary.store_path) == serial_table
+
+
+def test_a_k_search_on_dask_and_the_pool_matches_the_serial_search(tmp_path, cluster):
+    spec = load_spec(write_search_spec(tmp_path))
+    serial = run_campaign(spec, tmp_path / "serial", inline=True)
+    for name, where in (("dask", {"scheduler": cluster.scheduler_address}), ("pool", {"workers": 2})):
+        summary = run_campaign(spec, tmp_path / name, **where)
+        assert search_verdicts(summary) == search_verdicts(serial) and summary.lost == 0
+        assert trial_ids(summary.store_path) == trial_ids(serial.store_path)
 
 
 def test_dask_survives_a_lost_worker(tmp_path, serial_table, cluster):

@@ -95,3 +95,36 @@ def test_saved_instance_probe_uses_the_instance_identity(tmp_path, capsys):
     first, second = (json.loads(path.read_text())["records"] for path in (saved, direct))
     # the MPS round trip keeps every double (calib.instance_io), so the projected optimum is the same
     assert [r["proj_objective"] for r in first] == pytest.approx([r["proj_objective"] for r in second], rel=1e-12)
+
+
+def test_probe_k_list_gives_one_block_per_k(tmp_path, capsys):
+    out = tmp_path / "probe.json"
+    argv = ["probe", "lp-planted", "--param", "rows=20", "--param", "cols=40", "--k", "4,12", "--replicates", "2",
+            "--retrieval", "basis-lstsq", "--json", str(out)]
+    assert main(argv) == 0
+    text = capsys.readouterr().out
+    assert "k = 4 (given)" in text and "k = 12 (given)" in text
+    assert [run["k"] for run in json.loads(out.read_text())["runs"]] == [4, 12]
+
+
+def test_probe_find_k_traces_the_search_and_matches_the_exact_threshold(capsys):
+    # rank-3 planted rows: k >= 3 keeps the LP exactly, smaller k cannot (the same fact test_lp_core checks)
+    argv = ["probe", "lp-planted", "--param", "rows=12", "--param", "cols=24", "--param", "rank=3",
+            "--param", "cost=nonnegative", "--find-k", "--tol-gap", "1e-6", "--delta", "0.3", "--confidence", "0.9"]
+    assert main(argv) == 0
+    text = capsys.readouterr().out
+    assert "safe k = 3:" in text and "bisection assumes" in text and "not a proof" in text
+    assert "k in [1, 12]" in text
+
+
+@pytest.mark.parametrize("extra, where", [
+    (["--find-k", "--low", "8", "--high", "4"], "--low/--high"),
+    (["--find-k", "--high", "50"], "--low/--high"),
+    (["--low", "2"], "--low/--high"),
+    (["--find-k", "--max-trials", "0"], "--max-trials"),
+    (["--k", "4,40"], "--k"),
+])
+def test_probe_search_options_are_checked(extra, where, capsys):
+    assert main(["probe", "lp-planted", "--param", "rows=12", "--param", "cols=24"] + extra) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and where in err[0]

@@ -11,9 +11,16 @@ reproduces that campaign's rows. The output lists the metrics of every replicate
 and maximum of each metric and the success count under the chosen predicate with its one-sided
 Clopper–Pearson lower bound.
 
-k: ``--k K`` directly, or ``--eps E`` through a published bound (``--rule``) with the family's
-point count (for an MPS file: its standard-form columns + 1); default k = ceil(m / 2) of the
-projected dimension m.
+k: ``--k K`` directly (or a list ``--k 20,40``: one block per k), or ``--eps E`` through a
+published bound (``--rule``) with the family's point count (for an MPS file: its standard-form
+columns + 1); default k = ceil(m / 2) of the projected dimension m.
+
+``--find-k [--low L --high H]`` runs the campaign's k search (:mod:`calib.sweep.search`) on this
+one instance instead: at each k, trials (replicates 0, 1, ... of the campaign streams) are added
+until the anytime confidence bound decides the k against the target rate 1 - ``--delta``, at most
+``--max-trials`` per k, with bracket-then-bisection between L (default 1) and H (default m); it
+prints the trace (k, trials, successes, bounds) and the verdict. One retrieval is searched: the
+first ``--retrieval``, else the kind's default.
 """
 
 from __future__ import annotations
@@ -56,12 +63,19 @@ def register(subparsers) -> None:
     parser.add_argument("--projector-opt", action="append", default=[], metavar="KEY=VALUE",
                         help="projector option (repeatable), e.g. --projector-opt s=4")
     size = parser.add_mutually_exclusive_group()
-    size.add_argument("--k", type=int, help="projected size k (default: half the projected dimension, rounded up)")
+    size.add_argument("--k", type=k_list, metavar="K[,K...]",
+                      help="projected size k, or a comma-separated list (default: half the projected dimension, rounded up)")
+    size.add_argument("--find-k", action="store_true",
+                      help="search for the smallest k meeting the target rate 1 - --delta at --confidence (trace and verdict)")
     size.add_argument("--eps", type=float, help="distortion eps in (0, 1): k from the bound named by --rule")
     parser.add_argument("--rule", default="dasgupta-gupta", choices=sorted(RULES), help="bound used with --eps (default dasgupta-gupta)")
     parser.add_argument("--retrieval", action="append", metavar="R",
                         help="retrieval method (repeatable; default: every retrieval of the problem kind)")
     parser.add_argument("--replicates", type=int, default=5, help="independent projector draws (default 5)")
+    parser.add_argument("--low", type=int, help="with --find-k: the smallest k searched (default 1)")
+    parser.add_argument("--high", type=int, help="with --find-k: the largest k searched (default: the projected dimension)")
+    parser.add_argument("--max-trials", type=int, default=300, metavar="N",
+                        help="with --find-k: most trials at one k before it counts as not reaching the target (default 300)")
     parser.add_argument("--seed", type=int, default=0, help="root seed (default 0)")
     parser.add_argument("--time-limit", type=float, default=60.0, metavar="SECONDS", help="per solve (default 60)")
     parser.add_argument("--json", type=Path, metavar="FILE", help="also write the records and summary as JSON")
@@ -140,6 +154,33 @@ def _saved_target(path: Path, args: argparse.Namespace) -> Target:
     return Target(f"{path} ({instance.family} #{instance.index})", instance.kind, instance.problem, ref, n_points)
 
 
+def k_list(text: str) -> list[int]:
+    """``"20,40"`` -> ``[20, 40]`` (argparse type of ``--k``; a bad item is an argparse usage error).
+
+    >>> k_list("20, 40"), k_list("12")
+    ([20, 40], [12])
+    """
+    try:
+        values = [int(item) for item in text.split(",") if item.strip()]
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"cannot read {text!r}: give integers, e.g. --k 20 or --k 20,40") from None
+    if not values:
+        raise argparse.ArgumentTypeError("give at least one k, e.g. --k 20")
+    return list(dict.fromkeys(values))
+
+
+def choose_ks(args: argparse.Namespace, m: int, n_points: int) -> list[tuple[int, str]]:
+    """[(k, how it was chosen)], one per k of ``--k`` (or the single k of :func:`choose_k`)."""
+    if not args.k:
+        return [choose_k(args, m, n_points)]
+    chosen = []
+    for k in args.k:
+        if not 1 <= k <= m:
+            raise InputError("--k", f"must lie in 1..{m} (the projected dimension), got {k}", f"pick k between 1 and {m}")
+        chosen.append((k, "given"))
+    return chosen
+
+
 def choose_k(args: argparse.Namespace, m: int, n_points: int) -> tuple[int, str]:
     """(k, how it was chosen); InputError when k is not in 1..m."""
     from calib.theory import check_eps, k_from_eps
@@ -152,11 +193,7 @@ def choose_k(args: argparse.Namespace, m: int, n_points: int) -> tuple[int, str]
             raise InputError("--eps", f"{source} gives k = {k}, above the projected dimension m = {m}",
                              "raise --eps or give --k directly")
         return k, source
-    if args.k is None:
-        return math.ceil(m / 2), "default: half the projected dimension"
-    if not 1 <= args.k <= m:
-        raise InputError("--k", f"must lie in 1..{m} (the projected dimension), got {args.k}", f"pick k between 1 and {m}")
-    return args.k, "given"
+    return math.ceil(m / 2), "default: half the projected dimension"
 
 
 def _check_retrievals(args: argparse.Namespace, kind: str) -> list[str]:
@@ -182,23 +219,98 @@ def run(args: argparse.Namespace) -> int:
     handler = HANDLERS[target.kind]
     retrievals = _check_retrievals(args, target.kind)
     m = handler.projected_dim(target.problem)
-    k, k_source = choose_k(args, m, target.n_points)
-    _check_projector(choice, k, m)
     solver = {"time_limit_s": float(args.time_limit)}
+    if not args.find_k and (args.low is not None or args.high is not None):
+        raise InputError("--low/--high", "only bound a --find-k search", "add --find-k, or drop --low/--high")
+    if args.find_k:
+        return find_k(args, target, choice, retrievals, m, solver, predicate, confidence)
+    chosen = choose_ks(args, m, target.n_points)
+    for k, _ in chosen:
+        _check_projector(choice, k, m)
     original = handler.solve_original(target.problem, solver)
-    records = []
-    for replicate in range(args.replicates):
-        rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver)
-        records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
-    summary = summarise(records, target.kind, predicate, confidence)
-    print(render(target, original, choice, k, k_source, m, records, summary, predicate, confidence))
+    payloads = []
+    for k, k_source in chosen:
+        records = []
+        for replicate in range(args.replicates):
+            rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver)
+            records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
+        summary = summarise(records, target.kind, predicate, confidence)
+        print(("\n" if payloads else "") + render(target, original, choice, k, k_source, m, records, summary, predicate, confidence))
+        payloads.append({"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_source": k_source,
+                         "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
+                         "summary": summary})
     if args.json is not None:
-        payload = {"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_source": k_source,
-                   "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
-                   "summary": summary}
+        payload = payloads[0] if len(payloads) == 1 else {"runs": payloads}
         write_file(args.json, json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", "--json")
         print(f"wrote {args.json}")
     return 0
+
+
+def find_k(args: argparse.Namespace, target: Target, choice, retrievals: list[str], m: int, solver: dict,
+           predicate, confidence) -> int:
+    """``--find-k``: the k search of a campaign on this one instance; prints the trace and the verdict."""
+    from calib.analysis.tables import NOTICE
+    from calib.commands.run import target_text
+    from calib.reduce import HANDLERS
+    from calib.sweep.search import KSearch, trace_lines
+
+    low, high = _search_range(args, m)
+    _check_projector(choice, low, m)
+    retrieval = (args.retrieval or [HANDLERS[target.kind].default_retrieval])[0]
+    original = HANDLERS[target.kind].solve_original(target.problem, solver)
+    search = KSearch(low, high, confidence.target, confidence.level, args.max_trials)
+    outcomes: dict[int, list] = {}
+    while (demand := search.demand()) is not None:
+        k, count = demand
+        done = outcomes.setdefault(k, [])
+        for replicate in range(len(done), count):
+            done.append(_trial_success(target, choice, k, replicate, original, retrieval, solver, predicate))
+        search.offer(done[:count])
+    objective = f", objective {_fmt(original.objective)}" if original.ok else ""
+    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m})",
+             f"original: {original.status}{objective}",
+             f"projector {choice.label}, retrieval {retrieval}, k in [{low}, {high}], at most {args.max_trials} trials per k",
+             f"target: success rate >= {confidence.target:g} under {target_text(predicate, confidence.target)}"]
+    lines += trace_lines(search, f"success rate >= {confidence.target:g}")
+    lines += [f"trials run: {search.trials_read} (seed {args.seed}: the streams of a campaign with root_seed = {args.seed})", NOTICE]
+    print("\n".join(lines))
+    if args.json is not None:
+        from calib.outputs import write_file
+
+        payload = {"target": target.label, "kind": target.kind, "projector": choice.label, "retrieval": retrieval,
+                   "low": low, "high": high, "seed": args.seed, "predicate": predicate.as_dict(),
+                   "rate": confidence.target, "confidence": confidence.level, "safe_k": search.safe_k,
+                   "reason": search.reason, "steps": [vars(step) for step in search.steps]}
+        write_file(args.json, json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", "--json")
+        print(f"wrote {args.json}")
+    return 0
+
+
+def _search_range(args: argparse.Namespace, m: int) -> tuple[int, int]:
+    if args.k is not None or args.eps is not None:
+        raise InputError("--find-k", "searches k itself", "drop --k/--eps, or use --low and --high to bound the search")
+    low = 1 if args.low is None else args.low
+    high = m if args.high is None else args.high
+    if not 1 <= low < high <= m:
+        raise InputError("--low/--high", f"need 1 <= low < high <= {m} (the projected dimension), got {low} and {high}",
+                         f"e.g. --low 1 --high {m}")
+    if args.max_trials < 1:
+        raise InputError("--max-trials", f"must be at least 1, got {args.max_trials}", "e.g. --max-trials 300")
+    return low, high
+
+
+def _trial_success(target: Target, choice, k: int, replicate: int, original, retrieval: str, solver: dict, predicate) -> bool:
+    """Success of one campaign trial under ``predicate``; a trial that raises counts as a failure, as in a campaign."""
+    import pandas as pd
+
+    from calib.analysis.success import evaluate
+    from calib.sweep.trial import Trial, run_trial
+
+    try:
+        (record,) = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, [retrieval], solver)
+    except Exception:  # noqa: BLE001 - stored as an "error" row by a campaign, a failure either way
+        return False
+    return bool(evaluate(pd.DataFrame.from_records([record]).assign(status="ok", kind=target.kind), predicate).iloc[0])
 
 
 def _check_numbers(args: argparse.Namespace) -> None:

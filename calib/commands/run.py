@@ -72,11 +72,37 @@ def run(args: argparse.Namespace) -> int:
     if solver_errors:
         print(f"{solver_errors} projected solve(s) ended in a solver error: counted apart and left out of the success "
               f"rates by `calib tables` (--solver-errors fail counts them as failures)")
+    if summary.searches:
+        print(search_report(spec, summary.searches))
     if summary.lost:
         print(f"warning: {summary.lost} trials were lost by the executor and not stored; run the same command again to retry them",
               file=sys.stderr)
         return 1
     return 0
+
+
+def search_report(spec, cells) -> str:
+    """The trace and verdict of every k search of a run, then the evidence notice."""
+    from calib.analysis.tables import NOTICE
+    from calib.sweep.search import trace_lines
+
+    target = spec.target
+    rule = target_text(target.predicate, target.rate)
+    lines = [f"k search: smallest k with success rate >= {target.rate:g} under {rule}, per cell"]
+    for cell in cells:
+        lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
+        lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
+    lines.append(NOTICE)
+    return "\n".join(lines)
+
+
+def target_text(predicate, rate: float) -> str:
+    """``'bound' (gap <= 1e-06)``: the predicate's name and the tolerances it checks."""
+    checks = {key: value for key, value in predicate.as_dict().items() if key not in ("name", "classify") and value is not None}
+    text = ", ".join(f"{key} <= {value:g}" for key, value in checks.items())
+    if predicate.classify:
+        text = ", ".join(filter(None, ["feasibility verdict matches", text]))
+    return f"'{predicate.name}' ({text})"
 
 
 def count_solver_errors(store_path) -> int:
@@ -128,6 +154,9 @@ class _ProgressBar:
 
             self.bar = tqdm(total=progress.total, unit="trial", file=sys.stderr, dynamic_ncols=True, desc=self.name,
                             mininterval=0.5, smoothing=0.05)
+        if progress.total != self.bar.total:  # a k search learns its trials as it goes
+            self.bar.total = progress.total
+            self.bar.refresh()
         self.bar.update(progress.done - self.bar.n)
         if progress.failed != self.failed:
             self.failed = progress.failed

@@ -95,15 +95,43 @@ def run(args: argparse.Namespace) -> int:
 
     for path, option in ((args.json, "--json"), (args.csv, "--csv"), (args.timings, "--timings")):
         check_target(path, option)
-    table, rows, _ = analyse(args)
+    table, rows, spec = analyse(args)
     write_table(table, args.json, args.csv)
     if args.timings is not None:
         write_timings(timing_frame(rows, table["analyses"][0]), args.timings)
     print(render_summary(table))
+    searched = search_summary(args.store, spec)
+    if searched:
+        print(searched)
     for path in (args.json, args.csv, args.timings):
         if path is not None:
             print(f"wrote {path}")
     return 0
+
+
+def search_summary(store_path, raw_spec: dict) -> str:
+    """For a store written by a k search: the k values above are the ones the search tested, and its own
+    verdicts (replayed from the stored trials under the spec's [target]) follow; "" otherwise."""
+    from calib.commands.run import search_report
+    from calib.errors import InputError
+    from calib.sweep.runner import replay_searches
+    from calib.sweep.spec import parse_spec
+    from calib.sweep.store import Store
+
+    k = raw_spec.get("sweep", {}).get("k")
+    if not (isinstance(k, dict) and "search" in k):
+        return ""
+    try:
+        spec = parse_spec(raw_spec, source=str(store_path))
+    except InputError as error:
+        return f"\n(this store's k values come from a k search; its verdicts cannot be replayed here: {error})"
+    store = Store.open_existing(store_path)
+    try:
+        cells = replay_searches(spec, store)
+    finally:
+        store.close()
+    return ("\nthe k values above are those a k search tested (counts per tested k); the search itself, "
+            "replayed from the stored trials:\n" + search_report(spec, cells))
 
 
 def _transition_text(transition: dict) -> str:

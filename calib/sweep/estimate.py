@@ -54,7 +54,7 @@ def size_plans(spec: Spec) -> list[SizePlan]:
         if key not in plans:
             plans[key] = SizePlan(ref.family, ref.params, 0, ks, labels, 0)
         plans[key].instances += 1
-        plans[key].trials += per_instance * len(ks)
+        plans[key].trials += per_instance * _k_count(spec, ks)
     return list(plans.values())
 
 
@@ -168,7 +168,18 @@ def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
             f"would certify it")
 
 
-def _k_range(ks: list) -> str:
+def _k_count(spec: Spec, ks: list) -> int:
+    """k values a size runs: the grid's, or the most a k search tests (an upper bound)."""
+    from calib.sweep.search import max_looks
+
+    return max_looks(ks[0], ks[-1]) if spec.k_grid.is_search else len(ks)
+
+
+def _k_range(ks: list, search: bool = False) -> str:
+    from calib.sweep.search import max_looks
+
+    if search:
+        return f"a k search in {ks[0]}..{ks[-1]} (at most {max_looks(ks[0], ks[-1])} k values)"
     return f"k={ks[0]}" if len(ks) == 1 else f"{len(ks)} k in {ks[0]}..{ks[-1]}"
 
 
@@ -177,12 +188,13 @@ def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]]
     """The dry-run report: counts per size, the probe times and the work estimate."""
     instances = sum(plan.instances for plan in plans)
     trials = sum(plan.trials for plan in plans)
-    lines = [f"campaign {spec.name}: {instances} instances, {trials} trials "
+    bound = "at most " if spec.k_grid.is_search else ""  # a search usually stops far below its cap
+    lines = [f"campaign {spec.name}: {instances} instances, {bound}{trials} trials "
              f"({trials * len(spec.retrievals)} stored rows: {len(spec.retrievals)} retrieval(s) per trial)",
              f"store: {store_note}"]
     for plan in plans:
         lines.append(f"  {plan.label}: {plan.instances} instances x {len(spec.projectors)} projector(s) x "
-                     f"{_k_range(plan.ks)} x {spec.replicates} replicate(s) = {plan.trials} trials")
+                     f"{_k_range(plan.ks, spec.k_grid.is_search)} x {spec.replicates} replicate(s) = {bound}{plan.trials} trials")
     lines += advice_lines(spec, plans)
     if probes is None:
         lines.append("estimate: not measured (--no-probe)")

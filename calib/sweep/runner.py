@@ -11,6 +11,15 @@ Every finished trial is one transaction (its rows, one per retrieval); a trial t
 out or crashed its worker is stored too, with its status and message, and the campaign goes on.
 Ctrl-C (KeyboardInterrupt) stops the workers; every trial stored so far stays, and running the
 same command again resumes.
+
+A trial is done when every retrieval it needs has a stored row; a trial stored before retrievals
+were added to the campaign runs again for the missing ones only (same stream, same projection).
+
+A spec with ``k = {search = ...}`` runs :class:`SearchCoordinator` instead: one
+:class:`~calib.sweep.search.KSearch` per (size, projector, retrieval) asks for trials, which are
+the grid's trials (same identity and stream), so every stored one is read instead of run. A search
+is a pure function of the outcomes in trial order, so after a kill the same command replays it
+from the store and runs only what was missing.
 """
 
 from __future__ import annotations
@@ -26,6 +35,9 @@ from calib.sweep.spec import Spec
 from calib.sweep.store import Store
 from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask, failed_original
 from calib.sweep.trial import InstanceRef, Trial, count_trials, instance_refs, instance_trials
+
+#: what a coordinator keeps per stored trial: the retrievals it has rows for
+Stored = dict
 
 
 @dataclass
@@ -52,6 +64,7 @@ class RunSummary:
     lost: int
     originals_solved: int
     seconds: float
+    searches: list = field(default_factory=list)  # SearchCell, for a k search
 
     @property
     def failed(self) -> int:
@@ -82,7 +95,8 @@ def run_campaign(spec: Spec, out_dir: str | Path, workers: Optional[int] = None,
     try:
         store = Store.create_or_resume(spec, out_dir, new_campaign)
         try:
-            return Coordinator(spec, store, executor, progress).run()
+            kind = SearchCoordinator if spec.k_grid.is_search else Coordinator
+            return kind(spec, store, executor, progress).run()
         finally:
             store.close()
     finally:
@@ -107,9 +121,9 @@ class Coordinator:
 
     def run(self) -> RunSummary:
         start = time.perf_counter()
-        self.done = self.store.done_trial_ids()
+        self.stored = self.store.stored_retrievals()
         _, planned = count_trials(self.spec)
-        self.progress = Progress(total=planned - len(self.done))
+        self.progress = Progress(total=sum(len(self._todo(ref, ks, labels)) for ref, ks, labels in instance_refs(self.spec)))
         self._notify()
         self._fill()
         while self._in_flight:
@@ -135,7 +149,7 @@ class Coordinator:
     def _open_next_instance(self) -> bool:
         """Queue the next instance with trials to run; False when there is none left."""
         for ref, ks, labels in self._instances:
-            todo = [trial for trial in instance_trials(self.spec, ref, ks, labels) if trial.trial_id not in self.done]
+            todo = self._todo(ref, ks, labels)
             if not todo:
                 continue
             stored = self.store.instance_row(ref.instance_id)
@@ -147,16 +161,28 @@ class Coordinator:
             return True
         return False
 
+    def _todo(self, ref: InstanceRef, ks: list[int], labels: list[str]) -> list[tuple[Trial, tuple]]:
+        """(trial, retrievals still missing) for the trials of ``ref`` not fully stored."""
+        wanted = retrieval_names(family_kind(ref), self.spec.retrievals)
+        return [(trial, missing) for trial in instance_trials(self.spec, ref, ks, labels)
+                if (missing := self._missing(trial, wanted))]
+
+    def _missing(self, trial: Trial, wanted) -> tuple:
+        stored = self.stored.get(trial.trial_id, ())
+        return tuple(name for name in wanted if name not in stored)
+
     def _submit(self, task) -> None:
         if isinstance(task, TrialTask):
             self._submitted[task.trial.trial_id] = task
         self.executor.submit(task.token, task, self.timeout)
         self._in_flight += 1
 
-    def _queue_trials(self, trials: list[Trial], stored_row: dict) -> None:
+    def _queue_trials(self, todo: list[tuple[Trial, tuple]], stored_row: dict) -> None:
+        self._ready.extend(self._trial_task(trial, retrievals, stored_row) for trial, retrievals in todo)
+
+    def _trial_task(self, trial: Trial, retrievals: tuple, stored_row: dict) -> TrialTask:
         original = {name: stored_row[name] for name in ORIGINAL_FIELDS}
-        retrievals = tuple(retrieval_names(stored_row["kind"], self.spec.retrievals))
-        self._ready.extend(TrialTask(trial, retrievals, self.spec.solver, original, self.spec.plugins) for trial in trials)
+        return TrialTask(trial, tuple(retrievals), self.spec.solver, original, self.spec.plugins)
 
     # ----- results -------------------------------------------------------------------------
     def _handle(self, token: str, result) -> None:
@@ -182,7 +208,7 @@ class Coordinator:
 
     def _store_trial(self, trial_id: str, result) -> None:
         task = self._submitted.pop(trial_id)
-        if trial_id in self.done:
+        if not self._missing(task.trial, task.retrievals):
             return  # a duplicate delivery: rows are append-only and already stored
         if isinstance(result, Failure):
             if result.status == "lost":
@@ -194,7 +220,7 @@ class Coordinator:
             outcomes, seconds, env_id = result["outcomes"], result["seconds"], self._env_id(result["env"])
         rows = trial_rows(task.trial, task.retrievals, outcomes, seconds, env_id, self.solver_json)
         self.store.add_trial_rows(rows)
-        self.done.add(trial_id)
+        self.stored.setdefault(trial_id, set()).update(task.retrievals)
         self.progress.done += 1
         self.progress.statuses[rows[0]["status"]] += 1
         self._notify()
@@ -222,6 +248,13 @@ def retrieval_names(kind: str, requested) -> list[str]:
     return select(kind, list(requested))
 
 
+def family_kind(ref: InstanceRef) -> str:
+    """The problem kind of an instance, known from its family without building it."""
+    from calib.families import get
+
+    return get(ref.family).kind
+
+
 def identity_row(ref: InstanceRef) -> dict:
     """Instance-row fields known without building the instance."""
     from calib.families import get
@@ -241,3 +274,209 @@ def trial_rows(trial: Trial, retrievals, outcomes, seconds: float, env_id: str, 
         "metrics": metrics, "seconds": seconds, "stream_key": canonical_json(trial.stream_keys), "env_id": env_id,
         "root_seed": trial.instance.root_seed, "solver_options": solver_json,
     } for retrieval, (status, message, metrics) in zip(retrievals, outcomes)]
+
+
+@dataclass
+class SearchCell:
+    """One searched cell: the instances of one size, one projector, one retrieval, and its search."""
+
+    family: str
+    params: dict
+    refs: list
+    projector: object  # ProjectorChoice
+    retrieval: str
+    k_label: str
+    search: object  # calib.sweep.search.KSearch
+    interrupted: str = ""
+
+    @property
+    def label(self) -> str:
+        from calib.families.base import size_label
+        from calib.families import get
+
+        return f"{self.family} {size_label(get(self.family).size_keys, self.params)} / {self.projector.label} / {self.retrieval}"
+
+    def trials_at(self, k: int, count: int) -> list[Trial]:
+        """The first ``count`` trials at k in search order: replicate 0 of every instance, then 1, ..."""
+        width = len(self.refs)
+        return [Trial(self.refs[j % width], self.projector, k, j // width, self.k_label) for j in range(count)]
+
+
+def search_cells(spec: Spec) -> list[SearchCell]:
+    """One :class:`SearchCell` per (size, projector, retrieval) of a search spec, in spec order."""
+    from calib.families import get
+    from calib.sweep.search import KSearch
+    from calib.sweep.spec import k_values, search_range
+
+    cells = []
+    for cell in spec.families:
+        family = get(cell.name)
+        for params in cell.sizes:
+            low, high = search_range(spec.k_grid, family.projected_dim(params))
+            label = k_values(spec.k_grid, family, params)[1][0]
+            refs = [InstanceRef(cell.name, params, index, spec.root_seed) for index in range(cell.instances)]
+            for choice in spec.projectors:
+                for retrieval in retrieval_names(family.kind, spec.retrievals):
+                    search = KSearch(low, high, spec.target.rate, spec.target.confidence, len(refs) * spec.replicates)
+                    cells.append(SearchCell(cell.name, params, refs, choice, retrieval, label, search))
+    return cells
+
+
+def trial_successes(rows: list[dict], kinds: dict[str, str], predicate) -> dict[str, dict[str, bool]]:
+    """trial id -> retrieval -> success of stored trial rows under ``predicate``, in one
+    :func:`calib.analysis.success.evaluate` call; ``kinds`` maps each row's instance id to its kind."""
+    import json
+
+    import pandas as pd
+
+    from calib.analysis.success import evaluate
+    from calib.metrics import FIELDS
+
+    records = []
+    for row in rows:
+        metrics = json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}
+        record = {name: metrics.get(name) for name in FIELDS}  # as calib.analysis.tables.load_rows reads them
+        record.update(status=row["status"], kind=kinds[row["instance_id"]])
+        records.append(record)
+    frame = pd.DataFrame.from_records(records, columns=["status", "kind", *FIELDS])
+    successes: dict[str, dict[str, bool]] = {}
+    for row, success in zip(rows, evaluate(frame, predicate).tolist()):
+        successes.setdefault(row["trial_id"], {})[row["retrieval"]] = bool(success)
+    return successes
+
+
+class SearchCoordinator(Coordinator):
+    """Drives the k searches of a spec on the executor; trials and originals stored as by the grid."""
+
+    def run(self) -> RunSummary:
+        start = time.perf_counter()
+        self._prepare()
+        self._notify()
+        self._advance()
+        while self._in_flight:
+            finished = self.executor.next_done()
+            self._in_flight -= 1
+            self._handle(finished.token, finished.result)
+            self._advance()
+        return RunSummary(self.store.path, self.executor.name, len(self.requested), self.reused,
+                          self.progress.done, dict(self.progress.statuses), self.lost, self.originals,
+                          time.perf_counter() - start, searches=self.cells)
+
+    def _prepare(self) -> None:
+        self.stored = self.store.stored_retrievals()
+        self.cells = search_cells(self.spec)
+        self.progress = Progress(total=0)
+        self.requested: set[str] = set()   # trial ids some search asked for
+        self.reused = 0
+        self._outcomes: dict[str, dict] = {}   # trial id -> retrieval -> success
+        self._rows: dict[str, dict] = {}       # instance id -> stored instance row
+        self._pending_originals: set[str] = set()
+        self._lost_ids: set[str] = set()
+
+    def _advance(self) -> None:
+        """Feed every search what the store holds; submit what they still need."""
+        for cell in self.cells:
+            while not cell.interrupted and (demand := cell.search.demand()) is not None:
+                outcomes = self._read(cell, *demand)
+                if outcomes is None:
+                    break
+                cell.search.offer(outcomes)
+
+    def _read(self, cell: SearchCell, k: int, count: int) -> Optional[list]:
+        """The outcomes of the first ``count`` trials at k, or None after submitting the missing ones."""
+        trials = cell.trials_at(k, count)
+        missing = []
+        for trial in trials:
+            stored = not self._missing(trial, (cell.retrieval,))
+            if trial.trial_id not in self.requested:
+                self.requested.add(trial.trial_id)
+                self.reused += stored
+            if not stored:
+                missing.append(trial)
+        if not missing:
+            return self._successes(trials, cell.retrieval)
+        for trial in missing:
+            if trial.trial_id in self._lost_ids:
+                cell.interrupted = "the executor lost trials of this search: run the same command again to resume"
+                return None
+            self._request(trial, cell.retrieval)
+        return None
+
+    def _successes(self, trials: list[Trial], retrieval: str) -> list[bool]:
+        """Success of each stored trial for ``retrieval``; the ones not yet known are read in one batch."""
+        unknown = [trial for trial in trials if retrieval not in self._outcomes.get(trial.trial_id, {})]
+        if unknown:
+            rows = self.store.trial_rows_of([trial.trial_id for trial in unknown])
+            kinds = {trial.instance.instance_id: self._instance(trial.instance.instance_id)["kind"] for trial in unknown}
+            for trial_id, known in trial_successes(rows, kinds, self.spec.target.predicate).items():
+                self._outcomes.setdefault(trial_id, {}).update(known)
+        return [self._outcomes[trial.trial_id][retrieval] for trial in trials]
+
+    def _instance(self, instance_id: str) -> Optional[dict]:
+        if instance_id not in self._rows:
+            row = self.store.instance_row(instance_id)
+            if row is None:
+                return None
+            self._rows[instance_id] = row
+        return self._rows[instance_id]
+
+    def _request(self, trial: Trial, retrieval: str) -> None:
+        """Submit ``trial`` (once) for ``retrieval``, after its instance's original solve."""
+        if trial.trial_id in self._submitted:
+            return
+        ref = trial.instance
+        row = self._instance(ref.instance_id)
+        if row is None:
+            if ref.instance_id not in self._pending_originals:
+                self._pending_originals.add(ref.instance_id)
+                self._waiting[ref.instance_id] = (ref, [])
+                self._submit(OriginalTask(ref, self.spec.solver, self.spec.plugins))
+            return  # re-requested by _advance once the original is stored
+        missing = self._missing(trial, retrieval_names(row["kind"], self.spec.retrievals))  # every search of the size
+        self.progress.total += 1
+        self._notify()
+        self._submit(self._trial_task(trial, missing, row))
+
+    def _store_original(self, instance_id: str, result) -> None:
+        self._pending_originals.discard(instance_id)
+        if isinstance(result, Failure) and result.status == "lost":
+            self._waiting.pop(instance_id)
+            self.lost += 1
+            for cell in self.cells:
+                if any(ref.instance_id == instance_id for ref in cell.refs):
+                    cell.interrupted = "the executor lost an original solve: run the same command again to resume"
+            return
+        super()._store_original(instance_id, result)
+
+    def _queue_trials(self, todo, stored_row: dict) -> None:
+        return  # searches submit their own trials (see _advance)
+
+    def _store_trial(self, trial_id: str, result) -> None:
+        if isinstance(result, Failure) and result.status == "lost":
+            self._lost_ids.add(trial_id)
+        super()._store_trial(trial_id, result)
+
+
+class _NoExecutor:
+    """Takes tasks and runs none: what a replay of stored searches submits is what is missing."""
+
+    name = "none"
+    slots = 0
+
+    def submit(self, token: str, task, timeout) -> None:
+        pass
+
+
+def replay_searches(spec: Spec, store: Store) -> list[SearchCell]:
+    """The k searches of ``spec`` decided from ``store`` alone (read only, nothing runs).
+
+    A search is a pure function of its trials' outcomes, so this gives the verdicts `calib run`
+    printed; a search that needs a trial the store lacks is marked not finished.
+    """
+    coordinator = SearchCoordinator(spec, store, _NoExecutor())
+    coordinator._prepare()
+    coordinator._advance()
+    for cell in coordinator.cells:
+        if not cell.search.done and not cell.interrupted:
+            cell.interrupted = "search not finished: run the campaign again to complete it"
+    return coordinator.cells

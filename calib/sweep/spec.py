@@ -17,8 +17,15 @@ In short::
     [sweep]
     projectors = ["gaussian"]  # names, or tables {name = "...", option = value}
     k = [8, 16, 32]            # or {fractions = [0.1, 0.2]} of the projected dimension,
-                               # or {eps = [0.5, 0.3], rule = "dasgupta-gupta"}
+                               # or {eps = [0.5, 0.3], rule = "dasgupta-gupta"},
+                               # or {search = {low = 8, high = 64}} (also low_fraction/high_fraction)
     retrievals = ["basis-lstsq"]
+
+    [target]                   # only with k = {search = ...}: the success rule the search certifies
+    preset = "bound"           # a preset of calib.analysis.success
+    tolerance = 0.05           # its primary tolerance (omit for "classify")
+    delta = 0.1                # target success rate 1 - delta
+    confidence = 0.95          # confidence of the final claim
 
     [solver]
     time_limit_s = 60          # per solve, enforced by the solver itself
@@ -72,11 +79,29 @@ class ProjectorChoice:
 
 @dataclass(frozen=True)
 class KGrid:
-    """How k is chosen: absolute values, fractions of the projected dimension, or eps with a rule."""
+    """How k is chosen: absolute values, fractions of the projected dimension, eps with a rule, or a
+    search range ``values = (low, high)`` in k ("search") or in fractions of m ("search-fractions")."""
 
-    mode: str  # "absolute" | "fractions" | "eps"
+    mode: str  # "absolute" | "fractions" | "eps" | "search" | "search-fractions"
     values: tuple
     rule: Optional[str] = None
+
+    @property
+    def is_search(self) -> bool:
+        return self.mode.startswith("search")
+
+
+@dataclass(frozen=True)
+class SearchTarget:
+    """What a k search certifies: success rate >= 1 - ``delta`` under ``predicate``, at ``confidence``."""
+
+    predicate: Any  # calib.analysis.success.Predicate
+    delta: float
+    confidence: float
+
+    @property
+    def rate(self) -> float:
+        return 1.0 - self.delta
 
 
 @dataclass(frozen=True)
@@ -106,6 +131,7 @@ class Spec:
     source: str = ""
     raw: dict = field(default_factory=dict, repr=False)
     plugins: tuple = ()
+    target: Optional[SearchTarget] = None
 
     @property
     def fingerprint(self) -> str:
@@ -169,7 +195,7 @@ def parse_spec(raw: dict, source: str = "spec") -> Spec:
 
     plugins = load_from_env()
     errors = _Collector()
-    errors.unknown_keys(raw, {"campaign", "families", "sweep", "solver"}, "spec")
+    errors.unknown_keys(raw, {"campaign", "families", "sweep", "solver", "target"}, "spec")
     campaign = errors.table(raw, "campaign", "campaign")
     errors.unknown_keys(campaign, {"name", "root_seed", "replicates", "description"}, "campaign")
     name = campaign.get("name")
@@ -186,13 +212,18 @@ def parse_spec(raw: dict, source: str = "spec") -> Spec:
     kinds = {family_registry.get(cell.name).kind for cell in cells}
     retrievals = _parse_retrievals(sweep.get("retrievals"), kinds, errors)
     solver = _parse_solver(raw.get("solver", {}), errors)
+    target = _parse_target(raw.get("target"), k_grid, errors)
+    for kind in sorted(kinds):
+        if target is not None and not target.predicate.covers(kind):
+            errors.add("target.preset", f"preset {target.predicate.name!r} decides nothing on {kind} problems",
+                       "choose a preset that checks this kind (calib tables --help lists them)")
     if not errors.problems:
         _check_grid(cells, k_grid, errors, family_registry)
     if errors.problems:
         raise SpecError(source, errors.problems)
     return Spec(name=name, root_seed=root_seed, replicates=replicates, families=cells, projectors=projectors,
                 k_grid=k_grid, retrievals=retrievals, solver=solver, source=source,
-                raw=raw, plugins=plugins)
+                raw=raw, plugins=plugins, target=target)
 
 
 def _parse_families(value, errors: _Collector, registry) -> list[FamilyCell]:
@@ -325,8 +356,83 @@ def _parse_k(value, errors: _Collector) -> KGrid:
                 errors.add("sweep.k.rule", f"unknown rule {rule!r}", f"choose one of {', '.join(sorted(RULES))}")
             eps = _number_list(value["eps"], "sweep.k.eps", errors, lambda v: 0 < v < 1, "eps values lie in (0, 1)")
             return KGrid("eps", tuple(sorted(eps, reverse=True)), rule)
-    errors.add("sweep.k", f"cannot read {value!r}", "use k = [8, 16], k = {fractions = [0.1, 0.2]} or k = {eps = [0.3], rule = \"dasgupta-gupta\"}")
+        if set(value) == {"search"}:
+            return _parse_search(value["search"], errors)
+    errors.add("sweep.k", f"cannot read {value!r}", "use k = [8, 16], k = {fractions = [0.1, 0.2]}, "
+               "k = {eps = [0.3], rule = \"dasgupta-gupta\"} or k = {search = {low = 8, high = 64}}")
     return KGrid("absolute", ())
+
+
+_SEARCH_FIX = "write k = {search = {low = 8, high = 64}} (integers, low < high) or {search = {low_fraction = 0.05, high_fraction = 0.5}}"
+
+
+def _parse_search(value, errors: _Collector) -> KGrid:
+    """``{low, high}`` (integers 1 <= low < high) or ``{low_fraction, high_fraction}`` (0 < low < high <= 1)."""
+    path = "sweep.k.search"
+    if not isinstance(value, dict) or set(value) not in ({"low", "high"}, {"low_fraction", "high_fraction"}):
+        errors.add(path, f"cannot read {value!r}", _SEARCH_FIX)
+        return KGrid("search", ())
+    fractions = "low_fraction" in value
+    keys = ("low_fraction", "high_fraction") if fractions else ("low", "high")
+    good = True
+    for key in keys:
+        item = value[key]
+        if fractions:
+            ok = not isinstance(item, bool) and isinstance(item, (int, float)) and math.isfinite(item) and 0 < item <= 1
+        else:
+            ok = not isinstance(item, bool) and isinstance(item, int) and item >= 1
+        if not ok:
+            errors.add(f"{path}.{key}", f"invalid value {item!r}", "fractions lie in (0, 1]" if fractions else "k is an integer >= 1")
+            good = False
+    low, high = (value[key] for key in keys)
+    if good and not low < high:
+        errors.add(path, f"{keys[0]} = {low} is not below {keys[1]} = {high}", _SEARCH_FIX)
+    return KGrid("search-fractions" if fractions else "search", (low, high))
+
+
+#: keys of the [target] table
+_TARGET_KEYS = {"preset", "tolerance", "delta", "confidence"}
+
+
+def _parse_target(value, k_grid: KGrid, errors: _Collector) -> Optional[SearchTarget]:
+    """The ``[target]`` table: required by a k search, refused without one (nothing else reads it)."""
+    from calib.analysis.success import PRESETS, make_predicate, with_tau
+
+    if value is None:
+        if k_grid.is_search:
+            errors.add("target", "missing table: a k search needs its success rule at run time",
+                       'add [target] with preset = "bound", tolerance = 0.05, delta = 0.1, confidence = 0.95')
+        return None
+    if not isinstance(value, dict):
+        errors.add("target", f"must be a table, got {type(value).__name__}", "write it as [target]")
+        return None
+    if not k_grid.is_search:
+        errors.add("target", "only a k search reads [target]", "remove [target], or set k = {search = {low = ..., high = ...}}")
+        return None
+    errors.unknown_keys(value, _TARGET_KEYS, "target")
+    preset = value.get("preset", "bound")
+    if not isinstance(preset, str) or preset not in PRESETS:
+        errors.add("target.preset", f"unknown preset {preset!r}", f"choose one of {', '.join(sorted(PRESETS))}")
+        return None
+    predicate = make_predicate(preset)
+    if "tolerance" in value:
+        tolerance = value["tolerance"]
+        if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float)) or not (math.isfinite(tolerance) and tolerance > 0):
+            errors.add("target.tolerance", f"must be a positive number, got {tolerance!r}", "e.g. tolerance = 0.05")
+            return None
+        try:
+            predicate = with_tau(predicate, float(tolerance))
+        except InputError:
+            errors.add("target.tolerance", f"preset {preset!r} has no tolerance", "remove tolerance or choose another preset")
+            return None
+    numbers = {}
+    for key, default, example in (("delta", 0.1, "0.1 for a 90% success target"), ("confidence", 0.95, "0.95")):
+        number = value.get(key, default)
+        if isinstance(number, bool) or not isinstance(number, (int, float)) or not 0 < number < 1:
+            errors.add(f"target.{key}", f"must lie in (0, 1), got {number!r}", f"e.g. {key} = {example}")
+            return None
+        numbers[key] = float(number)
+    return SearchTarget(predicate, numbers["delta"], numbers["confidence"])
 
 
 def _parse_retrievals(value, kinds: set, errors: _Collector) -> list[str]:
@@ -408,6 +514,15 @@ def _parse_projected_caps(value: dict, solver: dict, errors: _Collector) -> None
             solver["projected_max_iters"] = cap
 
 
+def solver_settings(raw_solver) -> dict:
+    """The ``[solver]`` settings a raw table puts in force (defaults filled in), as parsing gives them.
+
+    >>> solver_settings({}) == solver_settings({"time_limit_s": 60})
+    True
+    """
+    return _parse_solver(raw_solver if raw_solver is not None else {}, _Collector())
+
+
 def _parse_highs(value, errors: _Collector) -> dict:
     """Extra HiGHS options: a table of scalars, each accepted by HiGHS itself (checked here)."""
     from calib.solvers.highs import new_highs
@@ -436,7 +551,9 @@ def _check_grid(cells, k_grid: KGrid, errors: _Collector, registry) -> None:
     for index, cell in enumerate(cells):
         for size_index, params in enumerate(cell.sizes):
             if not k_values(k_grid, registry.get(cell.name), params)[0]:
-                errors.add(f"families[{index}].sizes[{size_index}]", "no k of the grid fits this size (every k exceeds the projected dimension)",
+                problem = ("the search range starts above the projected dimension" if k_grid.is_search
+                           else "no k of the grid fits this size (every k exceeds the projected dimension)")
+                errors.add(f"families[{index}].sizes[{size_index}]", problem,
                            "add smaller k values or use k = {fractions = [...]}")
 
 
@@ -444,11 +561,18 @@ def k_values(k_grid: KGrid, family, params: dict) -> tuple[list[int], list[str]]
     """The k values of the grid for one size, each with its provenance label.
 
     Values above the projected dimension m are dropped (no reduction); fractions round up and are
-    at least 1; eps values go through the named rule with the family's point count.
+    at least 1; eps values go through the named rule with the family's point count. A search gives
+    the ends of its range (see :func:`search_range`).
     """
     from calib.theory import k_from_eps
 
     m = family.projected_dim(params)
+    if k_grid.is_search:
+        bounds = search_range(k_grid, m)
+        if bounds is None:
+            return [], []
+        label = "search" if k_grid.mode == "search" else f"search fractions={list(k_grid.values)}"
+        return sorted(set(bounds)), [label] * len(set(bounds))
     pairs: dict[int, str] = {}
     for value in k_grid.values:
         if k_grid.mode == "absolute":
@@ -461,3 +585,22 @@ def k_values(k_grid: KGrid, family, params: dict) -> tuple[list[int], list[str]]
             pairs[k] = label
     ks = sorted(pairs)
     return ks, [pairs[k] for k in ks]
+
+
+def search_range(k_grid: KGrid, m: int) -> Optional[tuple[int, int]]:
+    """The integer range (low, high) a k search covers for projected dimension ``m``, or None.
+
+    Fractions round up (at least 1); high is capped at m; None when low is above m.
+
+    >>> search_range(KGrid("search", (8, 64)), 40)
+    (8, 40)
+    >>> search_range(KGrid("search-fractions", (0.05, 0.5)), 150)
+    (8, 75)
+    """
+    if k_grid.mode == "search":
+        low, high = (int(value) for value in k_grid.values)
+    else:
+        low, high = (max(1, math.ceil(value * m - 1e-9)) for value in k_grid.values)
+    if low > m:
+        return None
+    return low, min(high, m)

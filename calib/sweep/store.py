@@ -10,8 +10,14 @@ WAL journal, one transaction per finished trial, trial rows append-only. Tables:
 - ``trials``: one row per (trial, retrieval) with identity, status, message, metrics (JSON),
   seconds, stream key, root seed, solver options and environment.
 
-Re-opening with the same spec resumes; a different spec under the same campaign name is refused
-unless a new campaign is asked for, which then lives beside it as ``<name>-2.sqlite``, ``-3``...
+Re-opening with the same spec resumes. A different spec under the same campaign name *grows* the
+campaign in the same store when it leaves every stored trial's numbers unchanged
+(:func:`growth_problem`: same root seed, same ``[solver]``): more replicates, instances, sizes, k
+values, projectors, families or retrievals, another k search or ``[target]``. Trial identities and
+streams do not depend on the rest of the spec, so every stored trial is reused and only new ones
+run; the campaign table then holds the new spec and ``grown_from`` lists the fingerprints before.
+A change that would alter stored trials is refused with the reason, unless a new campaign is asked
+for, which then lives beside it as ``<name>-2.sqlite``, ``-3``...
 
 Store formats (``campaign.store_format``): 1 (no key) had no ``root_seed`` and ``solver_options``
 trial columns; opening it for writing migrates it to 2 by adding them (old rows keep NULL there:
@@ -194,9 +200,11 @@ class Store:
     def _claim(self, spec) -> None:
         existing = self.meta()
         if existing:
-            if existing.get("fingerprint") != spec.fingerprint:  # locate() only picks matching stores
-                raise InputError(str(self.path), f"campaign {spec.name!r} already exists with a different spec",
-                                 "pass --new-campaign, rename the campaign, or restore the original spec to resume")
+            if existing.get("fingerprint") != spec.fingerprint:  # locate() only picks stores it can grow
+                problem = growth_problem(self.stored_spec(), spec.raw)
+                if problem:
+                    raise InputError(str(self.path), refusal(spec.name, problem), REFUSAL_FIX)
+                self._grow(spec, existing)
             return
         values = {"name": self.path.stem, "spec_name": spec.name, "fingerprint": spec.fingerprint,
                   "spec": canonical_json(spec.raw), "root_seed": str(spec.root_seed),
@@ -204,6 +212,14 @@ class Store:
                   "plugins": ",".join(spec.plugins)}
         with self.transaction():
             self.db.executemany("INSERT INTO campaign (key, value) VALUES (?, ?)", sorted(values.items()))
+
+    def _grow(self, spec, existing: dict) -> None:
+        """Record ``spec`` as the campaign's spec; the one before joins ``grown_from``."""
+        history = json.loads(existing.get("grown_from", "[]")) + [existing.get("fingerprint")]
+        values = {"fingerprint": spec.fingerprint, "spec": canonical_json(spec.raw), "grown_from": json.dumps(history),
+                  "plugins": ",".join(spec.plugins)}
+        with self.transaction():
+            self.db.executemany("INSERT OR REPLACE INTO campaign (key, value) VALUES (?, ?)", sorted(values.items()))
 
     # ----- writing --------------------------------------------------------------------------
     def transaction(self):
@@ -256,6 +272,13 @@ class Store:
     def done_trial_ids(self) -> set[str]:
         return {row[0] for row in self.db.execute("SELECT DISTINCT trial_id FROM trials")}
 
+    def stored_retrievals(self) -> dict[str, set]:
+        """trial id -> the retrievals it has rows for."""
+        stored: dict[str, set] = {}
+        for trial_id, retrieval in self.db.execute("SELECT trial_id, retrieval FROM trials"):
+            stored.setdefault(trial_id, set()).add(retrieval)
+        return stored
+
     def instance_row(self, instance_id: str) -> Optional[dict]:
         cursor = self.db.execute("SELECT * FROM instances WHERE instance_id = ?", (instance_id,))
         row = cursor.fetchone()
@@ -270,6 +293,16 @@ class Store:
         cursor = self.db.execute("SELECT * FROM trials WHERE trial_id = ? ORDER BY rowid", (trial_id,))
         names = [d[0] for d in cursor.description]
         return [dict(zip(names, row)) for row in cursor.fetchall()]
+
+    def trial_rows_of(self, trial_ids: list[str]) -> list[dict]:
+        """The stored rows of these trials (one per retrieval), in chunks below SQLite's variable limit."""
+        rows: list[dict] = []
+        for start in range(0, len(trial_ids), 500):
+            chunk = trial_ids[start:start + 500]
+            cursor = self.db.execute(f"SELECT * FROM trials WHERE trial_id IN ({', '.join('?' * len(chunk))}) ORDER BY rowid", chunk)
+            names = [d[0] for d in cursor.description]
+            rows += [dict(zip(names, row)) for row in cursor.fetchall()]
+        return rows
 
     def matching_trial_ids(self, prefix: str, limit: int = 5) -> list[str]:
         """Stored trial ids starting with ``prefix`` (at most ``limit``)."""
@@ -344,26 +377,74 @@ def stored_fingerprint(path: Path) -> Optional[str]:
     return row[0] if row else None
 
 
+#: spec keys whose change alters the numbers of stored trials, with why
+_TRIAL_ALTERING = (("campaign", "root_seed", "every instance and random stream derives from it"),
+                   ("solver", None, "every stored solve used the old settings"))
+
+#: the fix shown when a changed spec would alter stored trials
+REFUSAL_FIX = ("restore that setting to grow the campaign in place (more replicates, instances, k values, projectors, "
+               "families or retrievals reuse every stored trial), pass --new-campaign, or rename the campaign")
+
+
+def growth_problem(stored: dict, new: dict) -> str:
+    """Why running the parsed spec ``new`` into a store of ``stored`` would alter stored trials ("" if it would not).
+
+    >>> growth_problem({"campaign": {"root_seed": 1, "replicates": 6}}, {"campaign": {"root_seed": 1, "replicates": 15}})
+    ''
+    >>> growth_problem({"campaign": {"root_seed": 1}}, {"campaign": {"root_seed": 2}})
+    'campaign.root_seed changes from 1 to 2 (every instance and random stream derives from it)'
+    """
+    from calib.sweep.spec import solver_settings
+
+    for table, key, why in _TRIAL_ALTERING:
+        before, after = stored.get(table, {}), new.get(table, {})
+        if key is not None:
+            before, after = before.get(key), after.get(key)
+        else:  # compare the settings in force, defaults filled in
+            before, after = solver_settings(before), solver_settings(after)
+        if canonical_json(before) != canonical_json(after):
+            name = f"{table}.{key}" if key else f"[{table}]"
+            return f"{name} changes from {canonical_json(before)} to {canonical_json(after)} ({why})"
+    return ""
+
+
+def refusal(name: str, problem: str) -> str:
+    return f"campaign {name!r} already exists with a different spec that would change its stored trials: {problem}"
+
+
 def locate(spec, out_dir: str | Path, new_campaign: bool = False) -> tuple[Path, bool]:
     """Where the store of ``spec`` lives and whether it exists already.
 
     The store holding the same spec (``<name>.sqlite``, ``<name>-2.sqlite``, ...) is resumed. When
-    none does and ``<name>.sqlite`` holds another spec, this refuses unless ``new_campaign`` asks
-    for the next free ``<name>-N.sqlite``.
+    none does, the newest store whose trials the spec leaves unchanged grows (:func:`growth_problem`);
+    when there is none either, this refuses with the reason unless ``new_campaign`` asks for the
+    next free ``<name>-N.sqlite`` (which it also does instead of growing).
     """
-    number = 1
+    number, found = 1, []
     while True:
         path = store_path(out_dir, spec.name, number)
         if not path.exists():
             break
         if stored_fingerprint(path) in (spec.fingerprint, None):
             return path, True
+        found.append(path)
         number += 1
-    if number > 1 and not new_campaign:
-        first = store_path(out_dir, spec.name, 1)
-        raise InputError(str(first), f"campaign {spec.name!r} already exists there with a different spec",
-                         f"pass --new-campaign to start {path.name} beside it, rename the campaign, or restore the original spec to resume")
+    if found and not new_campaign:
+        problem = ""
+        for candidate in reversed(found):
+            problem = growth_problem(_stored_spec_at(candidate), spec.raw)
+            if not problem:
+                return candidate, True
+        raise InputError(str(found[-1]), refusal(spec.name, problem), REFUSAL_FIX)
     return path, False
+
+
+def _stored_spec_at(path: Path) -> dict:
+    store = Store.open_existing(path)
+    try:
+        return store.stored_spec()
+    finally:
+        store.close()
 
 
 def _lock(path: Path) -> int:

@@ -1,0 +1,274 @@
+"""Sequential search for the smallest safe k of one cell: bracket, then bisection on integer k.
+
+Model. In one cell (the instances of one family size, one projector, one retrieval) a trial at k
+succeeds with probability p(k) under the ``[target]`` success rule; trials at one k are taken in a
+fixed order (replicate 0 of every instance, then replicate 1, ...), each an independent projector
+draw, and their outcomes pooled as the table pools them. A k is *safe* when p(k) >= t = 1 - delta.
+
+One k: an anytime-valid test. After n trials with s successes, the beta-binomial mixture
+
+    M_n(p) = B(a + s, b + n - s) / (B(a, b) p^s (1 - p)^(n - s))
+
+is, for the true p, a nonnegative martingale with mean 1 (the Bayes factor of a Beta(a, b) mixture
+against the point p), so Ville's inequality gives P(M_n(p) >= 1/alpha for some n) <= alpha:
+{p : M_n(p) < 1/alpha} is a confidence sequence valid at every n at once (Robbins 1970; Howard,
+Ramdas, McAuliffe & Sekhon 2021, "Time-uniform, nonparametric, nonasymptotic confidence
+sequences", Ann. Statist. 49(2)). ln M_n(p) is convex in p with its minimum at s/n, so trials stop
+as soon as M_n(t) >= 1/alpha: with s/n > t every p <= t is excluded (k passes: its lower bound is
+above t), with s/n < t every p >= t is (k fails: its upper bound is below t). Looking after every
+trial costs nothing in validity. With several instances (rates p_i, mean p) visited in turn, each
+complete round multiplies M by factors whose expectations multiply to prod_i (1 + (p_i - p) c) <= 1
+(AM-GM, with c fixed by the mixture point), so M stays a supermartingale over complete rounds; looks
+inside a round are treated alike (common practice, as the table pools instances). The prior is Beta(5 t, 5 (1 - t)), centred on the target (any
+prior keeps the guarantee; this one makes the typical passing k, with p near 1, stop after about
+60 trials at t = 0.9).
+
+The last look. A k still undecided after its cap N of trials gets one fixed-n test: it passes when
+the one-sided Clopper–Pearson lower bound (Clopper & Pearson 1934) of its N trials reaches t, and
+fails otherwise. Each k spends half its alpha on the sequence and half on this look, so a false
+pass at that k has probability <= alpha/2 + alpha/2 (a union bound; the look at the fixed N is one
+event whatever the sequence did before). The last look is what lets a k with, say, 79 successes in
+80 trials pass, where the anytime bound alone would need more trials than the cap.
+
+Many k: error spent by Bonferroni. Bracket-and-bisection on [low, high] tests at most
+K = 2 + ceil(log2(high - low)) values of k (high, low, then halving the gap), each at
+alpha = (1 - confidence) / K. The answer is the smallest tested k that passed, above a tested k
+that failed (or low itself); it is claimed safe only when it passed, so P(the claimed k has
+p(k) < t) <= K * alpha = 1 - confidence. The search visits high first: when high does not pass
+there is no claim. Bisection assumes p(k) does not fall as k grows (monotone success); k values
+between tested ones are not checked, and this assumption is stated with every verdict.
+
+Costs: each look is O(1) (log-beta functions); a search holds the outcomes at its current k only.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Optional, Sequence
+
+import numpy as np
+from scipy.optimize import brentq
+from scipy.special import betaln
+
+from calib.analysis.stats import clopper_pearson_lower
+
+#: strength a + b of the Beta prior of the mixture (centred on the target rate)
+PRIOR_STRENGTH = 5.0
+#: stated with every verdict
+MONOTONE = "bisection assumes the success rate does not fall as k grows; k values between tested ones were not run"
+
+
+def log_mixture(successes: int, trials: int, p: float, rate: float) -> float:
+    """ln M_n(p) of the beta-binomial mixture with prior Beta(5 rate, 5 (1 - rate)).
+
+    >>> round(log_mixture(0, 0, 0.5, 0.9), 12)
+    0.0
+    >>> round(math.exp(log_mixture(1, 1, 0.5, 0.9)), 12)  # one success: M_1(p) = E[q] / p = rate / p
+    1.8
+    """
+    a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
+    failures = trials - successes
+    value = betaln(a + successes, b + failures) - betaln(a, b)
+    if successes:
+        value -= successes * math.log(p)
+    if failures:
+        value -= failures * math.log1p(-p)
+    return float(value)
+
+
+def decide(successes: int, trials: int, rate: float, alpha: float) -> Optional[str]:
+    """"pass" when the confidence sequence lies above ``rate``, "fail" when below, else None.
+
+    >>> decide(64, 64, 0.9, 0.05 / 9), decide(0, 5, 0.9, 0.05 / 9), decide(10, 10, 0.9, 0.05 / 9)
+    ('pass', 'fail', None)
+    """
+    if trials == 0 or successes == rate * trials:
+        return None
+    if log_mixture(successes, trials, rate, rate) < math.log(1.0 / alpha):
+        return None
+    return "pass" if successes > rate * trials else "fail"
+
+
+def confidence_sequence(successes: int, trials: int, rate: float, alpha: float) -> tuple[float, float]:
+    """(lower, upper) end of {p : M_n(p) < 1/alpha} after ``trials`` with ``successes``.
+
+    >>> low, high = confidence_sequence(64, 64, 0.9, 0.05 / 9)
+    >>> 0.9 < low < 0.91, high
+    (True, 1.0)
+    """
+    level = math.log(1.0 / alpha)
+    if trials == 0:
+        return 0.0, 1.0
+    centre = min(max(successes / trials, 1e-12), 1.0 - 1e-12)
+
+    def excess(p: float) -> float:
+        return log_mixture(successes, trials, p, rate) - level
+
+    ends = []
+    for edge in (1e-15, 1.0 - 1e-15):
+        if excess(edge) <= 0.0 or excess(centre) >= 0.0:
+            ends.append(0.0 if edge < 0.5 else 1.0)
+        else:
+            ends.append(brentq(excess, min(edge, centre), max(edge, centre), xtol=1e-9))
+    return ends[0], ends[1]
+
+
+def first_decision(outcomes: Sequence[bool], rate: float, alpha: float) -> tuple[Optional[str], int]:
+    """(verdict, trials used): the first prefix of ``outcomes`` that decides, or (None, len).
+
+    >>> first_decision([False] * 8, 0.9, 0.05 / 9)
+    ('fail', 5)
+    """
+    if len(outcomes) == 0:
+        return None, 0
+    successes = np.cumsum(np.asarray(outcomes, dtype=bool))
+    trials = np.arange(1, successes.size + 1)
+    a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
+    log_m = (betaln(a + successes, b + trials - successes) - betaln(a, b)
+             - successes * math.log(rate) - (trials - successes) * math.log1p(-rate))
+    decided = np.flatnonzero((log_m >= math.log(1.0 / alpha)) & (successes != rate * trials))
+    if not decided.size:
+        return None, len(outcomes)
+    first = decided[0]
+    return ("pass" if successes[first] > rate * trials[first] else "fail"), int(first) + 1
+
+
+def trials_before_decision(successes: int, trials: int, rate: float, alpha: float, cap: int) -> int:
+    """The fewest further trials after which a decision is possible (all succeed or all fail), at
+    most ``cap - trials``: asking for exactly these never runs a trial the search will not read.
+
+    >>> trials_before_decision(0, 0, 0.9, 0.05 / 9, 1000)
+    5
+    """
+    extra = np.arange(1, cap - trials + 1)
+    if extra.size == 0:
+        return 0
+    level = math.log(1.0 / alpha)
+    a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
+    failures = trials - successes
+    base = -betaln(a, b) - successes * math.log(rate) - failures * math.log1p(-rate)
+    all_pass = betaln(a + successes + extra, b + failures) + base - extra * math.log(rate)
+    all_fail = betaln(a + successes, b + failures + extra) + base - extra * math.log1p(-rate)
+    possible = np.flatnonzero(((all_pass >= level) & (successes + extra > rate * (trials + extra)))
+                              | ((all_fail >= level) & (successes < rate * (trials + extra))))
+    return int(extra[possible[0]]) if possible.size else int(extra[-1])
+
+
+def max_looks(low: int, high: int) -> int:
+    """Most k values bracket-and-bisection tests on [low, high]: high, low, then ceil(log2(high - low)).
+
+    >>> max_looks(10, 10), max_looks(10, 11), max_looks(8, 64)
+    (1, 2, 8)
+    """
+    if high <= low:
+        return 1
+    return 2 + math.ceil(math.log2(high - low))
+
+
+@dataclass
+class Step:
+    """One tested k: trials read, successes, the anytime bounds and the verdict."""
+
+    k: int
+    trials: int
+    successes: int
+    lower: float
+    upper: float
+    verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target)
+
+
+@dataclass
+class KSearch:
+    """The search on one cell; feed it outcomes at :meth:`demand`'s k until it is done.
+
+    ``cap`` is the most trials read at one k (instances x replicates of the spec).
+    """
+
+    low: int
+    high: int
+    rate: float
+    confidence: float
+    cap: int
+    steps: list = field(default_factory=list)
+    safe_k: Optional[int] = None
+    reason: str = ""
+    done: bool = False
+
+    def __post_init__(self) -> None:
+        self.alpha = (1.0 - self.confidence) / max_looks(self.low, self.high)
+        self._passing, self._failing = None, None  # smallest passing, largest failing k so far
+        self.k: Optional[int] = self.high
+        self._outcomes: list = []
+
+    def demand(self) -> Optional[tuple[int, int]]:
+        """(k, n): the search needs the outcomes of the first n trials at k; None once done."""
+        if self.done:
+            return None
+        successes = sum(self._outcomes)
+        more = trials_before_decision(successes, len(self._outcomes), self.rate, self.alpha / 2, self.cap)
+        return self.k, len(self._outcomes) + max(1, more)
+
+    def offer(self, outcomes: Sequence[bool]) -> None:
+        """Outcomes of the first trials at the current k, in trial order (a longer list is fine)."""
+        outcomes = [bool(value) for value in outcomes[:self.cap]]
+        verdict, used = first_decision(outcomes, self.rate, self.alpha / 2)
+        if verdict is not None:
+            self._record(verdict, outcomes[:used])
+        elif len(outcomes) < self.cap:
+            self._outcomes = outcomes
+        else:  # the last look: a fixed-n Clopper–Pearson bound on all cap trials
+            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - self.alpha / 2))
+            self._record("pass" if lower >= self.rate else "fail at the cap", outcomes, lower)
+
+    def _record(self, verdict: str, outcomes: list, last_lower: float = 0.0) -> None:
+        successes = sum(outcomes)
+        lower, upper = confidence_sequence(successes, len(outcomes), self.rate, self.alpha / 2)
+        lower = max(lower, last_lower)
+        self.steps.append(Step(self.k, len(outcomes), successes, lower, upper, verdict))
+        self._outcomes = []
+        if verdict == "pass":
+            self._passing = self.k
+        else:
+            self._failing = self.k
+        self.k = self._next_k()
+        if self.k is None:
+            self.done = True
+
+    def _next_k(self) -> Optional[int]:
+        if self._passing is None:
+            self.reason = f"the high end k = {self.high} does not reach the target: widen the range"
+            return None
+        if self._failing is None:
+            if self.low == self.high or self._passing == self.low:
+                return self._finish(self._passing, f"the low end k = {self.low} passes: a smaller k may be safe too")
+            return self.low
+        if self._passing - self._failing <= 1:
+            return self._finish(self._passing, "")
+        return (self._passing + self._failing) // 2
+
+    def _finish(self, k: int, reason: str) -> None:
+        self.safe_k, self.reason = k, reason
+        return None
+
+    @property
+    def trials_read(self) -> int:
+        return sum(step.trials for step in self.steps)
+
+
+def trace_lines(search: KSearch, target_text: str) -> list[str]:
+    """Human-readable trace: one line per tested k, then the verdict with its assumption."""
+    lines = [f"  {'k':>6} {'trials':>7} {'successes':>9}  {'lower':>6} {'upper':>6}  verdict"]
+    for step in sorted(search.steps, key=lambda step: step.k):
+        lines.append(f"  {step.k:>6} {step.trials:>7} {step.successes:>9}  {step.lower:>6.3f} {step.upper:>6.3f}  {step.verdict}")
+    looks = max_looks(search.low, search.high)
+    if search.safe_k is None:
+        verdict = f"no safe k in [{search.low}, {search.high}]: {search.reason}" if search.done else "search not finished"
+    else:
+        verdict = f"safe k = {search.safe_k}: {target_text} at confidence {search.confidence:g}"
+        verdict += f" ({search.reason})" if search.reason else ""
+    lines.append(f"  {verdict}")
+    lines.append(f"  bounds: per k, a beta-binomial confidence sequence at {1 - search.alpha / 2:.4g} and a last "
+                 f"Clopper–Pearson look at the cap at {1 - search.alpha / 2:.4g} (Bonferroni over at most {looks} k values); "
+                 f"{MONOTONE}")
+    return lines

@@ -1,0 +1,317 @@
+"""The k search: spec forms, the sequential test's stated confidence, and the search on the engine.
+
+Statistical checks simulate Bernoulli trials with fixed seeds; their tolerances are binomial
+quantiles (scipy.stats.binom) at a one-in-a-thousand level, never tuned to the observed counts.
+The confidence-sequence guarantee itself is Ville's inequality for the beta-binomial mixture
+martingale (Howard, Ramdas, McAuliffe & Sekhon 2021, Ann. Statist. 49(2), section 3); the
+inflation of repeated fixed-n Clopper–Pearson looks is the classic optional-stopping effect
+(Armitage, McPherson & Rowe 1969, J. R. Stat. Soc. A 132(2)), used here to show the check can fail.
+"""
+
+from __future__ import annotations
+
+import json
+import sqlite3
+import textwrap
+
+import numpy as np
+import pytest
+from scipy import stats
+from scipy.special import betaln
+
+from engine_helpers import search_verdicts as _verdicts
+from engine_helpers import trial_ids as _trial_ids
+from engine_helpers import write_search_spec as _spec
+
+from calib.cli import main
+from calib.errors import InputError
+from calib.sweep.runner import run_campaign
+from calib.sweep.search import PRIOR_STRENGTH, KSearch, confidence_sequence, decide, max_looks
+from calib.sweep.spec import SpecError, load_spec, parse_spec
+
+BASE = {"campaign": {"name": "s", "root_seed": 3, "replicates": 5},
+        "families": [{"name": "lp-planted", "sizes": [{"rows": 12, "cols": 24}]}],
+        "sweep": {"projectors": ["gaussian"], "k": {"search": {"low": 1, "high": 12}}},
+        "target": {"preset": "bound", "tolerance": 1e-6}}
+
+
+def _raw(**changes) -> dict:
+    raw = {key: dict(value) if isinstance(value, dict) else list(value) for key, value in BASE.items()}
+    for path, value in changes.items():
+        table, key = path.split("__")
+        if value is None:
+            raw[table].pop(key, None)
+        else:
+            raw[table][key] = value
+    return raw
+
+
+# ----- spec ---------------------------------------------------------------------------------
+
+def test_search_forms_parse():
+    spec = parse_spec(_raw())
+    assert spec.k_grid.is_search and spec.k_grid.values == (1, 12)
+    assert spec.target.rate == pytest.approx(0.9) and spec.target.predicate.gap == 1e-6
+    spec = parse_spec(_raw(sweep__k={"search": {"low_fraction": 0.1, "high_fraction": 0.5}}))
+    assert spec.k_grid.mode == "search-fractions"
+
+
+@pytest.mark.parametrize("changes, path", [
+    ({"sweep__k": {"search": {"low": 5, "high": 5}}}, "sweep.k.search"),
+    ({"sweep__k": {"search": {"low": 0, "high": 5}}}, "sweep.k.search.low"),
+    ({"sweep__k": {"search": {"low": 2.5, "high": 5}}}, "sweep.k.search.low"),
+    ({"sweep__k": {"search": {"low_fraction": 0.5, "high_fraction": 1.5}}}, "sweep.k.search.high_fraction"),
+    ({"sweep__k": {"search": {"low": 1}}}, "sweep.k.search"),
+    ({"sweep__k": {"search": {"low": 20, "high": 30}}}, "families[0].sizes[0]"),  # above m = 12
+    ({"target__delta": 1.5}, "target.delta"),
+    ({"target__confidence": 0}, "target.confidence"),
+    ({"target__preset": "nope"}, "target.preset"),
+    ({"target__tolerance": -1}, "target.tolerance"),
+    ({"target__extra": 1}, "target.extra"),
+    ({"target__preset": "distortion", "target__tolerance": None}, "target.preset"),  # decides nothing on an LP
+])
+def test_bad_search_specs_name_the_field(changes, path):
+    with pytest.raises(SpecError) as error:
+        parse_spec(_raw(**changes))
+    assert path in str(error.value)
+
+
+def test_search_needs_target_and_target_needs_search():
+    raw = _raw()
+    del raw["target"]
+    with pytest.raises(SpecError, match="target: missing table"):
+        parse_spec(raw)
+    with pytest.raises(SpecError, match="only a k search reads"):
+        parse_spec(_raw(sweep__k=[2, 4]))
+
+
+def test_bad_search_spec_exits_2_with_one_line(tmp_path, capsys):
+    spec = tmp_path / "bad.toml"
+    spec.write_text(textwrap.dedent("""
+        [campaign]
+        name = "bad"
+        root_seed = 1
+        [[families]]
+        name = "lp-planted"
+        sizes = [{rows = 12, cols = 24}]
+        [sweep]
+        projectors = ["gaussian"]
+        k = {search = {low = 8, high = 4}}
+    """))
+    assert main(["run", str(spec), "--out", str(tmp_path)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "sweep.k.search" in err[0] and "target" in err[0] and "Traceback" not in err[0]
+
+
+# ----- the sequential test ------------------------------------------------------------------
+
+def _log_mixture(successes, trials, p, rate):
+    a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1 - rate)
+    return betaln(a + successes, b + trials - successes) - betaln(a, b) - successes * np.log(p) - (trials - successes) * np.log1p(-p)
+
+
+def test_mixture_matches_a_direct_integral():
+    # M_n(p) is the Beta(a, b) average of q^s (1 - q)^(n - s) over p^s (1 - p)^(n - s)  (its definition)
+    from scipy.integrate import quad
+
+    a, b = PRIOR_STRENGTH * 0.9, PRIOR_STRENGTH * 0.1
+    integral, _ = quad(lambda q: q ** 18 * (1 - q) ** 2 * stats.beta.pdf(q, a, b), 0, 1)
+    assert np.exp(_log_mixture(18, 20, 0.8, 0.9)) == pytest.approx(integral / (0.8 ** 18 * 0.2 ** 2), rel=1e-8)
+
+
+def _false_passes(p: float, rate: float, alpha: float, cap: int, runs: int, seed: int, rule: str) -> int:
+    """Runs (of ``runs``) whose repeated looks ever declared p >= rate, with p below or at ``rate``."""
+    rng = np.random.default_rng([seed, 13])
+    outcomes = rng.random((runs, cap)) < p
+    successes = np.cumsum(outcomes, axis=1)
+    trials = np.arange(1, cap + 1)
+    if rule == "sequence":
+        passing = (_log_mixture(successes, trials, rate, rate) >= np.log(1 / alpha)) & (successes > rate * trials)
+    else:  # a fixed-n one-sided Clopper–Pearson lower bound at every look
+        lower = stats.beta.ppf(alpha, successes, trials - successes + 1)
+        passing = np.nan_to_num(lower) >= rate
+    return int(passing.any(axis=1).sum())
+
+
+def test_anytime_false_pass_rate_holds_at_the_boundary_where_repeated_cp_looks_do_not():
+    runs, alpha, rate, cap = 2000, 0.05, 0.9, 400
+    limit = stats.binom.ppf(0.999, runs, alpha)  # the count allowed if the true rate is alpha
+    sequence = _false_passes(rate, rate, alpha, cap, runs, seed=1, rule="sequence")
+    assert sequence <= limit
+    repeated = _false_passes(rate, rate, alpha, cap, runs, seed=1, rule="clopper-pearson")
+    assert repeated > limit  # the same data looked at 400 times with fixed-n bounds breaks the level
+
+
+def _simulate(curve: dict, low: int, high: int, rate: float, confidence: float, cap: int, rng,
+              all_at_once: bool = False) -> KSearch:
+    """A search fed Bernoulli(curve[k]) outcomes: what it demands, or (same decisions) the whole cap at once."""
+    search = KSearch(low, high, rate, confidence, cap)
+    drawn: dict[int, list] = {}
+    while (demand := search.demand()) is not None:
+        k, count = demand
+        count = cap if all_at_once else count
+        have = drawn.setdefault(k, [])
+        have += list(rng.random(count - len(have)) < curve[k]) if count > len(have) else []
+        search.offer(have[:count])
+    return search
+
+
+def test_the_stated_confidence_holds_over_many_searches():
+    # an adversarial curve: just below the target up to k = 11, then safe (p = 0.97)
+    low, high, rate, confidence, cap = 1, 40, 0.9, 0.8, 300
+    curve = {k: (0.88 if k < 12 else 0.97) for k in range(low, high + 1)}
+    rng = np.random.default_rng([20261202, 1])
+    runs = 300
+    searches = [_simulate(curve, low, high, rate, confidence, cap, rng, all_at_once=True) for _ in range(runs)]
+    wrong = sum(s.safe_k is not None and curve[s.safe_k] < rate for s in searches)
+    assert wrong <= stats.binom.ppf(0.999, runs, 1 - confidence)
+    found = sum(s.safe_k == 12 for s in searches)
+    assert found >= runs // 2  # the search has power: p = 0.97 passes, p = 0.88 mostly fails within 300 trials
+    assert all(len(s.steps) <= max_looks(low, high) for s in searches)
+
+
+def test_a_sharp_curve_gives_the_exact_k_with_few_trials():
+    curve = {k: (0.0 if k < 23 else 1.0) for k in range(1, 101)}
+    search = _simulate(curve, 1, 100, 0.9, 0.95, 1000, np.random.default_rng([5, 2]))
+    whole = _simulate(curve, 1, 100, 0.9, 0.95, 1000, np.random.default_rng([5, 2]), all_at_once=True)
+    assert [(s.k, s.trials, s.verdict) for s in search.steps] == [(s.k, s.trials, s.verdict) for s in whole.steps]
+    assert search.safe_k == 23
+    assert search.trials_read < 600  # 9 k values; a failing k stops after a handful of trials
+    assert {step.verdict for step in search.steps if step.k < 23} == {"fail"}
+
+
+def test_high_end_failing_gives_no_claim():
+    search = _simulate({k: 0.5 for k in range(1, 9)}, 1, 8, 0.9, 0.95, 200, np.random.default_rng([5, 3]))
+    assert search.safe_k is None and "high end" in search.reason and len(search.steps) == 1
+
+
+def test_decisions_and_bounds_agree():
+    alpha = 0.05 / 7
+    for successes, trials in [(64, 64), (0, 6), (50, 60), (59, 60)]:
+        verdict = decide(successes, trials, 0.9, alpha)
+        low, high = confidence_sequence(successes, trials, 0.9, alpha)
+        assert (verdict == "pass") == (low > 0.9 - 1e-9) and (verdict == "fail") == (high < 0.9 + 1e-9)
+
+
+# ----- on the engine ------------------------------------------------------------------------
+
+def test_search_runs_then_a_grid_reuses_every_search_trial(tmp_path, capsys):
+    spec = _spec(tmp_path)
+    first = run_campaign(load_spec(spec), tmp_path / "out", inline=True)
+    (cell,) = first.searches
+    assert cell.search.safe_k == 3  # rank-3 rows: k >= 3 keeps the LP exactly, smaller k cannot (see test_lp_core)
+    assert first.ran == first.planned == len(_trial_ids(first.store_path)) and first.skipped == 0
+    searched = _trial_ids(first.store_path)
+    again = run_campaign(load_spec(spec), tmp_path / "out", inline=True)
+    assert again.ran == 0 and _verdicts(again) == _verdicts(first)  # replayed from the store
+    capsys.readouterr()
+    assert main(["tables", str(first.store_path), "--tau", "1e-6"]) == 0  # the table shows the tested k
+    text = capsys.readouterr().out
+    listed = {int(line.split("=")[1].split()[0]) for line in text.splitlines() if line.startswith("   k=")}
+    assert listed == {step.k for step in cell.search.steps}
+    assert "safe k = 3: success rate >= 0.7" in text and "bisection assumes" in text and "not a proof" in text
+
+    # the same campaign grown into a grid: every search trial inside the grid is reused, in the same store
+    grid = _spec(tmp_path, k="[1, 2, 3, 6, 12]", target="")
+    grown = run_campaign(load_spec(grid), tmp_path / "out", inline=True)
+    assert grown.store_path == first.store_path
+    assert grown.planned == 5 * 2 * 20 and grown.skipped + grown.ran == grown.planned
+    assert grown.skipped == len(searched) and searched <= _trial_ids(grown.store_path)
+
+
+def test_a_search_after_a_grid_starts_from_what_is_stored(tmp_path):
+    grid = run_campaign(load_spec(_spec(tmp_path, k="[1, 2, 3, 6, 12]", target="")), tmp_path / "a", inline=True)
+    after = run_campaign(load_spec(_spec(tmp_path)), tmp_path / "a", inline=True)
+    fresh = run_campaign(load_spec(_spec(tmp_path)), tmp_path / "b", inline=True)
+    assert _verdicts(after) == _verdicts(fresh)  # same trials, same outcomes, same decisions
+    assert after.skipped > 0 and after.ran == fresh.ran - after.skipped
+    assert grid.ran + after.ran == len(_trial_ids(after.store_path))
+
+
+def test_growing_replicates_reuses_the_stored_trials(tmp_path):
+    grid = "[2, 4]"
+    small = run_campaign(load_spec(_spec(tmp_path, replicates=6, k=grid, target="")), tmp_path / "out", inline=True)
+    before = _trial_ids(small.store_path)
+    grown = run_campaign(load_spec(_spec(tmp_path, replicates=15, k=grid, target="")), tmp_path / "out", inline=True)
+    assert grown.store_path == small.store_path and len(before) == 2 * 2 * 6
+    assert grown.skipped == len(before) and grown.ran == 2 * 2 * 15 - len(before)
+    with sqlite3.connect(grown.store_path) as db:
+        meta = dict(db.execute("SELECT key, value FROM campaign"))
+    assert '"replicates":15' in meta["spec"] and len(json.loads(meta["grown_from"])) == 1
+
+
+def test_a_change_that_alters_stored_trials_is_refused(tmp_path, capsys):
+    spec = _spec(tmp_path, replicates=2, k="[2]", target="")
+    assert main(["run", str(spec), "--out", str(tmp_path / "out"), "--quiet", "--in-process"]) == 0
+    store = tmp_path / "out" / "srch.sqlite"
+    before = store.read_bytes()
+    spec.write_text(spec.read_text().replace("root_seed = 77", "root_seed = 78"))
+    assert main(["run", str(spec), "--out", str(tmp_path / "out"), "--quiet"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "campaign.root_seed changes from 77 to 78" in err[0] and "--new-campaign" in err[0]
+    spec.write_text(spec.read_text().replace("root_seed = 78", "root_seed = 77") + "\n[solver]\ntime_limit_s = 5\n")
+    assert main(["run", str(spec), "--out", str(tmp_path / "out"), "--quiet"]) == 2
+    assert "[solver] changes" in capsys.readouterr().err
+    assert store.read_bytes() == before
+
+
+def test_added_retrieval_runs_only_for_the_missing_rows(tmp_path):
+    base = _spec(tmp_path, replicates=2, k="[3]", target="")
+    first = run_campaign(load_spec(base), tmp_path / "out", inline=True)
+    grown_text = base.read_text().replace('k = [3]', 'k = [3]\nretrievals = ["basis-lstsq", "alternating"]')
+    base.write_text(grown_text)
+    grown = run_campaign(load_spec(base), tmp_path / "out", inline=True)
+    with sqlite3.connect(grown.store_path) as db:
+        rows = db.execute("SELECT retrieval, COUNT(*) FROM trials GROUP BY retrieval").fetchall()
+    assert dict(rows) == {"basis-lstsq": first.ran, "alternating": first.ran} and grown.ran == first.ran
+
+
+def test_search_target_predicate_is_the_table_predicate():
+    # the run-time rule is calib.analysis.success.make_predicate with the [target] tolerance
+    from calib.analysis.success import make_predicate, with_tau
+
+    spec = parse_spec(_raw())
+    assert spec.target.predicate == with_tau(make_predicate("bound"), 1e-6)
+    with pytest.raises(InputError):
+        make_predicate("nope")
+
+
+@pytest.fixture(scope="module")
+def search_reference(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("search-reference")
+    return run_campaign(load_spec(_spec(folder)), folder / "out", inline=True)
+
+
+@pytest.mark.parametrize("mode, count", [("mid-trial-transaction", 9), ("after-trial-commit", 20)])
+def test_kill9_during_a_search_then_resume_loses_and_duplicates_nothing(tmp_path, search_reference, mode, count):
+    import os
+    import signal
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    driver = Path(__file__).with_name("engine_kill_driver.py")
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([str(Path(__file__).resolve().parents[1]), str(driver.parent)])}
+    spec = _spec(tmp_path)
+    reference = search_reference
+    out = tmp_path / "out"
+    done = subprocess.run([sys.executable, str(driver), mode, str(count), "run", str(spec), "--out", str(out),
+                           "--workers", "2", "--quiet"], env=env, capture_output=True, text=True, timeout=120)
+    assert done.returncode == -signal.SIGKILL, done.stderr
+    store = out / "srch.sqlite"
+    with sqlite3.connect(store) as db:
+        stored = db.execute("SELECT COUNT(*) FROM trials").fetchone()[0]
+    assert stored < reference.ran
+    resumed = run_campaign(load_spec(spec), out, workers=2)
+    assert _verdicts(resumed) == _verdicts(reference)
+    assert resumed.skipped == stored and resumed.skipped + resumed.ran == reference.ran
+    with sqlite3.connect(store) as db:
+        rows, distinct = db.execute("SELECT COUNT(*), COUNT(DISTINCT trial_id) FROM trials").fetchone()
+    assert rows == distinct == reference.ran and _trial_ids(store) == _trial_ids(reference.store_path)
+
+
+def test_the_example_search_spec_reads():
+    from pathlib import Path
+
+    spec = load_spec(Path(__file__).resolve().parents[1] / "instances" / "quickstart-search.toml")
+    assert spec.k_grid.is_search and spec.target.rate == pytest.approx(0.9)
