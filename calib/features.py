@@ -74,14 +74,13 @@ SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _po
 
 
 def spectral_norm(matrix) -> float:
-    """‖M‖₂: exact for dense M, ARPACK's largest singular value for sparse M."""
-    if sp.issparse(matrix):
-        from scipy.sparse.linalg import svds
+    """‖M‖₂: ARPACK's largest singular value for sparse or dense M (a few products with M and Mᵀ,
+    never a full SVD), exact for M with fewer than 3 rows or columns."""
+    if min(matrix.shape) < 3:
+        return float(np.linalg.norm(matrix.toarray() if sp.issparse(matrix) else matrix, 2))
+    from scipy.sparse.linalg import svds
 
-        if min(matrix.shape) < 3:
-            return float(np.linalg.norm(matrix.toarray(), 2))
-        return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
-    return float(np.linalg.norm(matrix, 2))
+    return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
 
 
 def matrix_features(matrix) -> dict:
