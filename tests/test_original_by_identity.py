@@ -17,7 +17,7 @@ from engine_helpers import write_spec
 
 from calib.sweep import sandbox, tasks
 from calib.sweep.runner import run_campaign
-from calib.sweep.spec import load_spec
+from calib.sweep.spec import ProjectorChoice, load_spec
 from calib.sweep.tasks import ORIGINAL_CACHE_SIZE, HeldOriginals, TrialTask, remember_original
 from calib.sweep.trial import InstanceRef, Trial
 
@@ -25,7 +25,7 @@ from calib.sweep.trial import InstanceRef, Trial
 def _task(instance: int, x_size: int = 1000) -> TrialTask:
     ref = InstanceRef("lp-planted", {"rows": 20, "cols": 40}, instance, 7)
     original = {"orig_x": np.full(x_size, float(instance))}
-    return TrialTask(Trial(ref, None, 4, 0, "4"), ("basis-lstsq",), {}, original)
+    return TrialTask(Trial(ref, ProjectorChoice("gaussian"), 4, 0, "4"), ("basis-lstsq",), {}, original)
 
 
 def test_mirror_and_worker_cache_agree_on_any_order(monkeypatch):
@@ -68,3 +68,35 @@ def test_the_pool_sends_each_original_once_per_worker(tmp_path, monkeypatch):
             carried += task.original is not None
             recent = ([task.instance_id] + [key for key in recent if key != task.instance_id])[:ORIGINAL_CACHE_SIZE]
     assert carried <= 2 * 6  # at most once per (worker, instance) here: trials run in instance order
+
+
+def test_dask_sends_each_original_to_the_cluster_once():
+    """With a stand-in client: the first trial of an instance submits its original as a task of its
+    own; every trial task is submitted without it and depends on that task's future."""
+    from collections import OrderedDict
+
+    from calib.sweep import executors
+
+    class Future:
+        def __init__(self, key):
+            self.key = key
+
+    class Client:
+        def __init__(self):
+            self.calls = []
+
+        def submit(self, function, *args, **options):
+            self.calls.append((function, args))
+            return Future(f"f{len(self.calls)}")
+
+    dask = executors.DaskExecutor.__new__(executors.DaskExecutor)
+    dask.client, dask._originals, dask._tokens = Client(), OrderedDict(), {}
+    dask._completed = set()
+    for instance in (1, 1, 2, 1, 2):
+        task = _task(instance)
+        dask.submit(task.token, task, 10.0)
+    held = [args for function, args in dask.client.calls if function is executors._held]
+    trials = [args for function, args in dask.client.calls if function is executors.run_in_sandbox]
+    assert [args[0]["orig_x"][0] for args in held] == [1.0, 2.0]
+    assert len(trials) == 5 and all(args[0].original is None for args in trials)
+    assert len({args[2].key for args in trials}) == 2  # one original future per instance
