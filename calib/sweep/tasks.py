@@ -13,7 +13,7 @@ process receives it once, with the first trial of that instance it runs, and kee
 :data:`ORIGINAL_CACHE_SIZE` of them; later tasks travel with ``original = None``
 (:meth:`TrialTask.without_original`). The sending side mirrors that cache exactly
 (:class:`HeldOriginals`), because a worker runs its tasks one at a time and in the order sent. At
-10^5 observations the original's ``x`` alone is 0.8 MB, pickled again for every trial otherwise.
+10^5 observations the original's ``x`` alone (2 · 10^5 columns) is 1.6 MB, pickled again for every trial otherwise.
 """
 
 from __future__ import annotations
