@@ -221,9 +221,9 @@ def _ratio_quartiles(a: pd.Series, b: pd.Series) -> dict:
 
 
 def end_to_end_seconds(rows: pd.DataFrame) -> pd.Series:
-    """Per row: sketch + projected solve + retrieval seconds (NaN when the sketch time is missing)."""
-    parts = rows[["t_solve_proj", "t_retrieve"]].apply(pd.to_numeric, errors="coerce").fillna(0.0)
-    return pd.to_numeric(rows["t_sketch"], errors="coerce") + parts.sum(axis=1)
+    """Per row: the stored end-to-end time ``t_total`` (sketch + projected solve + retrieval, repairs and
+    warm solves included; :mod:`calib.metrics`), NaN where it is missing."""
+    return pd.to_numeric(rows["t_total"], errors="coerce")
 
 
 def cost(matched: pd.DataFrame) -> dict:

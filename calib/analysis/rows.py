@@ -47,7 +47,7 @@ def load_rows(store: Store) -> pd.DataFrame:
     try:
         trials = pd.read_sql_query("SELECT * FROM trials ORDER BY trial_id, retrieval", db)
         stored = {row[1] for row in db.execute("PRAGMA table_info(instances)")}
-        features = "features" if "features" in stored else "NULL AS features"  # read-only stores before format 3
+        features = "features" if "features" in stored else "NULL AS features"  # read-only stores before format 4
         instances = pd.read_sql_query(
             f"SELECT instance_id, family, params, idx, kind, projected_dim, n_points, orig_seconds, {features} FROM instances", db)
     except (pd.errors.DatabaseError, ValueError) as error:
