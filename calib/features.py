@@ -25,13 +25,17 @@ related to structure:
   Math. 9, 2009, Definition 1.2). A coherent M needs more rows kept by a sampling sketch, and its
   subspace is what a subspace embedding must preserve.
 
+The features are computed once per instance, when its original is solved, and stored as JSON in the
+``features`` column of the store's instances table; a table entry carries the median of each
+feature over the cell's instances (:func:`median_features`).
+
 ``rank`` and ``row_coherence`` need a thin SVD, O(m N min(m, N)) flops: computed when that is at most
 :data:`SVD_FLOPS` (a few seconds on one core), else None with the reason in ``skipped``.
 """
 
 from __future__ import annotations
 
-from typing import Callable
+from typing import Callable, Optional
 
 import numpy as np
 import scipy.sparse as sp
@@ -70,14 +74,13 @@ SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _po
 
 
 def spectral_norm(matrix) -> float:
-    """‖M‖₂: exact for dense M, ARPACK's largest singular value for sparse M."""
-    if sp.issparse(matrix):
-        from scipy.sparse.linalg import svds
+    """‖M‖₂: ARPACK's largest singular value for sparse or dense M (a few products with M and Mᵀ,
+    never a full SVD), exact for M with fewer than 3 rows or columns."""
+    if min(matrix.shape) < 3:
+        return float(np.linalg.norm(matrix.toarray() if sp.issparse(matrix) else matrix, 2))
+    from scipy.sparse.linalg import svds
 
-        if min(matrix.shape) < 3:
-            return float(np.linalg.norm(matrix.toarray(), 2))
-        return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
-    return float(np.linalg.norm(matrix, 2))
+    return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
 
 
 def matrix_features(matrix) -> dict:
@@ -109,3 +112,36 @@ def matrix_features(matrix) -> dict:
 def instance_features(kind: str, problem) -> dict:
     """The features of an instance's sketched matrix (module docstring)."""
     return matrix_features(SKETCHED[kind](problem))
+
+
+#: the numeric features a table entry summarises (median over the cell's instances)
+NUMERIC = ("rows", "cols", "nonzeros", "rank", "stable_rank", "row_coherence")
+
+
+def median_features(records: list[Optional[dict]]) -> Optional[dict]:
+    """Per feature, the median over the instances that have it (None when none has); ``instances``
+    counts the instances with stored features. None when no instance has any (stores written
+    before features were recorded).
+
+    >>> median_features([{"rows": 10, "rank": 3, "stable_rank": 1.5}, {"rows": 10, "rank": 4, "stable_rank": 2.5}, None])
+    {'rows': 10.0, 'cols': None, 'nonzeros': None, 'rank': 3.5, 'stable_rank': 2.0, 'row_coherence': None, 'instances': 2}
+    """
+    present = [record for record in records if record]
+    if not present:
+        return None
+    medians: dict = {}
+    for name in NUMERIC:
+        values = [record[name] for record in present if record.get(name) is not None]
+        medians[name] = float(np.median(values)) if values else None
+    return medians | {"instances": len(present)}
+
+
+def stored_features(kind: str, problem) -> str:
+    """The JSON text stored for an instance: its features, or the reason they are missing."""
+    import json
+
+    try:
+        record = instance_features(kind, problem)
+    except Exception as error:  # features are descriptive: their failure must not lose the original
+        record = {"skipped": f"{type(error).__name__}: {error}".replace("\n", " ")}
+    return json.dumps(record, sort_keys=True)

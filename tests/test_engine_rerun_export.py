@@ -19,6 +19,7 @@ from engine_helpers import table_bytes, write_spec
 from calib.cli import main
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
+from calib.sweep.store import STORE_FORMAT
 
 
 @pytest.fixture(scope="module")
@@ -124,7 +125,7 @@ def test_a_format_1_store_is_migrated_and_resumed(campaign, tmp_path):
     summary = run_campaign(load_spec(spec_path), old.parent, inline=True)
     assert (summary.skipped, summary.ran) == (30, 30)
     with sqlite3.connect(old) as db:
-        assert db.execute("SELECT value FROM campaign WHERE key = 'store_format'").fetchone()[0] == "3"
+        assert db.execute("SELECT value FROM campaign WHERE key = 'store_format'").fetchone()[0] == str(STORE_FORMAT)
         assert db.execute("SELECT COUNT(*) FROM instances WHERE baseline_seconds IS NULL").fetchone()[0] > 0
         nulls = db.execute("SELECT COUNT(*) FROM trials WHERE root_seed IS NULL").fetchone()[0]
         old_trial = db.execute("SELECT trial_id FROM trials WHERE root_seed IS NULL LIMIT 1").fetchone()[0]

@@ -57,3 +57,77 @@ def test_every_kind_has_a_sketched_matrix_whose_rows_are_its_projected_dimension
     got = instance_features(kind, built.problem)
     assert got["rows"] == rows == HANDLERS[kind].projected_dim(built.problem)
     assert got["rank"] >= 1 and got["stable_rank"] <= got["rank"] + 1e-9
+
+
+def test_a_campaign_stores_features_once_per_instance_and_the_table_carries_their_median(tmp_path):
+    """References: numpy's matrix_rank and norms of [A b] per instance, numpy's median per cell."""
+    import json
+    import sqlite3
+
+    from engine_helpers import write_spec
+
+    from calib.analysis.success import make_predicate
+    from calib.analysis.tables import Confidence, build_table, table_to_frame
+    from calib.sweep.runner import run_campaign
+    from calib.sweep.spec import load_spec
+    from calib.sweep.store import Store
+    from calib.sweep.trial import instance_refs
+
+    spec = load_spec(write_spec(tmp_path, replicates=1))
+    summary = run_campaign(spec, tmp_path / "out", inline=True)
+    with sqlite3.connect(summary.store_path) as db:
+        stored = dict(db.execute("SELECT instance_id, features FROM instances").fetchall())
+    assert len(stored) == 6
+    by_size: dict = {}
+    for ref, _, _ in instance_refs(spec):
+        problem = ref.build().problem
+        A = problem.A.toarray() if sp.issparse(problem.A) else np.asarray(problem.A)
+        sketched = np.column_stack([A, problem.b])
+        record = json.loads(stored[ref.instance_id])
+        singular = np.linalg.svd(sketched, compute_uv=False)
+        assert record["rank"] == np.linalg.matrix_rank(sketched)
+        assert record["stable_rank"] == pytest.approx(np.sum(singular ** 2) / singular[0] ** 2, abs=1e-6)
+        by_size.setdefault((ref.family, ref.params["rows"]), []).append(record)
+    store = Store.open_existing(summary.store_path)
+    try:
+        table = build_table(store, make_predicate("bound"), Confidence())
+    finally:
+        store.close()
+    entries = table["analyses"][0]["entries"]
+    assert entries
+    for entry in entries:
+        records = by_size[(entry["family"], entry["params"]["rows"])]
+        assert entry["features"]["instances"] == len(records) == 2
+        assert entry["features"]["rows"] == entry["projected_dim"]
+        assert entry["features"]["stable_rank"] == pytest.approx(np.median([r["stable_rank"] for r in records]), rel=1e-5)
+        assert entry["features"]["rank"] == pytest.approx(np.median([r["rank"] for r in records]))
+    frame = table_to_frame(table)
+    assert (frame["features_rows"] == frame["projected_dim"]).all()
+
+
+def test_a_store_without_features_gives_entries_without_them_and_migrates_on_resume(tmp_path):
+    import sqlite3
+
+    from engine_helpers import write_spec
+
+    from calib.analysis.success import make_predicate
+    from calib.analysis.tables import Confidence, build_table
+    from calib.sweep.runner import run_campaign
+    from calib.sweep.spec import load_spec
+    from calib.sweep.store import STORE_FORMAT, Store
+
+    spec_path = write_spec(tmp_path, replicates=1)
+    summary = run_campaign(load_spec(spec_path), tmp_path / "out", inline=True)
+    with sqlite3.connect(summary.store_path) as db:  # the layout before features were stored
+        db.execute("ALTER TABLE instances DROP COLUMN features")
+        db.execute("UPDATE campaign SET value = ? WHERE key = 'store_format'", (str(STORE_FORMAT - 1),))
+    store = Store.open_existing(summary.store_path)
+    try:
+        table = build_table(store, make_predicate("bound"), Confidence())
+    finally:
+        store.close()
+    assert all(entry["features"] is None for entry in table["analyses"][0]["entries"])
+    run_campaign(load_spec(spec_path), tmp_path / "out", inline=True)  # resume: nothing to run, migrates
+    with sqlite3.connect(summary.store_path) as db:
+        assert "features" in {row[1] for row in db.execute("PRAGMA table_info(instances)")}
+        assert db.execute("SELECT value FROM campaign WHERE key = 'store_format'").fetchone()[0] == str(STORE_FORMAT)

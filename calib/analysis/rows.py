@@ -46,8 +46,10 @@ def load_rows(store: Store) -> pd.DataFrame:
     db = store.db
     try:
         trials = pd.read_sql_query("SELECT * FROM trials ORDER BY trial_id, retrieval", db)
+        stored = {row[1] for row in db.execute("PRAGMA table_info(instances)")}
+        features = "features" if "features" in stored else "NULL AS features"  # read-only stores before format 4
         instances = pd.read_sql_query(
-            "SELECT instance_id, family, params, idx, kind, projected_dim, n_points, orig_seconds FROM instances", db)
+            f"SELECT instance_id, family, params, idx, kind, projected_dim, n_points, orig_seconds, {features} FROM instances", db)
     except (pd.errors.DatabaseError, ValueError) as error:
         raise InputError(str(store.path), f"cannot read the trial rows: {error}", DAMAGED_FIX) from None
     rows = trials.merge(instances, on="instance_id", how="left", validate="many_to_one")

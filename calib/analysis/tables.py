@@ -51,6 +51,7 @@ from calib.analysis import policy as policy_answer
 from calib.analysis.cells import ALL_PASS, CellStats, cell_stats, instances_needed, safe_k_rule
 from calib.analysis.classrule import fraction_rule
 from calib.analysis.law import Law, fit_law
+from calib.features import NUMERIC, median_features
 from calib.analysis.logistic import LogisticFit
 from calib.analysis.rows import load_rows
 from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate, primary_tau, with_tau
@@ -222,7 +223,18 @@ def cell_entry(cell: pd.DataFrame, predicate: Predicate, confidence: Confidence,
         "transition": transition(stats.fit, confidence),
         "theory": _theory(first["kind"], n_points, stats.safe_k, stats.class_safe_k, predicate, eps, confidence.delta),
         "grid": _grid(stats, _per_k(kept), solver_by_k),
+        "features": cell_features(cell),
     } | policy_answer.entry_block(kept, confidence)
+
+
+def cell_features(cell: pd.DataFrame) -> Optional[dict]:
+    """Median instance features of the cell's instances (:func:`calib.features.median_features`),
+    rounded for stable JSON; None when the store holds none."""
+    if "features" not in cell:
+        return None
+    stored = cell.drop_duplicates("instance_id")["features"]
+    summary = median_features([json.loads(text) if isinstance(text, str) else None for text in stored])
+    return None if summary is None else {name: value if name == "instances" else num(value) for name, value in summary.items()}
 
 
 # ----- per class: laws ----------------------------------------------------------------------
@@ -455,6 +467,8 @@ def table_to_frame(table: dict) -> pd.DataFrame:
                      "law_a": law["a"], "law_C": law["C"], "error_metric": entry["error_metric"]}
             if "policy" in entry:
                 base["policy_k"] = entry["policy"]["k"]
+            features = entry.get("features") or {}
+            base |= {f"features_{name}": features.get(name) for name in NUMERIC}
             for point in entry["grid"]:
                 lines.append({**base, **point})
     frame = pd.DataFrame(lines)

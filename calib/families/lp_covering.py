@@ -39,11 +39,15 @@ def _nutrients(rows: int, cols: int, density: float, rng: np.random.Generator) -
 def _redundant_rows(core: sp.csr_array, core_req: np.ndarray, count: int, rng: np.random.Generator):
     """``count`` rows implied by the core rows: mixtures w >= 0 with requirement <= w^T r_core."""
     n_core = core.shape[0]
-    weights = np.zeros((count, n_core))
+    rows_of, cols_of, values = [], [], []  # the count x n_core mixing matrix, built sparse (MIX per row)
     for row in range(count):
         picked = rng.choice(n_core, size=min(MIX, n_core), replace=False)
-        weights[row, picked] = rng.uniform(0.2, 1.0, size=picked.size)
-    mixing = sp.csr_array(weights)
+        rows_of.append(np.full(picked.size, row))
+        cols_of.append(picked)
+        values.append(rng.uniform(0.2, 1.0, size=picked.size))
+    mixing = sp.csr_array((np.concatenate(values or [np.zeros(0)]),
+                           (np.concatenate(rows_of or [np.zeros(0, int)]), np.concatenate(cols_of or [np.zeros(0, int)]))),
+                          shape=(count, n_core))
     rows = (mixing @ core).tocsr()
     requirements = rng.uniform(0.8, 1.0, size=count) * (mixing @ core_req)
     return rows, requirements

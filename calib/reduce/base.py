@@ -137,7 +137,7 @@ class Handler:
         start = time.perf_counter()
         reduced = cls.reduce(problem, projector)
         t_sketch = projector.draw_seconds + (time.perf_counter() - start)
-        projected = cls.solve_reduced(reduced, solver, need_basis=bool(cls.basis_retrievals & set(names)))
+        projected = cls.solve_reduced(reduced, projected_solver(solver), need_basis=bool(cls.basis_retrievals & set(names)))
         obj_scale = cls.objective_scale(problem, original)
         common = solve_fields(original, projected, cls.bound, obj_scale)
         common.update(t_sketch=t_sketch, t_baseline=baseline["seconds"], proj_method=projected.method)
@@ -174,6 +174,28 @@ class Handler:
             if context.original.objective != 0.0:
                 values["obj_ratio"] = value / context.original.objective
         return values
+
+
+def projected_solver(solver: dict) -> dict:
+    """The solver table of a projected solve: the spec's ``projected_time_limit_s`` (seconds) in
+    place of ``time_limit_s`` and ``projected_max_iters`` as the iteration cap of every solver
+    (HiGHS simplex, interior point and QP; SCS ``max_iters``), when they are set. A projected
+    problem can be much harder for its solver than the original (an aggregated SDP has no slack
+    left); it stops at its own caps with status ``time_limit`` or ``iteration_limit``, which the
+    analysis counts as a failure. Retrievals keep the original's limits.
+
+    >>> projected_solver({"time_limit_s": 60.0, "projected_time_limit_s": 5.0, "projected_max_iters": 2000})["scs"]
+    {'max_iters': 2000}
+    """
+    out = dict(solver)
+    if solver.get("projected_time_limit_s") is not None:
+        out["time_limit_s"] = solver["projected_time_limit_s"]
+    cap = solver.get("projected_max_iters")
+    if cap is not None:
+        out["highs"] = {**(solver.get("highs") or {}), "simplex_iteration_limit": cap, "ipm_iteration_limit": cap,
+                        "qp_iteration_limit": cap}
+        out["scs"] = {**(solver.get("scs") or {}), "max_iters": cap}
+    return out
 
 
 class RowProjectionHandler(Handler):

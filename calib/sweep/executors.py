@@ -8,6 +8,8 @@
 - :class:`DaskExecutor`: an existing Dask scheduler; every Dask worker thread runs tasks in its own
   sandbox, so time limits and crashes behave as in the local pool. Results stream back in
   completion order; lost Dask workers are handled by Dask's rescheduling (tasks are idempotent).
+  An instance's original solve goes to the cluster once, as a small task of its own that returns it
+  (recomputed, like any task, if the worker holding it dies); trial tasks depend on its future.
 
 All three return ``Done(token, result)`` where ``result`` is the payload of
 :func:`calib.sweep.tasks.execute` or a :class:`~calib.sweep.tasks.Failure`.
@@ -21,12 +23,12 @@ import selectors
 import sys
 import threading
 import time
-from collections import deque
+from collections import OrderedDict, deque
 from dataclasses import dataclass
 from typing import Optional, Union
 
 from calib.errors import InputError
-from calib.sweep.tasks import Failure, Task, execute
+from calib.sweep.tasks import Failure, Task, TrialTask, execute
 
 
 @dataclass
@@ -157,9 +159,16 @@ def _start_failure(failure: Failure) -> InputError:
 _local = threading.local()
 
 
-def run_in_sandbox(task: Task, timeout: Optional[float]):
-    """Run ``task`` in this thread's sandbox (started on first use); used by Dask workers."""
+def run_in_sandbox(task: Task, timeout: Optional[float], original: Optional[dict] = None):
+    """Run ``task`` in this thread's sandbox (started on first use); used by Dask workers.
+
+    ``original`` is the trial's original solve when the task was shipped without it."""
+    from dataclasses import replace
+
     from calib.sweep.sandbox import Sandbox
+
+    if original is not None:
+        task = replace(task, original=original)
 
     box = getattr(_local, "sandbox", None)
     box = _local.sandbox = Sandbox() if box is None else box.renewed()
@@ -179,6 +188,15 @@ def check_scheduler_address(address: str) -> str:
     if not match or not 1 <= int(match["port"]) <= 65535:
         raise InputError("--scheduler", f"{address!r} is not a scheduler address", "write tcp://HOST:PORT, e.g. tcp://10.0.0.5:8786")
     return address
+
+
+#: originals the Dask coordinator keeps on the cluster for trials still to submit
+DASK_ORIGINALS = 16
+
+
+def _held(original: dict) -> dict:
+    """A Dask task that returns the original solve it was given (its cluster-side copy)."""
+    return original
 
 
 class DaskExecutor:
@@ -202,6 +220,7 @@ class DaskExecutor:
         self._tokens: dict = {}  # future key -> (token, future)
         self._slots_checked = 0.0
         self._slots = 4
+        self._originals: OrderedDict = OrderedDict()  # instance id -> future of its original
 
     @property
     def slots(self) -> int:
@@ -214,9 +233,26 @@ class DaskExecutor:
         return self._slots
 
     def submit(self, token: str, task: Task, timeout: Optional[float]) -> None:
-        future = self.client.submit(run_in_sandbox, task, timeout, key=f"calib-{token}", pure=False, retries=2)
+        extra = ()
+        if isinstance(task, TrialTask) and task.original is not None:
+            extra, task = (self._original_future(task),), task.without_original()
+        future = self.client.submit(run_in_sandbox, task, timeout, *extra, key=f"calib-{token}", pure=False, retries=2)
         self._tokens[future.key] = (token, future)
         self._completed.add(future)
+
+    def _original_future(self, task: TrialTask):
+        """The cluster's copy of ``task``'s original (sent with the first trial of its instance).
+
+        The coordinator keeps the futures of the last :data:`DASK_ORIGINALS` instances; an older one
+        is freed once the trials that depend on it are done."""
+        key = task.instance_id
+        future = self._originals.pop(key, None)
+        if future is None:
+            future = self.client.submit(_held, task.original, pure=False, retries=2)
+        self._originals[key] = future
+        while len(self._originals) > DASK_ORIGINALS:
+            self._originals.popitem(last=False)
+        return future
 
     def next_done(self) -> Done:
         from distributed import KilledWorker
@@ -236,4 +272,5 @@ class DaskExecutor:
         for _, future in self._tokens.values():
             future.cancel()
         self._tokens.clear()
+        self._originals.clear()
         self.client.close()

@@ -12,6 +12,9 @@ kills the child (SIGKILL) and starts a fresh one. A child that dies (segfault, a
 noticed by the end of its output pipe. A child whose parent dies exits by itself (EOF on stdin,
 and a watchdog thread that notices the re-parenting), so a coordinator killed with ``kill -9``
 leaves no orphans behind.
+
+Each sandbox mirrors the originals its child holds (:class:`~calib.sweep.tasks.HeldOriginals`), so
+an instance's original solve crosses the pipe once per child, with the first trial of that instance.
 """
 
 from __future__ import annotations
@@ -28,7 +31,7 @@ import tempfile
 import time
 from typing import Optional
 
-from calib.sweep.tasks import Failure
+from calib.sweep.tasks import Failure, HeldOriginals
 
 #: environment variables that pin numerical libraries to one thread (read when they load)
 SINGLE_THREAD_ENV = {name: "1" for name in (
@@ -173,6 +176,7 @@ class Sandbox:
         self.started = time.monotonic()
         self.deadline = self.started + STARTUP_TIMEOUT_S
         self.job: Optional[tuple] = None  # (token, timeout) of the running task
+        self.held = HeldOriginals()  # what this child keeps; a renewed sandbox starts empty
 
     def fileno(self) -> int:
         return self.process.stdout.fileno()
@@ -185,7 +189,7 @@ class Sandbox:
         self.started = time.monotonic()
         self.deadline = float("inf") if timeout is None else self.started + timeout
         try:
-            _write_message(self.process.stdin.fileno(), task)
+            _write_message(self.process.stdin.fileno(), self.held.prepare(task))
         except OSError:
             pass  # the child is gone: its closed stdout reports the death to the reader
 

@@ -485,7 +485,8 @@ def _parse_solver(value, errors: _Collector) -> dict:
     if not isinstance(value, dict):
         errors.add("solver", "must be a table", "write [solver] with time_limit_s = 60")
         return {"time_limit_s": 60.0, "trial_timeout_s": default_trial_timeout(60.0)}
-    errors.unknown_keys(value, {"time_limit_s", "trial_timeout_s", "highs", "scs", "methods", "projected"}, "solver")
+    errors.unknown_keys(value, {"time_limit_s", "trial_timeout_s", "highs", "scs", "methods", "projected",
+                                "projected_time_limit_s", "projected_max_iters"}, "solver")
     limit = _seconds(value, "time_limit_s", 60.0, errors) or 60.0
     timeout = _seconds(value, "trial_timeout_s", default_trial_timeout(limit), errors)
     solver = {"time_limit_s": limit, "trial_timeout_s": timeout or default_trial_timeout(limit)}
@@ -498,6 +499,7 @@ def _parse_solver(value, errors: _Collector) -> dict:
         if scs_settings:
             solver["scs"] = scs_settings
     _parse_methods(value, solver, errors)
+    _parse_projected_caps(value, solver, errors)
     return solver
 
 
@@ -536,6 +538,22 @@ def _parse_scs(value, errors: _Collector) -> dict:
         else:
             good[key] = kind(setting)
     return good
+
+
+def _parse_projected_caps(value: dict, solver: dict, errors: _Collector) -> None:
+    """``projected_time_limit_s`` (seconds) and ``projected_max_iters`` (iterations): the caps of a
+    projected solve (:func:`calib.reduce.base.projected_solver`); absent keys stay absent."""
+    if "projected_time_limit_s" in value:
+        seconds = _seconds(value, "projected_time_limit_s", None, errors)
+        if seconds:
+            solver["projected_time_limit_s"] = seconds
+    if "projected_max_iters" in value:
+        cap = value["projected_max_iters"]
+        if isinstance(cap, bool) or not isinstance(cap, int) or not 1 <= cap <= 10**9:
+            errors.add("solver.projected_max_iters", f"must be a whole number of iterations >= 1, got {cap!r}",
+                       "e.g. projected_max_iters = 5000")
+        else:
+            solver["projected_max_iters"] = cap
 
 
 def solver_settings(raw_solver) -> dict:

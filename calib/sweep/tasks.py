@@ -7,8 +7,13 @@ its own random stream, the trial draws from its own stream, so running a task tw
 re-run, another machine) gives the same numbers.
 
 Workers keep the last few built instances (:data:`INSTANCE_CACHE_SIZE`) so the trials of one
-instance do not rebuild it; the original solve travels with each trial task, taken from the store,
-so a fresh campaign and a resumed one use byte-identical originals.
+instance do not rebuild it. The original solve is taken from the store (so a fresh campaign and a
+resumed one use byte-identical originals) and referred to by its instance's identity: a worker
+process receives it once, with the first trial of that instance it runs, and keeps the last
+:data:`ORIGINAL_CACHE_SIZE` of them; later tasks travel with ``original = None``
+(:meth:`TrialTask.without_original`). The sending side mirrors that cache exactly
+(:class:`HeldOriginals`), because a worker runs its tasks one at a time and in the order sent. At
+10^5 observations the original's ``x`` alone (2 · 10^5 columns) is 1.6 MB, pickled again for every trial otherwise.
 """
 
 from __future__ import annotations
@@ -28,6 +33,9 @@ from calib.sweep.trial import InstanceRef, Trial
 #: built instances kept per worker process (most recently used)
 INSTANCE_CACHE_SIZE = 4
 
+#: original solves kept per worker process (most recently used), beside the instance cache
+ORIGINAL_CACHE_SIZE = INSTANCE_CACHE_SIZE
+
 #: statuses of a trial row: ran to the end, raised, exceeded trial_timeout_s, or killed its worker
 TRIAL_STATUSES = ("ok", "error", "timeout", "crashed")
 
@@ -37,6 +45,7 @@ ORIGINAL_FIELDS = ("orig_status", "orig_code", "orig_message", "orig_objective",
                    "orig_iterations", "solver_options", "orig_x", "baseline_method", "baseline_seconds", "methods")
 
 _instances: "OrderedDict[str, object]" = OrderedDict()
+_originals: "OrderedDict[str, dict]" = OrderedDict()
 
 
 @dataclass(frozen=True)
@@ -56,21 +65,55 @@ class OriginalTask:
 class TrialTask:
     """Run one trial against the stored original solve of its instance.
 
-    ``original`` holds the :data:`ORIGINAL_FIELDS` of the instance row (``orig_x`` as an array).
+    ``original`` holds the :data:`ORIGINAL_FIELDS` of the instance row (``orig_x`` as an array), or
+    None when the worker process running the task already holds it (sent with an earlier task).
     """
 
     trial: Trial
     retrievals: tuple
     solver: dict
-    original: dict
+    original: Optional[dict]
     plugins: tuple = ()
 
     @property
     def token(self) -> str:
         return f"trial-{self.trial.trial_id}"
 
+    @property
+    def instance_id(self) -> str:
+        return self.trial.instance.instance_id
+
+    def without_original(self) -> "TrialTask":
+        """This task referring to its instance's original by identity only."""
+        return TrialTask(self.trial, self.retrievals, self.solver, None, self.plugins)
+
 
 Task = Union[OriginalTask, TrialTask]
+
+
+class HeldOriginals:
+    """The sender's mirror of one worker process's cache of originals (same size, same LRU rule).
+
+    :meth:`prepare` returns the task to send: the full task the first time an instance's original
+    goes to this worker (or after the worker dropped it), else the task without its original. Valid
+    while the worker runs the tasks it is sent in order, one at a time; a new worker process needs a
+    new mirror.
+    """
+
+    def __init__(self, size: int = ORIGINAL_CACHE_SIZE) -> None:
+        self.size = size
+        self._held: "OrderedDict[str, None]" = OrderedDict()
+
+    def prepare(self, task):
+        if not isinstance(task, TrialTask):
+            return task
+        key = task.instance_id
+        held = key in self._held and task.original is not None
+        self._held.pop(key, None)
+        self._held[key] = None
+        while len(self._held) > self.size:
+            self._held.popitem(last=False)
+        return task.without_original() if held else task
 
 
 @dataclass(frozen=True)
@@ -91,6 +134,8 @@ def execute(task: Task) -> dict:
     """
     from calib.sweep.plugins import load
 
+    if isinstance(task, TrialTask):  # first: the sender's mirror counts on this happening
+        remember_original(task)
     load(task.plugins)
     if isinstance(task, OriginalTask):
         return {"row": solve_original(task), "env": worker_environment()}
@@ -117,6 +162,20 @@ def built_instance(ref: InstanceRef):
     return instance
 
 
+def remember_original(task: TrialTask) -> dict:
+    """The original of ``task``'s instance: the one it carries (now kept), or the one kept from an
+    earlier task of that instance (same LRU rule and size as :class:`HeldOriginals`)."""
+    key = task.instance_id
+    original = task.original if task.original is not None else _originals.pop(key, None)
+    if original is None:
+        raise LookupError(f"no original solve held for instance {key}: the task was sent without it")
+    _originals.pop(key, None)
+    _originals[key] = original
+    while len(_originals) > ORIGINAL_CACHE_SIZE:
+        _originals.popitem(last=False)
+    return original
+
+
 def describe_exception(error: BaseException) -> str:
     """``Type: text (at file.py:line)`` of the innermost frame, on one line."""
     frames = traceback.extract_tb(error.__traceback__)
@@ -126,25 +185,31 @@ def describe_exception(error: BaseException) -> str:
 
 def solve_original(task: OriginalTask) -> dict:
     """Instance-row fields of the original solve (``orig_*``, ``solver_options``, ``build_seconds``)
-    and of its fair baseline (every configured method, :func:`calib.solvers.methods.race`)."""
+    and of its fair baseline (every configured method, :func:`calib.solvers.methods.race`), and the
+    instance's ``features`` (JSON, :func:`calib.features.stored_features`)."""
     from calib.keys import canonical_json
     from calib.reduce import HANDLERS
 
+    from calib.features import stored_features
+
     start = time.perf_counter()
+    features = None
     try:
         instance = built_instance(task.instance)
         build_seconds = time.perf_counter() - start
+        features = stored_features(instance.kind, instance.problem)
         baseline = HANDLERS[instance.kind].solve_baseline(instance.problem, task.solver)
         original = baseline.result
     except Exception as error:  # a failed build or solve is recorded, the campaign goes on
-        return failed_original("error", describe_exception(error), time.perf_counter() - start)
+        return failed_original("error", describe_exception(error), time.perf_counter() - start) | {"features": features}
     # SQLite stores a NaN REAL as NULL: a point set's original has no objective, so it is None on both sides
     objective = original.objective if original.ok and math.isfinite(original.objective) else None
     return {"orig_status": original.status, "orig_code": original.solver_code, "orig_message": original.solver_message,
             "orig_objective": objective, "orig_seconds": original.seconds,
             "orig_iterations": original.iterations, "solver_options": canonical_json(original.options),
             "orig_x": original.x, "build_seconds": build_seconds, "baseline_method": baseline.fastest,
-            "baseline_seconds": baseline.seconds, "methods": json.dumps(baseline.summary(), sort_keys=True, default=str)}
+            "baseline_seconds": baseline.seconds, "methods": json.dumps(baseline.summary(), sort_keys=True, default=str),
+            "features": features}
 
 
 def failed_original(status: str, message: str, seconds: float) -> dict:
@@ -182,9 +247,10 @@ def trial_outcomes(task: TrialTask) -> list[tuple[str, Optional[str], Optional[s
     from calib.sweep.trial import run_trial
 
     try:
+        original = remember_original(task)
         instance = built_instance(task.trial.instance)
-        records = run_trial(task.trial, instance.problem, instance.kind, original_result(task.original),
-                            list(task.retrievals), task.solver, stored_baseline(task.original))
+        records = run_trial(task.trial, instance.problem, instance.kind, original_result(original),
+                            list(task.retrievals), task.solver, stored_baseline(original))
         return [("ok", "", json.dumps(record, sort_keys=True, allow_nan=False)) for record in records]
     except Exception as error:  # one trial's failure must not stop the campaign
         return [("error", describe_exception(error), None)] * len(task.retrievals)
