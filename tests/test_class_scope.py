@@ -144,7 +144,7 @@ def _rows(proj_status: list[str], success_gap: list[float], k: list[int]) -> pd.
 
 def test_a_solver_error_lands_in_its_own_column_not_in_the_rate():
     # 30 trials at k = 4, all within the gap but two whose projected solve ended in a solver error.
-    status = ["optimal"] * 28 + ["error"] * 2
+    status = ["optimal"] * 28 + ["solver_failed"] * 2
     rows = _rows(status, [0.01] * 28 + [np.nan] * 2, [4] * 30)
     excluded = build_analysis(rows, make_predicate("bound"), Confidence())
     (point,) = excluded["entries"][0]["grid"]
@@ -256,7 +256,7 @@ def test_a_stored_solver_error_is_reported_by_run_and_kept_out_of_the_rate(tmp_p
     with sqlite3.connect(path) as db:
         trial, metrics = db.execute("SELECT trial_id, metrics FROM trials ORDER BY trial_id LIMIT 1").fetchone()
         record = json.loads(metrics)
-        record.update(proj_status="error", proj_gap=None)
+        record.update(proj_status="solver_failed", proj_gap=None)
         db.execute("UPDATE trials SET metrics = ? WHERE trial_id = ?", (json.dumps(record), trial))
     db.close()
     assert count_solver_errors(path) == 1

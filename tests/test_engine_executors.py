@@ -158,7 +158,7 @@ def test_raise_segfault_and_hang_become_rows_and_the_rest_completes(tmp_path, fa
         assert by_k[k][0] == "ok" and json.loads(by_k[k][2])["proj_status"] in ("optimal", "unbounded", "infeasible")
     # the instance whose original solve crashed: stored once as an error, its trials still ran
     crashed_original = next(value for params, value in originals.items() if "segfault" in params)
-    assert crashed_original.startswith("error: crashed: worker process killed by SIGSEGV")
+    assert crashed_original.startswith("solver_failed: crashed: worker process killed by SIGSEGV")
     assert summary.ran == 10 and summary.statuses["ok"] == 4
 
 

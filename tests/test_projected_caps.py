@@ -34,7 +34,7 @@ def test_sdp_projected_solve_stops_at_its_iteration_cap_and_fails():
     sdp = instance("sdp-maxcut", {"nodes": 30}).problem
     original, (row,) = _records(SDPHandler, sdp, 10, {**SOLVER, "projected_max_iters": 25})
     assert original.ok and original.iterations > 25  # the original keeps its own limits
-    assert row["proj_status"] == "iteration_limit" and row["proj_iterations"] == 25
+    assert row["proj_status"] == "stopped_on_iterations" and row["proj_iterations"] == 25
     frame = pd.DataFrame([{**row, "status": "ok", "kind": "sdp"}])
     assert not evaluate(frame, make_predicate("bound")).iloc[0]
 
@@ -42,7 +42,7 @@ def test_sdp_projected_solve_stops_at_its_iteration_cap_and_fails():
 def test_lp_projected_solve_stops_at_its_iteration_cap():
     lp = instance("lp-planted", {"rows": 60, "cols": 120}).problem
     _, (row,) = _records(LPHandler, lp, 40, {**SOLVER, "projected_max_iters": 3})
-    assert row["proj_status"] == "iteration_limit" and row["proj_iterations"] <= 3
+    assert row["proj_status"] == "stopped_on_iterations" and row["proj_iterations"] <= 3
 
 
 def test_caps_replace_the_limits_of_the_projected_solve_only():

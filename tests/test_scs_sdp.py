@@ -150,19 +150,19 @@ def test_status_table_covers_every_scs_status():
     assert set(STATUS_TABLE.values()) <= set(STATUSES)
 
 
-def test_stopping_at_max_iters_is_an_iteration_limit_with_the_settings_recorded():
+def test_stopping_at_max_iters_is_stopped_on_iterations_with_the_settings_recorded():
     sdp, _ = _family_sdp("sdp-theta", graph="petersen", nodes=10)
     result = solve_sdp(sdp, settings={"max_iters": 5, **TIGHT})
-    assert result.status == "iteration_limit" and result.iterations == 5
+    assert result.status == "stopped_on_iterations" and result.iterations == 5
     assert result.x is None and np.isnan(result.objective)
     assert result.options["eps_abs"] == 1e-7 and result.options["linear_solver"] == "qdldl"
     assert result.solver == "scs" and result.seconds > 0
 
 
-def test_stopping_at_the_time_limit_is_a_time_limit_not_a_solution():
+def test_stopping_at_the_time_limit_is_stopped_on_time_not_a_solution():
     # STACK-NOTES: SCS reports "solved (inaccurate - reached time_limit_secs)" after a time limit,
     # possibly with 0 iterations; it must not pass for a solution.
     sdp, _ = _family_sdp("sdp-theta", graph="petersen", nodes=10)
     result = solve_sdp(sdp, time_limit=1e-9)
-    assert result.status == "time_limit" and result.solver_code == scs.SOLVED_INACCURATE
+    assert result.status == "stopped_on_time" and result.solver_code == scs.SOLVED_INACCURATE
     assert "time_limit" in result.solver_message and result.x is None

@@ -24,14 +24,14 @@ def _result(status, seconds, objective=1.0):
 def test_race_takes_the_fastest_method_that_reaches_the_reference_verdict():
     # A method that stops without a verdict (time limit) is never the baseline, however fast it was;
     # the reference is the first configured method with a verdict, whatever the times (reproducible metrics).
-    results = {"simplex": _result("optimal", 3.0), "ipm": _result("time_limit", 0.1)}
+    results = {"simplex": _result("optimal", 3.0), "ipm": _result("stopped_on_time", 0.1)}
     baseline = race(results.get, ("simplex", "ipm"))
     assert (baseline.reference, baseline.fastest, baseline.seconds) == ("simplex", "simplex", 3.0)
     results["ipm"] = _result("optimal", 0.5)
     baseline = race(results.get, ("simplex", "ipm"))
     assert (baseline.reference, baseline.fastest, baseline.seconds) == ("simplex", "ipm", 0.5)
     assert set(baseline.summary()) == {"simplex", "ipm"} and baseline.summary()["ipm"]["message"] == "optimal"
-    infeasible = {"simplex": _result("time_limit", 9.0), "ipm": _result("infeasible", 2.0, float("nan"))}
+    infeasible = {"simplex": _result("stopped_on_time", 9.0), "ipm": _result("infeasible", 2.0, float("nan"))}
     baseline = race(infeasible.get, ("simplex", "ipm"))
     assert (baseline.reference, baseline.fastest) == ("ipm", "ipm")
 

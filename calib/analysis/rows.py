@@ -16,6 +16,7 @@ import pandas as pd
 
 from calib.errors import InputError
 from calib.metrics import FIELDS
+from calib.solvers.result import FORMER_STATUSES
 from calib.sweep.store import DAMAGED_FIX, Store
 
 
@@ -59,6 +60,8 @@ def load_rows(store: Store) -> pd.DataFrame:
     expanded = pd.DataFrame.from_records([{name: record.get(name) for name in FIELDS} for record in metrics],
                                          index=rows.index, columns=list(FIELDS))
     rows = pd.concat([rows.drop(columns=["metrics"]), expanded], axis=1)
+    for column in ("orig_status", "proj_status"):  # a store of format < 4, read without migrating it
+        rows[column] = rows[column].replace(FORMER_STATUSES)
     decoded = [_json_object(params, store.path, trial, "instance params") for params, trial in zip(rows["params"], rows["trial_id"])]
     rows["size"] = [_size_label(family, params) for family, params in zip(rows["family"], decoded)]
     rows["class_params"] = [_class_params(family, params) for family, params in zip(rows["family"], decoded)]

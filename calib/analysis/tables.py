@@ -103,7 +103,7 @@ def num(value, digits: int = _DIGITS) -> Optional[float]:
 #: how projected solves that end in a solver error are read
 SOLVER_ERRORS = ("exclude", "fail")
 SOLVER_ERROR_TEXT = {
-    "exclude": "a projected solve that ends in a solver error (projected status 'error') is counted in its own "
+    "exclude": "a projected solve that ends in a solver error (projected status 'solver_failed') is counted in its own "
                "column and left out of the rates (it says nothing about k); --solver-errors fail counts it as a failure",
     "fail": "a projected solve that ends in a solver error counts as a failure (strict reading, --solver-errors fail)",
 }
@@ -117,7 +117,7 @@ INSTANCES_SCOPE = "the instances measured: exact Clopper-Pearson on all trials, 
 
 def solver_error_mask(rows: pd.DataFrame) -> pd.Series:
     """Rows whose trial ran but whose projected solve ended in a solver error (its status 'error')."""
-    return rows["status"].eq("ok") & rows["proj_status"].eq("error") & rows["kind"].isin(OPTIMIZATION_KINDS)
+    return rows["status"].eq("ok") & rows["proj_status"].eq("solver_failed") & rows["kind"].isin(OPTIMIZATION_KINDS)
 
 
 def _error_column(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
@@ -353,7 +353,7 @@ def _class_key(entry: dict) -> tuple:
 # ----- the table ----------------------------------------------------------------------------
 
 #: original statuses without an optimum to calibrate against (the solver's verdict, not a failure)
-NO_OPTIMUM = ("unbounded", "infeasible_or_unbounded")
+NO_OPTIMUM = ("unbounded", "no_finite_optimum")
 
 
 def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:

@@ -113,7 +113,7 @@ def count_solver_errors(store_path) -> int:
     try:
         (count,) = store.db.execute(
             "SELECT COUNT(DISTINCT trial_id) FROM trials WHERE status = 'ok' "
-            "AND json_extract(metrics, '$.proj_status') = 'error'").fetchone()
+            "AND json_extract(metrics, '$.proj_status') = 'solver_failed'").fetchone()
     finally:
         store.close()
     return int(count)

@@ -37,23 +37,23 @@ STATUS_TABLE: dict = {
     _MS.kOptimal: "optimal",
     _MS.kInfeasible: "infeasible",
     _MS.kUnbounded: "unbounded",
-    _MS.kUnboundedOrInfeasible: "infeasible_or_unbounded",
-    _MS.kTimeLimit: "time_limit",
-    _MS.kIterationLimit: "iteration_limit",
-    _MS.kInterrupt: "time_limit",
-    _MS.kHighsInterrupt: "time_limit",
-    _MS.kObjectiveBound: "inaccurate",
-    _MS.kObjectiveTarget: "inaccurate",
-    _MS.kSolutionLimit: "inaccurate",
-    _MS.kUnknown: "inaccurate",
-    _MS.kNotset: "error",
-    _MS.kLoadError: "error",
-    _MS.kModelError: "error",
-    _MS.kPresolveError: "error",
-    _MS.kSolveError: "error",
-    _MS.kPostsolveError: "error",
-    _MS.kModelEmpty: "error",
-    _MS.kMemoryLimit: "error",
+    _MS.kUnboundedOrInfeasible: "no_finite_optimum",
+    _MS.kTimeLimit: "stopped_on_time",
+    _MS.kIterationLimit: "stopped_on_iterations",
+    _MS.kInterrupt: "stopped_on_time",
+    _MS.kHighsInterrupt: "stopped_on_time",
+    _MS.kObjectiveBound: "unverified",
+    _MS.kObjectiveTarget: "unverified",
+    _MS.kSolutionLimit: "unverified",
+    _MS.kUnknown: "unverified",
+    _MS.kNotset: "solver_failed",
+    _MS.kLoadError: "solver_failed",
+    _MS.kModelError: "solver_failed",
+    _MS.kPresolveError: "solver_failed",
+    _MS.kSolveError: "solver_failed",
+    _MS.kPostsolveError: "solver_failed",
+    _MS.kModelEmpty: "solver_failed",
+    _MS.kMemoryLimit: "solver_failed",
 }
 
 #: Options applied to every solve. ``threads`` must stay the same within a process.
@@ -155,7 +155,7 @@ def solve_lp(lp: StandardLP, time_limit: float = 60.0, options: Optional[dict] =
 
 def _collect(h: "highspy.Highs", n_cols: int, seconds: float, options: dict, solver: str = "highs") -> SolveResult:
     model_status = h.getModelStatus()
-    status = STATUS_TABLE.get(model_status, "error")
+    status = STATUS_TABLE.get(model_status, "solver_failed")
     info = h.getInfo()
     result = SolveResult(
         status=status, solver=solver, solver_code=int(model_status),

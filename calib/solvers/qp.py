@@ -69,7 +69,7 @@ def solve_qp_highs(qp: QP, time_limit: float = 60.0, options: Optional[dict] = N
     model_status = h.getModelStatus()
     info = h.getInfo()
     result = SolveResult(
-        status=STATUS_TABLE.get(model_status, "error"), solver="highs-qp", solver_code=int(model_status),
+        status=STATUS_TABLE.get(model_status, "solver_failed"), solver="highs-qp", solver_code=int(model_status),
         solver_message=h.modelStatusToString(model_status),
         iterations=int(max(info.qp_iteration_count, 0) + max(info.simplex_iteration_count, 0) + max(info.ipm_iteration_count, 0)),
         seconds=seconds, options={**DEFAULT_OPTIONS, **used},

@@ -12,17 +12,21 @@ from typing import Optional
 
 import numpy as np
 
-#: calib's status vocabulary, shared by all solvers.
+#: calib's status vocabulary, shared by all solvers: the trade's own three words, then calib's own.
 STATUSES = (
-    "optimal",          # solved to the solver's tolerances
-    "infeasible",       # primal infeasible (certified by the solver)
-    "unbounded",        # primal unbounded
-    "infeasible_or_unbounded",
-    "inaccurate",       # the solver stopped with a point it does not vouch for
-    "time_limit",
-    "iteration_limit",
-    "error",            # the solver failed (model error, numerical failure, crash)
+    "optimal",                # solved to the solver's tolerances
+    "infeasible",             # primal infeasible (certified by the solver)
+    "unbounded",              # primal unbounded
+    "no_finite_optimum",      # infeasible or unbounded, the solver did not say which
+    "unverified",             # the solver stopped with a point it does not vouch for
+    "stopped_on_time",        # a time limit stopped the solve (the solver's or calib's own)
+    "stopped_on_iterations",  # an iteration limit stopped the solve
+    "solver_failed",          # the solver failed (model error, numerical failure, crash)
 )
+
+#: words of store formats 1-3 -> calib's words (store format 4 rewrites them; reading an older store maps them)
+FORMER_STATUSES = {"infeasible_or_unbounded": "no_finite_optimum", "inaccurate": "unverified",
+                   "time_limit": "stopped_on_time", "iteration_limit": "stopped_on_iterations", "error": "solver_failed"}
 
 
 @dataclass

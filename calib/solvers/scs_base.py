@@ -25,15 +25,15 @@ from calib.solvers.result import SolveResult
 #: SCS ``status_val`` -> calib status. "Inaccurate" answers are never taken as certified.
 STATUS_TABLE: dict = {
     scs.SOLVED: "optimal",
-    scs.SOLVED_INACCURATE: "inaccurate",
+    scs.SOLVED_INACCURATE: "unverified",
     scs.INFEASIBLE: "infeasible",
-    scs.INFEASIBLE_INACCURATE: "inaccurate",
+    scs.INFEASIBLE_INACCURATE: "unverified",
     scs.UNBOUNDED: "unbounded",
-    scs.UNBOUNDED_INACCURATE: "inaccurate",
-    scs.INDETERMINATE: "error",
-    scs.FAILED: "error",
-    scs.SIGINT: "time_limit",
-    scs.UNFINISHED: "error",
+    scs.UNBOUNDED_INACCURATE: "unverified",
+    scs.INDETERMINATE: "solver_failed",
+    scs.FAILED: "solver_failed",
+    scs.SIGINT: "stopped_on_time",
+    scs.UNFINISHED: "solver_failed",
 }
 
 #: Statuses SCS vouches for; any other answer is checked against the iteration and time limits.
@@ -65,7 +65,7 @@ def run_scs(data: dict, cone: dict, time_limit: float = 60.0, settings: Optional
     """Solve one SCS problem; ``data`` has P (upper triangle, CSC, optional), A (CSC), b, c.
 
     ``time_limit`` is in seconds. The returned :class:`SolveResult` carries the status (mapped by
-    :data:`STATUS_TABLE`, then refined to "iteration_limit" / "time_limit" when an uncertified stop
+    :data:`STATUS_TABLE`, then refined to "stopped_on_iterations" / "stopped_on_time" when an uncertified stop
     hit a limit), SCS's own code and message, the objective c^T x + 1/2 x^T P x (NaN unless
     optimal), iterations, wall time and every setting used. ``x`` and ``dual`` are left for the
     caller, which knows the problem's layout.
@@ -87,14 +87,14 @@ def run_scs(data: dict, cone: dict, time_limit: float = 60.0, settings: Optional
 
 
 def _status(code: int, info: dict, settings: dict) -> str:
-    status = STATUS_TABLE.get(code, "error")
+    status = STATUS_TABLE.get(code, "solver_failed")
     if code in _CERTIFIED:
         return status
     if int(info["iter"]) >= int(settings["max_iters"]):
-        return "iteration_limit"
+        return "stopped_on_iterations"
     limit = float(settings.get("time_limit_secs", 0.0))
     if limit > 0 and (info["setup_time"] + info["solve_time"]) / 1000.0 >= limit:
-        return "time_limit"
+        return "stopped_on_time"
     return status
 
 

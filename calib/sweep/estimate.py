@@ -104,7 +104,7 @@ def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
                 continue
             seconds, payload = measured
             original = {name: payload["row"][name] for name in ORIGINAL_FIELDS}
-            if original["orig_status"] == "error":  # the build or the solve raised: its time means nothing
+            if original["orig_status"] == "solver_failed":  # the build or the solve raised: its time means nothing
                 probes.append(Probe(None, None, None, f"the original failed: {original['orig_message']}"))
                 continue
             trial_seconds = []

@@ -198,7 +198,7 @@ class Coordinator:
             self.lost += len(todo)
             return
         if isinstance(result, Failure):
-            solve = failed_original("time_limit" if result.status == "timeout" else "error",
+            solve = failed_original("stopped_on_time" if result.status == "timeout" else "solver_failed",
                                     f"{result.status}: {result.message}", result.seconds)
         else:
             solve = result["row"]

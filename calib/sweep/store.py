@@ -27,7 +27,11 @@ their root seed is the last element of ``stream_key``, their solver options the 
 had no fair baseline; 3 adds the instance columns ``baseline_method``, ``baseline_seconds`` and
 ``methods`` (old rows keep NULL: their baseline is their original solve time). Format 4
 adds the instance column ``features`` (old instances keep NULL: their table entries carry no
-features).
+features). Format 5 writes solver statuses in calib's own words (``no_finite_optimum``,
+``unverified``, ``stopped_on_time``, ``stopped_on_iterations``, ``solver_failed``;
+:data:`calib.solvers.result.FORMER_STATUSES`): the migration rewrites the instance rows, the method
+records and the trial metrics, and reading an older store without migrating it maps the former words
+(:func:`calib.analysis.rows.load_rows`).
 """
 
 from __future__ import annotations
@@ -68,13 +72,35 @@ CREATE TABLE IF NOT EXISTS trials (
 """
 
 #: the layout written by this code (see the module docstring for the history)
-STORE_FORMAT = 4
+STORE_FORMAT = 5
 
 #: columns added by each migration: format -> [(table, column, type)]
 _MIGRATIONS = {2: [("trials", "root_seed", "INTEGER"), ("trials", "solver_options", "TEXT")],
                3: [("instances", "baseline_method", "TEXT"), ("instances", "baseline_seconds", "REAL"),
                    ("instances", "methods", "TEXT")],
-               4: [("instances", "features", "TEXT")]}
+               4: [("instances", "features", "TEXT")],
+               5: []}
+
+
+def rename_statuses(db: sqlite3.Connection) -> None:
+    """Format 5: solver statuses in calib's own words (:data:`calib.solvers.result.FORMER_STATUSES`), in the
+    instance rows, each configured method's record and the trial metrics (trial statuses are not solver words)."""
+    from calib.solvers.result import FORMER_STATUSES
+
+    for old, new in FORMER_STATUSES.items():
+        db.execute("UPDATE instances SET orig_status = ? WHERE orig_status = ?", (new, old))
+        for key in ("orig_status", "proj_status"):
+            db.execute(f"UPDATE trials SET metrics = json_set(metrics, '$.{key}', ?) "
+                       f"WHERE json_valid(metrics) AND json_extract(metrics, '$.{key}') = ?", (new, old))
+    for instance_id, text in db.execute("SELECT instance_id, methods FROM instances WHERE methods IS NOT NULL").fetchall():
+        methods = json.loads(text)
+        for record in methods.values():
+            record["status"] = FORMER_STATUSES.get(record.get("status"), record.get("status"))
+        db.execute("UPDATE instances SET methods = ? WHERE instance_id = ?", (json.dumps(methods, sort_keys=True), instance_id))
+
+
+#: data rewrites of a format, run after its columns are added: format -> function(connection)
+_REWRITES = {5: rename_statuses}
 
 
 def environment() -> dict:
@@ -201,6 +227,8 @@ class Store:
                     columns = {row[1] for row in self.db.execute(f"PRAGMA table_info({table})")}
                     if column not in columns:
                         self.db.execute(f"ALTER TABLE {table} ADD COLUMN {column} {kind}")
+                if version in _REWRITES:
+                    _REWRITES[version](self.db)
             self.db.execute("INSERT OR REPLACE INTO campaign (key, value) VALUES ('store_format', ?)", (str(STORE_FORMAT),))
 
     def _claim(self, spec) -> None:

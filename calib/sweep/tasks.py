@@ -201,7 +201,7 @@ def solve_original(task: OriginalTask) -> dict:
         baseline = HANDLERS[instance.kind].solve_baseline(instance.problem, task.solver)
         original = baseline.result
     except Exception as error:  # a failed build or solve is recorded, the campaign goes on
-        return failed_original("error", describe_exception(error), time.perf_counter() - start) | {"features": features}
+        return failed_original("solver_failed", describe_exception(error), time.perf_counter() - start) | {"features": features}
     # SQLite stores a NaN REAL as NULL: a point set's original has no objective, so it is None on both sides
     objective = original.objective if original.ok and math.isfinite(original.objective) else None
     return {"orig_status": original.status, "orig_code": original.solver_code, "orig_message": original.solver_message,
@@ -214,7 +214,7 @@ def solve_original(task: OriginalTask) -> dict:
 
 def failed_original(status: str, message: str, seconds: float) -> dict:
     """Instance-row fields for an original solve that produced nothing (status from the solver
-    vocabulary: "error" for an exception or a crash, "time_limit" for an external timeout)."""
+    vocabulary: "solver_failed" for an exception or a crash, "stopped_on_time" for an external timeout)."""
     return {"orig_status": status, "orig_code": None, "orig_message": message, "orig_objective": None,
             "orig_seconds": seconds, "orig_iterations": 0, "solver_options": "{}", "orig_x": None,
             "build_seconds": None, "baseline_method": None, "baseline_seconds": None, "methods": None}
