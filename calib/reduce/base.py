@@ -181,8 +181,8 @@ def projected_solver(solver: dict) -> dict:
     place of ``time_limit_s`` and ``projected_max_iters`` as the iteration cap of every solver
     (HiGHS simplex, interior point and QP; SCS ``max_iters``), when they are set. A projected
     problem can be much harder for its solver than the original (an aggregated SDP has no slack
-    left); it stops at its own caps with status ``time_limit`` or ``iteration_limit``, which the
-    analysis counts as a failure. Retrievals keep the original's limits.
+    left); it stops at its own caps with status ``stopped_on_time`` or ``stopped_on_iterations``,
+    which the analysis counts as a failure. Retrievals keep the original's limits.
 
     >>> projected_solver({"time_limit_s": 60.0, "projected_time_limit_s": 5.0, "projected_max_iters": 2000})["scs"]
     {'max_iters': 2000}
