@@ -114,13 +114,15 @@ def test_a_store_without_features_gives_entries_without_them_and_migrates_on_res
     from calib.analysis.tables import Confidence, build_table
     from calib.sweep.runner import run_campaign
     from calib.sweep.spec import load_spec
-    from calib.sweep.store import STORE_FORMAT, Store
+    from calib.sweep.store import _MIGRATIONS, STORE_FORMAT, Store
 
+    # the format that added the features column; the store below is rolled back to the one before it
+    added = next(version for version, columns in _MIGRATIONS.items() if ("instances", "features", "TEXT") in columns)
     spec_path = write_spec(tmp_path, replicates=1)
     summary = run_campaign(load_spec(spec_path), tmp_path / "out", inline=True)
     with sqlite3.connect(summary.store_path) as db:  # the layout before features were stored
         db.execute("ALTER TABLE instances DROP COLUMN features")
-        db.execute("UPDATE campaign SET value = ? WHERE key = 'store_format'", (str(STORE_FORMAT - 1),))
+        db.execute("UPDATE campaign SET value = ? WHERE key = 'store_format'", (str(added - 1),))
     store = Store.open_existing(summary.store_path)
     try:
         table = build_table(store, make_predicate("bound"), Confidence())
