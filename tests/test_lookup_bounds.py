@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from calib.analysis.lookup import Query, bounded, k_for, size_of, size_of_mps
+from calib.analysis.lookup import Query, bounded, class_entries, k_for, safe_ks, size_of, size_of_mps
 from calib.analysis.success import make_predicate
 from calib.analysis.tables import Confidence, build_analysis
 from calib.cli import main
@@ -77,6 +77,17 @@ def test_a_measured_size_gets_its_measured_safe_k():
             assert answer["safe_k"] == entry["safe_k"] and answer["method"].startswith("measured at this size")
             klass = k_for(table, Query(FAMILY, entry["n_points"], "gaussian", m=entry["projected_dim"]))
             assert klass["safe_k"] == entry["class"]["safe_k"]
+
+
+@pytest.mark.parametrize("scope", ["class", "instances"])
+def test_stated_safe_k_equals_the_recomputation_from_the_counts(scope):
+    # lookup reads a size's safe k from the table at the table's own target and recomputes it from
+    # the stored counts otherwise: both paths must agree at the table's target (the reference for the
+    # bounds themselves is scipy.stats, see tests/test_analysis_stats.py)
+    stated = Confidence(0.1, 0.95)
+    for table in TABLES:
+        entries = class_entries(table["analyses"][0], Query(FAMILY, 2, "gaussian"))
+        assert safe_ks(entries, stated, scope, stated) == safe_ks(entries, stated, scope)
 
 
 def test_law_values_are_bounded_to_one_and_m():

@@ -54,7 +54,7 @@ from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
-from scipy import stats as scipy_stats
+from scipy import special
 
 from calib.analysis.stats import clopper_pearson_lower
 
@@ -130,7 +130,7 @@ class Anova:
         squares = self._mean_squares()
         if squares is None or squares[1] <= 0:
             return 1.0
-        f_low = float(scipy_stats.f.ppf(1.0 - confidence, self.groups - 1, self.df_within))
+        f_low = float(special.fdtri(self.groups - 1, self.df_within, 1.0 - confidence))  # the F quantile
         ratio = squares[0] / squares[1] / f_low
         return float(min(1.0, max(0.0, (ratio - 1.0) / (ratio + self.n0 - 1.0))))
 
@@ -216,6 +216,14 @@ def refusal(n_instances: int, target: float, confidence: float) -> str:
         return f"1 instance says nothing about the class; when each instance decides alone, {needed} are needed"
     return (f"{n_instances} instance{'s' if n_instances != 1 else ''} cannot certify {target:.0%} at {confidence:.0%} "
             f"confidence for the class unless they agree closely; when each instance decides alone, {needed} are needed")
+
+
+def class_reason(safe_k: Optional[int], reason: str, n_instances: int, target: float, confidence: float) -> str:
+    """The reason shown beside the class safe k: the design's limit first when it explains it."""
+    if safe_k is not None:
+        return reason
+    limit = refusal(n_instances, target, confidence)
+    return limit or f"{reason} for the class (instance-to-instance spread counted)"
 
 
 @dataclass(frozen=True)
