@@ -130,8 +130,9 @@ def frankl_maehara_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
 def pair_failure(k: ArrayLike, eps: ArrayLike) -> np.ndarray:
     """Probability that one pair leaves 1 ± eps under a Gaussian T with N(0, 1/k) entries.
 
-    k·|Tx|²/|x|² follows chi-square with k degrees of freedom (Dasgupta & Gupta 2003, Lemma 2.2's
-    setting), so this is P(chi2_k < k(1 - eps)) + P(chi2_k > k(1 + eps)), computed exactly.
+    k·|Tx|²/|x|² is the sum of k squared standard normals, so it follows chi-square with k degrees
+    of freedom (a fact of the Gaussian distribution; Dasgupta & Gupta 2003 start from it); this is
+    P(chi2_k < k(1 - eps)) + P(chi2_k > k(1 + eps)), computed exactly.
 
     >>> round(float(pair_failure(100, 0.2)), 6)
     0.154742
