@@ -53,9 +53,36 @@ def test_report_is_self_contained_and_carries_tables_spec_and_notice(report):
     assert all(src.startswith("data:") for src in re.findall(r'src="([^"]*)"', html))
     assert "<link" not in html and "<script" not in html
     assert NOTICE.replace("`", "") in html.replace("`", "") and "calib probe" in html
-    assert html.count("Safe k: predicate") == 2  # one section per tolerance of the ladder
+    assert html.count("<h2>Detailed table: ") == 2  # one section per tolerance of the ladder
     assert "Scaling law across sizes" in html and "Speed-up at the safe k" in html
     assert "&quot;root_seed&quot;: 7" in html  # the sweep spec
+
+
+def test_report_leads_with_one_answer_card_per_class(report):
+    html_path, table = report
+    html = html_path.read_text()
+    first = table["analyses"][0]
+    classes = {(e["family"], json.dumps(e["class_params"], sort_keys=True), e["projector"], e["retrieval"])
+               for e in first["entries"]}
+    assert html.count('<div class="card">') == len(classes)
+    # the answer comes before the figures, the detailed tables and the campaign metadata
+    order = [html.index(marker) for marker in ("The answer, per class", "<h2>Figures", "<h2>Detailed table", "<h2>Campaign")]
+    assert order == sorted(order)
+    # a card states both scopes and the law or why there is none, and the time verdict
+    card = html[html.index('<div class="card">'):]
+    card = card[:card.index("</div>\n<div") if "</div>\n<div" in card else len(card)]
+    assert "class safe k" in card and "these instances" in card and "Time: " in card
+    assert "Law (" in card or "No law across sizes" in card
+
+
+def test_report_text_has_no_python_representations(report):
+    html = report[0].read_text()
+    text = re.sub(r"<pre>.*?</pre>", "", html, flags=re.S)  # the spec is shown as JSON on purpose
+    text = re.sub(r'src="[^"]*"', "", text)
+    for fragment in ("= None", "None,", "{'", "'}", "True,", "nan"):
+        assert fragment not in text, fragment
+    # a Wilson bound of 0 successes prints as 0, not as a rounding residue like 6.4e-18
+    assert "e-18" not in text and "e-17" not in text
 
 
 def _chromium() -> str:

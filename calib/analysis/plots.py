@@ -35,6 +35,9 @@ from calib.analysis.tables import class_namer
 
 _PANEL = (4.2, 3.2)
 _DPI = 96
+#: one colour per published bound, the same in every figure, none of them used for measured data (C0..C9)
+BOUND_COLOURS = {"achlioptas": "black", "chi2-union": "dimgray", "dasgupta-gupta": "darkgoldenrod",
+                 "frankl-maehara": "darkviolet", "ln-over-eps2": "teal"}
 
 
 @dataclass(frozen=True)
@@ -110,7 +113,8 @@ def success_plot(analysis: dict, family: str, target: dict) -> Plot:
         ax.set_title(f"{size} {params} (n = {n})", fontsize=9)
         ax.set_xlabel("k")
         ax.set_ylabel("success rate")
-    axes[0].legend(fontsize=7, loc="lower right")
+    handles, labels = axes[0].get_legend_handles_labels()
+    figure.legend(handles, labels, loc="outside lower center", ncols=min(4, max(1, len(labels))), fontsize=7)
     caption = (f"Dots: measured success rate; band: two-sided Clopper-Pearson interval at {target['confidence']:.0%}; "
                f"dashed: logistic fit on ln k; grey line: target {target['success_rate']:g}; dotted: safe k.")
     return Plot(f"success-{family}", f"Success against k: {family}", caption, _png(figure))
@@ -120,9 +124,10 @@ def law_plot(analysis: dict, family: str) -> Plot:
     """Safe k vs n with the fitted law and the published bounds for one family."""
     laws = [law for law in analysis["laws"] if law["family"] == family]
     name = class_namer(laws)
-    figure = Figure(figsize=(6.4, 4.4))
+    figure = Figure(figsize=(7.6, 4.4), layout="constrained")
     ax = figure.subplots()
     n_all = [point["n"] for law in laws for point in law["safe_k_law"]["points"]]
+    largest_m = max((entry["projected_dim"] for entry in analysis["entries"] if entry["family"] == family), default=None)
     span = np.geomspace(max(2.0, min(n_all) / 2.0), max(n_all) * 2.0, 200)
     for i, law in enumerate(laws):
         colour = f"C{i}"
@@ -132,23 +137,26 @@ def law_plot(analysis: dict, family: str) -> Plot:
         if measured:
             ax.plot(*zip(*measured), "o", color=colour, label=f"safe k: {label}")
         if fit["a"] is not None:
-            inside = (span >= fit["n_min"]) & (span <= fit["n_max"])
             values = fit["a"] + fit["C"] * np.log(span)
+            # a law is a statement about k: drawn only where it is one, 1 <= k <= the largest projected dimension
+            drawable = (values >= 1.0) & (values <= (largest_m or np.inf))
+            inside = drawable & (span >= fit["n_min"]) & (span <= fit["n_max"])
             ax.plot(span[inside], values[inside], "-", color=colour, label=f"k = {fit['a']:.3g} + {fit['C']:.3g} ln n")
-            ax.plot(span[~inside & (span < fit["n_min"])], values[~inside & (span < fit["n_min"])], "--", color=colour)
-            ax.plot(span[~inside & (span > fit["n_max"])], values[~inside & (span > fit["n_max"])], "--", color=colour)
+            for side in (drawable & (span < fit["n_min"]), drawable & (span > fit["n_max"])):
+                ax.plot(span[side], values[side], "--", color=colour)
     eps = laws[0]["theory"]["eps"] if laws else None
     if eps is not None:
-        for j, (name, rule) in enumerate(sorted(theory.RULES.items())):
-            ax.plot(span, rule(span, np.asarray(eps)), ":", color=f"C{len(laws) + j}", label=f"{name} at eps = {eps:g}")
+        for name, rule in sorted(theory.RULES.items()):
+            ax.plot(span, rule(span, np.asarray(eps)), ":", color=BOUND_COLOURS.get(name, "grey"), label=f"{name} at eps = {eps:g}")
     _log_x(ax)
     ax.set_yscale("log")
     ax.set_xlabel("n (points the JL theory counts)")
     ax.set_ylabel("k")
     ax.set_title(f"{family}: safe k against n" + ("" if eps is not None else " (no eps: bounds not drawn)"), fontsize=10)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     caption = ("Dots: measured safe k per size; solid: least-squares law over the measured sizes, dashed where it "
-               "extrapolates; dotted: published bounds at the eps the table states (" +
+               "extrapolates, drawn only where 1 <= k <= the largest projected dimension; dotted: published bounds "
+               "(one colour each, in every figure) at the eps the table states (" +
                (laws[0]["theory"]["eps_source"] if laws else "") + ").")
     return Plot(f"law-{family}", f"Safe k against n: {family}", caption, _png(figure))
 
@@ -158,7 +166,7 @@ def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
     entries = [entry for entry in analysis["entries"] if entry["family"] == family]
     measured = [entry for entry in entries if any(point["error_median"] is not None for point in entry["grid"])]
     metric = measured[0]["error_metric"] if measured else None
-    figure = Figure(figsize=(6.4, 4.4))
+    figure = Figure(figsize=(8.0, 4.4), layout="constrained")
     ax = figure.subplots()
     name = class_namer(entries)
 
@@ -189,13 +197,15 @@ def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
     ax.set_xlabel("speed-up (original solve / sketch + projected solve + retrieval, medians)")
     ax.set_ylabel(f"median |{metric}|" if metric else "failure rate")
     ax.set_title(f"{family}: error against speed-up", fontsize=10)
-    ax.legend(fontsize=7)
+    ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     caption = "One point per swept k; the ringed point is the safe k. Timings vary from run to run."
     return Plot(f"speedup-{family}", f"Error against speed-up: {family}", caption, _png(figure))
 
 
 def _compares_projectors(analysis: dict, family: str) -> bool:
-    return len({entry["projector"] for entry in analysis["entries"] if entry["family"] == family}) > 1
+    """Two projectors or more in the family, and at least one fitted k50 to draw."""
+    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
+    return len({entry["projector"] for entry in entries}) > 1 and any(entry["transition"]["k50"] for entry in entries)
 
 
 def projectors_plot(analysis: dict, family: str, target: dict) -> Plot:

@@ -12,19 +12,29 @@ import base64
 import json
 from html import escape
 
+from typing import Optional
+
 import pandas as pd
 
 from calib.analysis.plots import Plot, all_plots
 from calib.analysis.timing import speedup_at_safe_k
 
 _STYLE = """
-body { font-family: system-ui, sans-serif; margin: 2em auto; max-width: 1200px; color: #222; line-height: 1.4; }
+body { font-family: system-ui, sans-serif; margin: 1.5em auto; max-width: 1200px; padding: 0 1em; color: #222; line-height: 1.4; }
 h1, h2, h3 { color: #123; }
 .notice { border: 2px solid #b36b00; background: #fff4e0; padding: 0.8em 1em; border-radius: 6px; }
-table { border-collapse: collapse; margin: 0.5em 0 1.5em; font-size: 0.85em; }
-th, td { border: 1px solid #ccc; padding: 0.25em 0.5em; text-align: right; }
+.cards { display: grid; grid-template-columns: repeat(auto-fill, minmax(340px, 1fr)); gap: 1em; }
+.card { border: 1px solid #c8d3de; border-radius: 8px; padding: 0.6em 0.9em; background: #fbfcfe; }
+.card h3 { margin: 0.1em 0 0.4em; font-size: 1em; }
+.card p { margin: 0.35em 0; font-size: 0.85em; }
+.card .none { color: #8a4b00; }
+.muted { color: #666; }
+table { border-collapse: collapse; margin: 0.5em 0 1.2em; font-size: 0.8em; max-width: 100%; }
+th, td { border: 1px solid #ccc; padding: 0.2em 0.45em; text-align: right; vertical-align: top; white-space: nowrap; }
 th { background: #eef2f6; }
-td.text, th.text { text-align: left; }
+td.text, th.text { text-align: left; white-space: normal; overflow-wrap: break-word; }
+td.note { text-align: left; white-space: normal; min-width: 12em; max-width: 28em; }
+.fold { overflow-x: auto; max-width: 100%; }
 figure { margin: 1.5em 0; }
 figure img { max-width: 100%; border: 1px solid #ddd; }
 figcaption { font-size: 0.85em; color: #555; }
@@ -32,21 +42,32 @@ pre { background: #f6f8fa; padding: 1em; overflow-x: auto; font-size: 0.8em; }
 """
 
 
+_NOTE_LENGTH = 40  # text cells longer than this wrap in a note column
+
+
+def _number(value) -> str:
+    """4 significant digits; an exact zero (e.g. a Wilson bound of 0/n) prints as 0."""
+    return "0" if value == 0 else f"{value:.4g}"
+
+
 def _cell(value) -> str:
     if value is None or (isinstance(value, float) and pd.isna(value)):
         return "<td>–</td>"
+    if isinstance(value, bool):
+        return f"<td>{'yes' if value else 'no'}</td>"
     if isinstance(value, float):
-        return f"<td>{value:.4g}</td>"
-    if isinstance(value, (int, bool)):
+        return f"<td>{_number(value)}</td>"
+    if isinstance(value, int):
         return f"<td>{value}</td>"
-    return f'<td class="text">{escape(str(value))}</td>'
+    text = str(value).replace(",", ", ")  # sizes like rows=60,cols=120 may wrap after a comma
+    return f'<td class="{"note" if len(text) > _NOTE_LENGTH else "text"}">{escape(text)}</td>'
 
 
 def html_table(header: list[str], lines: list[list]) -> str:
-    """An HTML table; text cells left-aligned, numbers right-aligned with 4 significant digits."""
+    """An HTML table inside a folding wrapper; long texts wrap, numbers right-aligned with 4 digits."""
     head = "".join(f'<th class="text">{escape(name)}</th>' for name in header)
     body = "\n".join("<tr>" + "".join(_cell(value) for value in line) + "</tr>" for line in lines)
-    return f"<table>\n<tr>{head}</tr>\n{body}\n</table>"
+    return f'<div class="fold"><table>\n<tr>{head}</tr>\n{body}\n</table></div>'
 
 
 def _interval(values) -> str:
@@ -59,6 +80,62 @@ def _size_text(analysis: dict):
 
     label = class_labels(analysis)
     return lambda entry: " ".join(filter(None, [entry["size"], label(entry)]))
+
+
+TOLERANCE_WORDS = {"gap": "projected optimum's gap", "obj": "objective error", "feas": "infeasibility",
+                   "sign": "sign/cone violation", "distortion": "worst pairwise distortion"}
+
+
+def predicate_text(predicate: dict) -> str:
+    """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
+    checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
+              if key in TOLERANCE_WORDS and isinstance(value, (int, float)) and not isinstance(value, bool)]
+    if predicate.get("classify"):
+        checks.append("the feasibility verdict matches the original's")
+    extras = [f"{key.replace('_', ' ')}" for key, value in sorted(predicate.items())
+              if key not in TOLERANCE_WORDS and key not in ("name", "classify") and value is True]
+    return f"{predicate['name']}: " + "; ".join(checks + extras) if checks or extras else predicate["name"]
+
+
+def _k_text(k, fraction) -> str:
+    return "none" if k is None else f"{k} ({fraction:.0%} of m)"
+
+
+def _law_text(law: Optional[dict]) -> str:
+    if law is None:
+        return "no law across sizes"
+    if law["C"] is None:
+        return f"No law across sizes: {law['reason']}."
+    rules = "; ".join(f"{name} C = {rule['C']:.4g}" for name, rule in sorted(law["rules"].items()) if rule["C"] is not None)
+    censored = f" ({law['censored']} censored size(s) not fitted)" if law["censored"] else ""
+    return (f"Law ({law['scope']} scope): safe k ≈ {law['a']:.3g} + {law['C']:.3g} ln n{censored}; published bounds at "
+            f"eps = {law['eps']:g}: {rules}.")
+
+
+def answer_card(answer: dict, taus: list) -> str:
+    """One class: its safe k per size in both scopes, the policy k, the ladder, the law and the time."""
+    title = " ".join(filter(None, [answer["family"], answer["label"]]))
+    header = ["size", "m", "instances", "class safe k", "these instances"]
+    with_policy = any(line["policy_answer"] is not None for line in answer["sizes"])
+    header += ["policy k"] if with_policy else []
+    lines = []
+    for line in answer["sizes"]:
+        row = [line["size"], line["m"], line["instances"], _k_text(line["class_safe_k"], line["class_fraction"]),
+               _k_text(line["safe_k"], line["fraction"])]
+        if with_policy:
+            row.append("no k saves time" if line["policy_k"] is None else line["policy_k"])
+        lines.append(row)
+    parts = [f'<div class="card"><h3>{escape(title)} · {escape(answer["projector"])} · {escape(answer["retrieval"])}</h3>',
+             html_table(header, lines)]
+    refusals = sorted({line["class_reason"] for line in answer["sizes"] if line["class_safe_k"] is None and line["class_reason"]})
+    parts += [f'<p class="none">Class: {escape(reason)}.</p>' for reason in refusals[:1]]
+    for other in answer["ladder"]:
+        values = ", ".join("none" if k is None else str(k) for k in other["safe_k"])
+        parts.append(f'<p class="muted">At tau = {other["tau"]:g} (these instances): {escape(values)}.</p>')
+    parts.append(f"<p>{escape(_law_text(answer['law']))}</p>")
+    time = answer["time"]
+    parts.append(f'<p class="{"none" if time.startswith("no saving") else ""}">Time: {escape(time)}.</p></div>')
+    return "\n".join(parts)
 
 
 def entries_table(analysis: dict) -> str:
@@ -85,18 +162,21 @@ def entries_table(analysis: dict) -> str:
 
 def laws_table(analysis: dict) -> str:
     """One line per class: the fitted laws and the published constants with their ratios."""
+    from calib.analysis.tables import class_labels
+
+    label = class_labels(analysis)
     rules = sorted({name for law in analysis["laws"] for name in law["theory"]["rules"]})
-    header = ["family", "params", "projector", "retrieval", "safe k: a", "C", "C s.e.", "n range", "residuals",
+    header = ["family", "class", "projector", "retrieval", "safe k: a", "C", "C s.e.", "n range", "residuals",
               "why no law", "k50: a", "k50: C"] + [f"{rule} C (ratio)" for rule in rules]
     lines = []
     for law in analysis["laws"]:
         safe, k50, theory = law["safe_k_law"], law["k50_law"], law["theory"]["rules"]
         residuals = ", ".join(f"{p['residual']:.3g}" for p in safe["points"] if p["residual"] is not None)
         n_range = f"[{safe['n_min']}, {safe['n_max']}]" if safe["n_min"] is not None else None
-        line = [law["family"], json.dumps(law["class_params"], sort_keys=True), law["projector"], law["retrieval"],
-                safe["a"], safe["C"], safe["C_se"], n_range, residuals or None, safe["reason"], k50["a"], k50["C"]]
+        line = [law["family"], label(law) or None, law["projector"], law["retrieval"],
+                safe["a"], safe["C"], safe["C_se"], n_range, residuals or None, safe["reason"] or None, k50["a"], k50["C"]]
         line += [f"{theory[rule]['C']:.4g}" + (f" ({theory[rule]['ratio']:.3g}×)" if theory[rule]["ratio"] else "")
-                 if rule in theory else None for rule in rules]
+                 if rule in theory and theory[rule]["C"] is not None else None for rule in rules]
         lines.append(line)
     return html_table(header, lines)
 
@@ -109,8 +189,8 @@ def grid_table(analysis: dict) -> str:
     size = _size_text(analysis)
     lines = [[entry["family"], size(entry), entry["projector"], entry["retrieval"], point["k"], point["trials"],
               point["successes"], point["errors"], point["solver_errors"], point["instances"], point["rate"],
-              point["lower_bound"], point["wilson_lower"], "yes" if point["passes"] else "no", point["class_lower_bound"],
-              "yes" if point["class_passes"] else "no", point["error_median"], point["error_q90"]]
+              point["lower_bound"], point["wilson_lower"], point["passes"], point["class_lower_bound"],
+              point["class_passes"], point["error_median"], point["error_q90"]]
              for entry in analysis["entries"] for point in entry["grid"]]
     return html_table(header, lines)
 
@@ -125,38 +205,53 @@ def _frame_table(frame: pd.DataFrame) -> str:
     return html_table(list(frame.columns), frame.astype(object).where(frame.notna(), None).values.tolist())
 
 
-def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
-    """The HTML text of the report."""
+def _campaign_table(table: dict) -> str:
     campaign, target = table["campaign"], table["target"]
+    return html_table(["field", "value"], [
+        ["campaign", campaign["name"]], ["spec fingerprint", campaign["spec_fingerprint"]],
+        ["root seed", campaign["root_seed"]], ["code version", table["code_version"]],
+        ["target success rate", target["success_rate"]], ["confidence", target["confidence"]],
+        ["bound", target["bound"]], ["class bound", target["class_bound"]], ["interval", target["interval"]],
+        ["solver errors", target["solver_errors_rule"]], ["time limits", target["time_limit"]],
+        ["eps of the bounds", table["theory"]["eps_convention"]], ["table checksum", table["checksum"]]])
+
+
+def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
+    """The HTML text of the report: the answer per class first, then figures, then the detailed tables."""
+    from calib.analysis.answers import class_answers
+    from calib.analysis.tables import class_labels
+
+    campaign, target = table["campaign"], table["target"]
+    first = table["analyses"][0]
+    taus = [analysis["tau"] for analysis in table["analyses"]]
+    ladder = ("" if len(taus) < 2 else " The table holds a ladder of tolerances, tau = " +
+              ", ".join(f"{tau:g}" for tau in taus if tau is not None) + "; the cards use the strictest and list the others.")
+    answers = class_answers(table, first, timings, class_labels(first))
     parts = [
         "<!DOCTYPE html>", '<html lang="en"><head><meta charset="utf-8">',
+        '<meta name="viewport" content="width=device-width, initial-scale=1">',
         f"<title>calib report: {escape(str(campaign['name']))}</title><style>{_STYLE}</style></head><body>",
         f"<h1>calib report: {escape(str(campaign['name']))}</h1>",
         f'<p class="notice"><strong>Read this first.</strong> {escape(table["notice"])}</p>',
-        "<h2>Campaign</h2>",
-        html_table(["field", "value"], [
-            ["campaign", campaign["name"]], ["spec fingerprint", campaign["spec_fingerprint"]],
-            ["root seed", campaign["root_seed"]], ["code version", table["code_version"]],
-            ["target success rate", target["success_rate"]], ["confidence", target["confidence"]],
-            ["bound", target["bound"]], ["class bound", target["class_bound"]], ["interval", target["interval"]],
-            ["solver errors", target["solver_errors_rule"]], ["time limits", target["time_limit"]],
-            ["eps of the bounds", table["theory"]["eps_convention"]], ["table checksum", table["checksum"]]]),
+        "<h2>The answer, per class</h2>",
+        f"<p>Safe k: the smallest k whose success rate is at least {target['success_rate']:g} with "
+        f"{target['confidence']:.0%} confidence, for the class (the default answer: instances are the unit) and for "
+        f"the instances measured. Success: {escape(predicate_text(first['predicate']))}.{escape(ladder)}</p>",
+        '<div class="cards">', *[answer_card(answer, taus) for answer in answers], "</div>",
     ]
-    for analysis in table["analyses"]:
-        predicate = ", ".join(f"{key} = {value}" for key, value in analysis["predicate"].items())
-        parts += [f"<h2>Safe k: predicate {escape(analysis['predicate']['name'])}, tau = {analysis['tau']}</h2>",
-                  f"<p>Predicate: {escape(predicate)}.</p>"]
-        parts += [f"<p>Left out: {escape(item['family'])} ({escape(item['reason'])}).</p>" for item in analysis["excluded"]]
-        parts += [entries_table(analysis), "<h3>Scaling law across sizes</h3>", laws_table(analysis),
-                  "<details><summary>Every k of every cell</summary>", grid_table(analysis), "</details>"]
-    first = table["analyses"][0]
-    parts += [f"<h2>Figures (predicate {escape(first['predicate']['name'])}, tau = {first['tau']})</h2>"]
+    parts += [f"<p>Left out: {escape(item['family'])} ({escape(item['reason'])}).</p>" for item in first["excluded"]]
+    parts += [f"<h2>Figures ({escape(predicate_text(first['predicate']))})</h2>"]
     parts += [_figure(plot) for plot in all_plots(table, first, timings)]
-    parts += ["<h2>Time saved</h2>",
+    parts += ["<h2>Time against the original</h2>",
               "<p>Median times in seconds; they vary from run to run and are therefore kept out of the safe-k table "
               "(written apart by <code>calib tables --timings</code>).</p>",
               "<h3>Speed-up at the safe k</h3>", _frame_table(speedup_at_safe_k(timings)),
-              "<details><summary>Every k</summary>", _frame_table(timings), "</details>",
+              "<details><summary>Every k</summary>", _frame_table(timings), "</details>"]
+    for analysis in table["analyses"]:
+        parts += [f"<h2>Detailed table: {escape(predicate_text(analysis['predicate']))}</h2>",
+                  entries_table(analysis), "<h3>Scaling law across sizes</h3>", laws_table(analysis),
+                  "<details><summary>Every k of every cell</summary>", grid_table(analysis), "</details>"]
+    parts += ["<h2>Campaign</h2>", _campaign_table(table),
               "<h2>Sweep spec</h2>", f"<pre>{escape(json.dumps(spec, indent=2, sort_keys=True))}</pre>",
               f'<p class="notice">{escape(table["notice"])}</p>', "</body></html>"]
     return "\n".join(parts) + "\n"

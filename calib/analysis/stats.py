@@ -74,10 +74,13 @@ def wilson_lower(successes, trials, confidence: float = 0.95):
 
     >>> round(float(wilson_lower(9, 10, 0.95)), 4)
     0.6523
+    >>> float(wilson_lower(0, 30))
+    0.0
     """
     x, n = _counts(successes, trials)
     z = special.ndtri(confidence)
     p = x / n
     centre = p + z**2 / (2 * n)
     spread = z * np.sqrt(p * (1 - p) / n + z**2 / (4 * n**2))
-    return (centre - spread) / (1 + z**2 / n)
+    # x = 0 gives exactly 0 (centre = spread); rounding must not print it as 6e-18
+    return np.where(x <= 0, 0.0, (centre - spread) / (1 + z**2 / n))

@@ -1,0 +1,95 @@
+"""The answer per class, in a few numbers: what the report's cards and the text summary lead with.
+
+A *class* is a family with its non-size parameters, a projector and a retrieval; its cells are its
+sizes. For one analysis (one tolerance) of a table, :func:`class_answers` gathers per class:
+
+- per size: m (the projected dimension), the instances measured, the safe k in each scope
+  (class first, the default answer; then these instances) with k / m, and the policy k or the
+  explicit "no k saves time" when the table carries the policy block;
+- the safe k of the instances scope at every other tolerance of the table's ladder;
+- the fitted law k = a + C ln n (class scope when it has one, else the instances scope, said which)
+  beside the published constants C at the table's eps, or why there is no law;
+- time: the best median speed-up of the reduced pipeline over the original's baseline, or
+  "no saving" when every measured k was slower end to end.
+
+Pure functions of the table (and the timings frame of :mod:`calib.analysis.timing`); no HTML here.
+"""
+
+from __future__ import annotations
+
+import json
+from typing import Optional
+
+import pandas as pd
+
+#: said when no measured (cell, k) of a class ran faster than the original's baseline
+NO_SAVING = "no saving: at every measured k the reduced pipeline was slower end to end than the original"
+
+
+def _key(item: dict) -> tuple:
+    return (item["family"], json.dumps(item["class_params"], sort_keys=True), item["projector"], item["retrieval"])
+
+
+def _fraction(k: Optional[int], m: int) -> Optional[float]:
+    return None if k is None else k / m
+
+
+def size_line(entry: dict) -> dict:
+    """One size of a class: m, instances, both scopes' safe k with k / m, policy answer."""
+    policy = entry.get("policy")
+    scope = entry["class"]
+    return {"size": entry["size"], "m": entry["projected_dim"], "n": entry["n_points"], "instances": entry["instances"],
+            "class_safe_k": scope["safe_k"], "class_fraction": _fraction(scope["safe_k"], entry["projected_dim"]),
+            "class_reason": scope["reason"], "safe_k": entry["safe_k"],
+            "fraction": _fraction(entry["safe_k"], entry["projected_dim"]), "reason": entry["safe_k_reason"],
+            "policy_k": None if policy is None else policy["k"],
+            "policy_answer": None if policy is None else policy["answer"]}
+
+
+def law_line(law: dict) -> dict:
+    """The class's law: the class-scope one when it exists, else the instances-scope one, with the bounds' C."""
+    for scope, name in (("class", "class_safe_k_law"), ("instances", "safe_k_law")):
+        fitted = law.get(name)
+        if fitted and fitted["C"] is not None:
+            return {"scope": scope, "a": fitted["a"], "C": fitted["C"], "censored": fitted.get("censored", 0),
+                    "reason": "", "eps": law["theory"]["eps"], "rules": law["theory"]["rules"]}
+    fitted = law.get("safe_k_law") or {}
+    return {"scope": None, "a": None, "C": None, "censored": fitted.get("censored", 0),
+            "reason": fitted.get("reason", "no law"), "eps": law["theory"]["eps"], "rules": law["theory"]["rules"]}
+
+
+def time_line(timings: pd.DataFrame, key: tuple) -> str:
+    """The best median speed-up of the class over its sizes and k, or :data:`NO_SAVING`."""
+    if timings is None or timings.empty:
+        return "not measured"
+    family, _, projector, retrieval = key
+    mine = timings[timings["family"].eq(family) & timings["projector"].eq(projector) & timings["retrieval"].eq(retrieval)]
+    speedups = pd.to_numeric(mine["speedup"], errors="coerce")
+    if not speedups.notna().any():
+        return "not measured"
+    best = mine.loc[speedups.idxmax()]
+    if float(best["speedup"]) <= 1.0:
+        return NO_SAVING
+    return f"saves time: best median speed-up {float(best['speedup']):.3g}× at k = {int(best['k'])} ({best['size']})"
+
+
+def class_answers(table: dict, analysis: dict, timings: Optional[pd.DataFrame], label) -> list[dict]:
+    """One answer per class of ``analysis`` (module docstring); ``label(entry)`` names the class parameters."""
+    laws = {_key(law): law for law in analysis["laws"]}
+    ladder = [other for other in table["analyses"] if other is not analysis]
+    classes: dict[tuple, list] = {}
+    for entry in analysis["entries"]:
+        classes.setdefault(_key(entry), []).append(entry)
+    answers = []
+    for key, entries in sorted(classes.items()):
+        entries = sorted(entries, key=lambda entry: (entry["n_points"], entry["size"]))
+        first = entries[0]
+        others = []
+        for other in ladder:
+            by_size = {entry["size"]: entry["safe_k"] for entry in other["entries"] if _key(entry) == key}
+            others.append({"tau": other["tau"], "safe_k": [by_size.get(entry["size"]) for entry in entries]})
+        answers.append({"family": first["family"], "label": label(first), "projector": first["projector"],
+                        "retrieval": first["retrieval"], "kind": first["kind"],
+                        "sizes": [size_line(entry) for entry in entries], "ladder": others,
+                        "law": law_line(laws[key]) if key in laws else None, "time": time_line(timings, key)})
+    return answers
