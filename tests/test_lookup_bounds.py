@@ -105,7 +105,7 @@ def test_mps_file_and_size_keys_give_n_and_m(tmp_path, capsys):
     from calib.analysis.tablefile import dumps, seal
 
     table = TABLES[0]
-    full = seal({"format": "calib.safe-k", "format_version": 2, **table})
+    full = seal({"format": "calib.safe-k", "format_version": 3, **table})
     table_path.write_text(dumps(full))
     # the schema refuses this partial table: the command must say so in one line, exit code 2
     assert main(["lookup", str(table_path), "--family", FAMILY, "--size", "rows=100,cols=400",

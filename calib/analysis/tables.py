@@ -119,7 +119,7 @@ def _per_k(cell: pd.DataFrame) -> pd.DataFrame:
 
 def _grid(stats: CellStats, per_k: pd.DataFrame, solver_errors: pd.Series) -> list[dict]:
     klass = stats.klass
-    return [{"k": int(k), "k_source": per_k.at[k, "k_label"] or "", "trials": int(stats.trials[i]),
+    return [{"k": int(k), "k_label": per_k.at[k, "k_label"] or "", "trials": int(stats.trials[i]),
              "successes": int(stats.successes[i]), "errors": int(per_k.at[k, "errors"]),
              "solver_errors": int(solver_errors.get(k, 0)), "instances": int(stats.instances_per_k[i]),
              "rate": num(stats.successes[i] / stats.trials[i]), "lower_bound": num(stats.lower[i]),

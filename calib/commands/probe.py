@@ -229,14 +229,14 @@ def run(args: argparse.Namespace) -> int:
         _check_projector(choice, k, m)
     original = handler.solve_original(target.problem, solver)
     payloads = []
-    for k, k_source in chosen:
+    for k, k_label in chosen:
         records = []
         for replicate in range(args.replicates):
             rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver)
             records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
         summary = summarise(records, target.kind, predicate, confidence)
-        print(("\n" if payloads else "") + render(target, original, choice, k, k_source, m, records, summary, predicate, confidence))
-        payloads.append({"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_source": k_source,
+        print(("\n" if payloads else "") + render(target, original, choice, k, k_label, m, records, summary, predicate, confidence))
+        payloads.append({"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_label": k_label,
                          "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
                          "summary": summary})
     if args.json is not None:
@@ -403,7 +403,7 @@ def _pairs(record: dict, fields) -> str:
     return "  ".join(f"{field} {_fmt(record[field])}" for field in fields if record.get(field) is not None)
 
 
-def render(target: Target, original, choice, k: int, k_source: str, m: int, records: list[dict], summary: dict,
+def render(target: Target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
            predicate, confidence) -> str:
     """The human-readable report of a probe."""
     objective = f", objective {_fmt(original.objective)}" if original.ok else ""
@@ -411,7 +411,7 @@ def render(target: Target, original, choice, k: int, k_source: str, m: int, reco
     lines = [
         f"probe: {target.label} ({target.kind}; projected dimension m = {m})",
         f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
-        f"projector {choice.label}, k = {k} ({k_source}), {len(replicates)} replicates",
+        f"projector {choice.label}, k = {k} ({k_label}), {len(replicates)} replicates",
         "",
     ]
     for replicate in replicates:
