@@ -319,6 +319,28 @@ def eps_from_k(rule: str, n: int, k: int) -> float:
     return float(bound.eps(check_points(n), check_k(k)))
 
 
+#: how each kind counts n (the points the JL theory counts) and the projected dimension m: the one
+#: text ``calib families``, ``calib probe`` and the docs show (the functions below compute them)
+COUNTING = {
+    "lp": "n = the columns of the standard form's A plus b (cols + 1), the points a row projection T A, T b "
+          "must keep; m = the rows of A (its equality constraints), reduced to k",
+    "sdp": "n = d(d + 1)/2 + 1 for order d, the svec columns of [A | b] a constraint projection must keep; "
+           "m = the number of linear constraints, reduced to k",
+    "qp": "n = the rows of A plus c and the optimum (rows + 2), the vectors a variable projection x = T^T u "
+          "must keep; m = the number of variables, reduced to k",
+    "points": "n = the number of points; m = their dimension, reduced to k",
+}
+
+
+def counting(kind: str) -> str:
+    """How ``kind`` counts n and m (:data:`COUNTING`).
+
+    >>> counting("points")
+    'n = the number of points; m = their dimension, reduced to k'
+    """
+    return COUNTING[kind]
+
+
 def lp_points(n_cols: int) -> int:
     """Points an LP row projection must keep: the n columns of A and b (n + 1)."""
     return int(n_cols) + 1

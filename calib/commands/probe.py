@@ -36,6 +36,7 @@ from typing import Any
 import numpy as np
 
 from calib.errors import InputError
+from calib.theory import counting
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "retrieval_iterations", "widening_rounds",
@@ -266,8 +267,9 @@ def find_k(args: argparse.Namespace, target: Target, choice, retrievals: list[st
         for replicate in range(len(done), count):
             done.append(_trial_success(target, choice, k, replicate, original, retrieval, solver, predicate))
         search.offer(done[:count])
-    objective = f", objective {_fmt(original.objective)}" if original.ok else ""
-    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m})",
+    objective = f", objective {_objective(original.objective)}" if original.ok else ""
+    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
+             f"  n and m: {counting(target.kind)}",
              f"original: {original.status}{objective}",
              f"projector {choice.label}, retrieval {retrieval}, k in [{low}, {high}], at most {args.max_trials} trials per k",
              f"target: success rate >= {confidence.target:g} under {target_text(predicate, confidence.target)}"]
@@ -399,19 +401,37 @@ def _fmt(value) -> str:
     return f"{value:.4g}"
 
 
+#: printed with :func:`_objective`: an optimum is only of use with its digits
+OBJECTIVES = ("orig_objective", "proj_objective")
+
+
+def _objective(value) -> str:
+    """An objective value with 12 significant digits.
+
+    >>> _objective(-2331389.8243), _objective(7.0), _objective(None)
+    ('-2331389.8243', '7', 'None')
+    """
+    return str(value) if value is None else f"{float(value):.12g}"
+
+
+def _field(field: str, value) -> str:
+    return _objective(value) if field in OBJECTIVES else _fmt(value)
+
+
 def _pairs(record: dict, fields) -> str:
-    return "  ".join(f"{field} {_fmt(record[field])}" for field in fields if record.get(field) is not None)
+    return "  ".join(f"{field} {_field(field, record[field])}" for field in fields if record.get(field) is not None)
 
 
 def render(target: Target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
            predicate, confidence) -> str:
     """The human-readable report of a probe."""
-    objective = f", objective {_fmt(original.objective)}" if original.ok else ""
+    objective = f", objective {_objective(original.objective)}" if original.ok else ""
     replicates = sorted({r["replicate"] for r in records})
     lines = [
-        f"probe: {target.label} ({target.kind}; projected dimension m = {m})",
+        f"probe: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
+        f"  n and m: {counting(target.kind)}",
         f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
-        f"projector {choice.label}, k = {k} ({k_label}), {len(replicates)} replicates",
+        f"projector {choice.label}, k = {k} ({k_label}), {len(replicates)} replicate{'' if len(replicates) == 1 else 's'}",
         "",
     ]
     for replicate in replicates:
@@ -439,4 +459,4 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
 
 
 def _stat_lines(metrics: dict) -> list[str]:
-    return [f"    {field:<22} {_fmt(stats['median'])} / {_fmt(stats['max'])}" for field, stats in metrics.items()]
+    return [f"    {field:<22} {_field(field, stats['median'])} / {_field(field, stats['max'])}" for field, stats in metrics.items()]
