@@ -57,6 +57,7 @@ import numpy as np
 from scipy import special
 
 from calib.analysis.stats import clopper_pearson_lower
+from calib.wording import counted
 
 
 @dataclass(frozen=True)
@@ -302,6 +303,6 @@ def advice_text(advice: dict, target: float, confidence: float) -> str:
         klass = (f"the class: only if the {advice['instances']} instances agree closely (intraclass correlation upper "
                  f"limit <= {advice['class_rho_max']:.2g}); sure with {needed} instances (add {advice['instances_to_add']})")
     else:
-        klass = (f"the class: cannot certify {level} with {advice['instances']} instance(s) x {advice['replicates']} "
-                 f"replicate(s); use instances = {needed} (add {advice['instances_to_add']})")
+        klass = (f"the class: cannot certify {level} with {counted(advice['instances'], 'instance')} x "
+                 f"{counted(advice['replicates'], 'replicate')}; use instances = {needed} (add {advice['instances_to_add']})")
     return f"{mine}; {klass}"

@@ -37,6 +37,7 @@ import numpy as np
 
 from calib.errors import InputError
 from calib.theory import counting
+from calib.wording import counted
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "retrieval_iterations", "widening_rounds",
@@ -431,7 +432,7 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
         f"probe: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
         f"  n and m: {counting(target.kind)}",
         f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
-        f"projector {choice.label}, k = {k} ({k_label}), {len(replicates)} replicate{'' if len(replicates) == 1 else 's'}",
+        f"projector {choice.label}, k = {k} ({k_label}), {counted(len(replicates), 'replicate')}",
         "",
     ]
     for replicate in replicates:
