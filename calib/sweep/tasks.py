@@ -16,12 +16,11 @@ from __future__ import annotations
 import functools
 import math
 import time
-import traceback
 from collections import OrderedDict
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Optional, Union
 
+from calib.errors import describe_exception
 from calib.sweep.trial import InstanceRef, Trial
 
 #: built instances kept per worker process (most recently used)
@@ -113,13 +112,6 @@ def built_instance(ref: InstanceRef):
     while len(_instances) > INSTANCE_CACHE_SIZE:
         _instances.popitem(last=False)
     return instance
-
-
-def describe_exception(error: BaseException) -> str:
-    """``Type: text (at file.py:line)`` of the innermost frame, on one line."""
-    frames = traceback.extract_tb(error.__traceback__)
-    where = f" (at {Path(frames[-1].filename).name}:{frames[-1].lineno})" if frames else ""
-    return f"{type(error).__name__}: {error}{where}".replace("\n", " ")
 
 
 def solve_original(task: OriginalTask) -> dict:
