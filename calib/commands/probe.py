@@ -41,7 +41,7 @@ from calib.wording import counted
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "retrieval_iterations", "widening_rounds",
-                    "iterations_saved", "t_retrieve", "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
+                    "iterations_saved", "t_retrieve", "t_factor", "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
 #: fields that describe the projection and its solve (shared by the retrievals of one replicate)
 PROJECTION_FIELDS = ("proj_status", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
                      "proj_iterations", "t_sketch", "t_solve_proj")
