@@ -7,4 +7,4 @@ __version__ = "0.1.0"
 
 #: Version of the trial-identity and store layout. Part of every trial id: bump it when a change
 #: alters the numbers a trial produces, so old and new rows are never mixed in one campaign.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2

@@ -60,15 +60,15 @@ class FaultyLPHandler(LPHandler):
     kind = "lp-faulty"
 
     @staticmethod
-    def solve_original(lp, solver):
+    def solve_baseline(lp, solver):
         if lp.name.endswith("|segfault"):
             _misbehave("segfault")
-        return LPHandler.solve_original(lp, solver)
+        return LPHandler.solve_baseline(lp, solver)
 
     @staticmethod
-    def trial_records(lp, original, projector, retrievals, solver):
+    def trial_records(lp, original, projector, retrievals, solver, baseline=None):
         _misbehave(FAULTS_BY_K.get(projector.k, "none"))
-        return LPHandler.trial_records(lp, original, projector, retrievals, solver)
+        return LPHandler.trial_records(lp, original, projector, retrievals, solver, baseline)
 
 
 def _build(params, rng):

@@ -34,7 +34,7 @@ def test_metrics_are_checked_only_on_kinds_that_fill_them():
     rows = _rows({"kind": "qp", "obj_error": 0.01, "feas_error": 0.01},
                  {"kind": "lp", "obj_error": 0.01, "feas_error": 0.01},
                  {"kind": "lp", "obj_error": 0.01, "feas_error": 0.01, "sign_violation": 0.01})
-    assert evaluate(rows, PRESETS["solution"]).tolist() == [True, False, True]
+    assert evaluate(rows, PRESETS["usable"]).tolist() == [True, False, True]
 
 
 def test_point_sets_are_judged_by_distortion_and_left_out_otherwise():
@@ -49,8 +49,8 @@ def test_point_sets_are_judged_by_distortion_and_left_out_otherwise():
 
 
 def test_explicit_tolerances_and_the_tau_ladder():
-    predicate = make_predicate("solution", feas=0.2)
-    assert (predicate.name, predicate.obj, predicate.feas) == ("solution+custom", 0.05, 0.2)
+    predicate = make_predicate("usable", feas=0.2)
+    assert (predicate.name, predicate.obj, predicate.feas) == ("usable+custom", 0.05, 0.2)
     assert primary_tau(predicate) == 0.2
     assert with_tau(PRESETS["bound"], 0.01).gap == 0.01
     assert with_tau(PRESETS["distortion"], 0.3).distortion == 0.3

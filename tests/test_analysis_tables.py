@@ -218,7 +218,52 @@ def test_tables_command_writes_timings_apart(store_path, tmp_path, capsys):
     assert main(["tables", str(store_path), "--json", str(json_path), "--timings", str(timings), "--tau", "0.05"]) == 0
     assert "seconds" not in json_path.read_text() and "_s\"" not in json_path.read_text()
     frame = pd.read_csv(timings)
-    assert {"orig_median_s", "reduced_median_s", "speedup", "at_safe_k"} <= set(frame.columns)
+    assert {"baseline_median_s", "reduced_median_s", "speedup", "faster_share", "at_safe_k"} <= set(frame.columns)
     at_safe = frame[frame["at_safe_k"]]
     assert len(at_safe) == 3 and np.all(at_safe["speedup"] > 0)
     assert main(["tables", str(store_path), "--delta", "1.5"]) == 2
+
+
+def test_policy_table_validates_recounts_and_shows_in_lookup_and_tables(store_path, tmp_path, capsys):
+    # The policy block is recounted here from the stored rows (pandas, not calib's aggregation), its
+    # bound is scipy's beta quantile (Clopper-Pearson), and the schema is checked by jsonschema.
+    from calib.analysis.tables import load_rows
+
+    store = Store.open_existing(store_path)
+    try:
+        table = build_table(store, make_predicate("usable"), Confidence(), policy=True)
+        rows = load_rows(store)
+    finally:
+        store.close()
+    jsonschema.Draft202012Validator(schema()).validate(json.loads(dumps(table)))
+    entries = table["analyses"][0]["entries"]
+    for entry in (entries[0], entries[-1]):  # lp-farkas (infeasible) and the largest lp-planted
+        _check_policy_block(entry, rows)
+    path = tmp_path / "policy.json"
+    write_table(table, json_path=path)
+    assert main(["lookup", str(path), "--family", "lp-planted", "--n", "121", "--projector", "gaussian"]) == 0
+    assert "policy (measured at" in capsys.readouterr().out
+    assert main(["tables", str(store_path), "--policy"]) == 0
+    assert "policy k" in capsys.readouterr().out
+
+
+def _check_policy_block(entry, rows):
+    from calib.analysis.policy import NO_SAVING
+
+    block = entry["policy"]
+    cell = rows[(rows["family"] == entry["family"]) & (rows["size"] == entry["size"])
+                & (rows["projector"] == entry["projector"]) & (rows["retrieval"] == entry["retrieval"])]
+    for point in block["grid"]:
+        at_k = cell[cell["k"] == point["k"]]
+        total = pd.to_numeric(at_k["t_total"])
+        usable = (((at_k["orig_status"] == "optimal") & (at_k["proj_status"] == "optimal")
+                   & (pd.to_numeric(at_k["obj_error"]) <= 0.05) & (pd.to_numeric(at_k["feas_error"]) <= 0.05)
+                   & (pd.to_numeric(at_k["sign_violation"]) <= 0.05))
+                  | ((at_k["orig_status"] == "infeasible") & (at_k["proj_status"] == "infeasible")))
+        saved = pd.to_numeric(at_k["iterations_saved"])  # an exact retrieval counts when it saves time and iterations
+        faster = (total < pd.to_numeric(at_k["t_baseline"])) & (saved.isna() | (saved > 0))
+        assert point["successes"] == int((usable & faster).sum())
+        expected = 0.0 if point["successes"] == 0 else stats.beta.ppf(0.05, point["successes"], len(at_k) - point["successes"] + 1)
+        assert point["lower_bound"] == pytest.approx(expected, rel=5e-4, abs=1e-12)  # 4 significant digits stored
+        assert point["time_median_s"] == pytest.approx(total.median(), rel=1e-3)
+    assert (block["k"] is None) == (block["answer"] == NO_SAVING)

@@ -113,7 +113,7 @@ def test_rows_carry_provenance(tmp_path):
     assert json.loads(row[0])[-1] == row[1] == 424242
     assert json.loads(row[2]) == {"time_limit_s": 20.0, "trial_timeout_s": 100.0}
     assert {"calib", "numpy", "scipy", "highspy", "python"} <= set(versions)
-    assert meta["store_format"] == "2" and meta["root_seed"] == "424242"
+    assert meta["store_format"] == "3" and meta["root_seed"] == "424242"
 
 
 FAULTY_SPEC = """

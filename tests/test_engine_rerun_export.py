@@ -162,11 +162,14 @@ def test_a_format_1_store_is_migrated_and_resumed(campaign, tmp_path):
         db.execute("DELETE FROM trials WHERE replicate = 1")
         db.execute("ALTER TABLE trials DROP COLUMN root_seed")
         db.execute("ALTER TABLE trials DROP COLUMN solver_options")
+        for column in ("baseline_method", "baseline_seconds", "methods"):  # format 3's instance columns
+            db.execute(f"ALTER TABLE instances DROP COLUMN {column}")
         db.execute("DELETE FROM campaign WHERE key IN ('store_format', 'spec_name', 'plugins')")
     summary = run_campaign(load_spec(spec_path), old.parent, inline=True)
     assert (summary.skipped, summary.ran) == (30, 30)
     with sqlite3.connect(old) as db:
-        assert db.execute("SELECT value FROM campaign WHERE key = 'store_format'").fetchone()[0] == "2"
+        assert db.execute("SELECT value FROM campaign WHERE key = 'store_format'").fetchone()[0] == "3"
+        assert db.execute("SELECT COUNT(*) FROM instances WHERE baseline_seconds IS NULL").fetchone()[0] > 0
         nulls = db.execute("SELECT COUNT(*) FROM trials WHERE root_seed IS NULL").fetchone()[0]
         old_trial = db.execute("SELECT trial_id FROM trials WHERE root_seed IS NULL LIMIT 1").fetchone()[0]
     assert nulls == 30

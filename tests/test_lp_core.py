@@ -31,6 +31,27 @@ def test_netlib_feasible_reproduces_published_optimum(name):
     assert abs(result.objective - expected) <= 1e-8 * abs(expected)
 
 
+@pytest.mark.parametrize("name", sorted(_optima()))
+def test_netlib_simplex_and_interior_point_agree_on_the_published_optimum(name):
+    # Source: Netlib lp/data readme (published optimal values, optima.csv). Both methods of the fair
+    # baseline, interior point with and without crossover, reach the published value to 1e-7 (relative).
+    lp = read_mps(NETLIB / "feasible" / f"{name}.mps").to_standard().lp
+    expected = _optima()[name]
+    for method, need_basis in (("simplex", True), ("ipm", False), ("ipm", True)):
+        result = solve_lp(lp, method=method, need_basis=need_basis)
+        assert result.status == "optimal", (method, need_basis)
+        assert result.options["solver"] == method
+        assert (result.basis is not None) == need_basis or method == "simplex"
+        assert abs(result.objective - expected) <= 1e-7 * abs(expected), (method, need_basis)
+
+
+@pytest.mark.parametrize("name", ["box1", "itest2", "itest6", "klein1", "woodinfe"])
+def test_netlib_infeasible_reported_infeasible_by_interior_point(name):
+    # Source: Netlib lp/infeas collection: the interior-point method must reach the same verdict.
+    result = solve_lp(read_mps(NETLIB / "infeasible" / f"{name}.mps").to_standard().lp, method="ipm", need_basis=False)
+    assert result.feasible is False, result.solver_message
+
+
 @pytest.mark.parametrize("name", ["box1", "itest2", "itest6", "klein1", "woodinfe"])
 def test_netlib_infeasible_reported_infeasible(name):
     # Source: Netlib lp/infeas collection: every problem there has no feasible point.

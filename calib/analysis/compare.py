@@ -221,9 +221,9 @@ def _ratio_quartiles(a: pd.Series, b: pd.Series) -> dict:
 
 
 def end_to_end_seconds(rows: pd.DataFrame) -> pd.Series:
-    """Per row: sketch + projected solve + retrieval seconds (NaN when the sketch time is missing)."""
-    parts = rows[["t_solve_proj", "t_retrieve"]].apply(pd.to_numeric, errors="coerce").fillna(0.0)
-    return pd.to_numeric(rows["t_sketch"], errors="coerce") + parts.sum(axis=1)
+    """Per row: the stored end-to-end time ``t_total`` (sketch + projected solve + retrieval, repairs and
+    warm solves included; :mod:`calib.metrics`), NaN where it is missing."""
+    return pd.to_numeric(rows["t_total"], errors="coerce")
 
 
 def cost(matched: pd.DataFrame) -> dict:
@@ -332,6 +332,11 @@ def verdict(result: dict, confidence: Confidence) -> str:
         share = (k50s["ratio"] - 1.0) * 100.0
         direction = f"{share:.0f}% more" if share >= 0 else f"{-share:.0f}% less"
         return f"{a} needs {direction} k than {b} for the same success ({evidence}){_speed_text(result)}"
+    if test["p"] is not None and test["p"] <= alpha:  # a difference without a transition to size it in k
+        word = "less" if test["mean_difference"] < 0 else "more"
+        return (f"{a} succeeds {word} often than {b} at the same k (mean difference {test['mean_difference']:+.3g} "
+                f"over the common k; {evidence}); no k50 to size it in k (the success curves have no fitted "
+                f"transition){_speed_text(result)}")
     minimum = instances_for_any_detection(alpha)
     if result["instances"] < minimum:
         reach = f"{result['instances']} instances can never show a difference at {alpha:g}; at least {minimum} are needed"

@@ -101,6 +101,8 @@ def separation(k, successes, trials) -> Optional[tuple[str, tuple]]:
     (8.0, 8.0)
     >>> separation([4, 8, 16], [1, 2, 5], [5, 5, 5]) is None
     True
+    >>> separation([200, 800], [2, 0], [2, 2])[0].split(":")[0]
+    'reversed separation'
     """
     k = np.asarray(k, dtype=float)
     successes = np.asarray(successes, dtype=float)
@@ -119,6 +121,11 @@ def separation(k, successes, trials) -> Optional[tuple[str, tuple]]:
     if highest_failure == lowest_success:
         return (f"quasi-complete separation: k={lowest_success:g} is the only k with both outcomes; the "
                 f"transition lies there"), (lowest_success, lowest_success)
+    highest_success, lowest_failure = float(k[successes > 0].max()), float(k[failures > 0].min())
+    if highest_success <= lowest_failure:  # success only at the smaller k (e.g. larger k hit the time limit)
+        return (f"reversed separation: trials succeed only up to k={highest_success:g} and fail from "
+                f"k={lowest_failure:g} (larger projected problems failing, e.g. at the time limit): no "
+                f"increasing fit"), (lowest_failure, highest_success)
     return None
 
 

@@ -346,7 +346,21 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
     if k_model is not None and query.m is not None and k_model > query.m:
         k_model, model_reason = None, f"{NO_REDUCTION} (the model reaches the target at k = {model.k_at(confidence.target):.3g} > m = {query.m})"
     answer |= {"k_model": k_model, "model_reason": model_reason}
-    return answer
+    return answer | policy_at(entries, query.n)
+
+
+def policy_at(entries: list[dict], n: int) -> dict:
+    """``{"policy": ...}``: the policy answer measured at the size nearest to n (on ln n), when the table has it.
+
+    The policy k rests on measured times at one size; it is not extrapolated across sizes.
+    """
+    nearest = min(entries, key=lambda entry: abs(math.log(entry["n_points"]) - math.log(n)))
+    block = nearest.get("policy")
+    if block is None:
+        return {}
+    return {"policy": {"from_size": nearest["size"], "n": nearest["n_points"], "k": block["k"], "answer": block["answer"],
+                       "time_median_s": block["time_median_s"], "baseline_median_s": block["baseline_median_s"],
+                       "speedup": block["speedup"]}}
 
 
 def _interpolate_error(entry: dict, k: float) -> dict:
@@ -377,4 +391,13 @@ def success_for(table: dict, query: Query, k: int) -> dict:
             "nearest_measured": {"size": nearest["size"], "n": nearest["n_points"], "k": measured["k"],
                                  "rate": measured["rate"], "lower_bound": measured["lower_bound"],
                                  "trials": measured["trials"]},
-            "error": _interpolate_error(nearest, k)}
+            "error": _interpolate_error(nearest, k)} | _policy_point(nearest, k)
+
+
+def _policy_point(entry: dict, k: int) -> dict:
+    """``{"policy_at_k": ...}``: usable-and-faster trials at the measured k nearest to ``k``, when the table has them."""
+    block = entry.get("policy")
+    if block is None:
+        return {}
+    point = min(block["grid"], key=lambda p: abs(math.log(p["k"]) - math.log(k)))
+    return {"policy_at_k": {"size": entry["size"], **point, "policy_k": block["k"], "answer": block["answer"]}}

@@ -13,13 +13,32 @@ success by a predicate that only looks at LP gaps).
 
 Presets (README, "Reading the table"):
 
-- ``bound``: the projected optimum is within ``gap`` of the original optimum (relative, absolute
-  value), i.e. the projected problem is a trustworthy bound.
-- ``solution``: the retrieved point's objective error, feasibility error and sign violation are
-  each within their tolerance.
+- ``usable`` (the default): the answer a user gets back is usable. The feasibility verdict
+  matches, and the point returned by *that* retrieval meets the objective-error and feasibility
+  tolerances of its kind (lp: ||A x - b|| and the sign violation; sdp: the affine residual and
+  the PSD violation; qp: its constraints), every error relative to the kind's scale of
+  :mod:`calib.metrics`. Each retrieval gets its own verdict. (``solution`` is the former name.)
+- ``policy``: ``usable`` and faster end to end than the fair baseline (below).
+- ``bound``: the projected optimum is within ``gap`` of the original optimum (relative to the
+  objective's scale), i.e. the projected problem is a trustworthy bound; the same verdict for
+  every retrieval of one projected solve, since it never looks at a retrieved point.
 - ``classify``: only the feasibility verdict of the projected problem must match the original.
 - ``distortion``: point sets; the worst pairwise distortion of squared distances is at most
   ``distortion`` (this tolerance is the JL eps itself).
+
+Cost (``faster``, set by the ``policy`` preset or ``--faster`` on any preset): a trial of an LP, SDP
+or QP also needs t_total < t_baseline, i.e. sketch + projected solve + this retrieval (with its
+extra solves) took less wall time than the original solved by its fastest configured method; a
+warm start must also have saved simplex iterations (iterations_saved > 0). Such a verdict depends
+on measured times, so it can differ between two runs of one campaign.
+
+Exact retrievals (``exact`` in the record: a warm start, or a restricted repair that widened to all
+columns) return the original's own optimum: their errors are zero by construction, so their
+success is about saving time, never about error. With the cost condition (``policy``,
+``--faster``) they succeed exactly when they save time. Under a preset that judges the retrieved
+point without it (``usable``, custom ``obj``/``feas``/``sign``) they count as failures: the
+reduction gave no answer of its own, and those presets must not depend on measured times (their
+tables are byte-identical between runs). ``bound`` and ``classify`` never look at the point.
 
 The *primary tolerance* tau of a preset is the tolerance(s) it sets; :func:`with_tau` moves them
 together, which is how a table carries a ladder of tolerances.
@@ -56,6 +75,7 @@ class Predicate:
     sign: Optional[float] = None
     distortion: Optional[float] = None
     classify: bool = True
+    faster: bool = False
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -69,21 +89,32 @@ class Predicate:
         """Whether the predicate decides anything on rows of ``kind``."""
         return bool(self.checks(kind)) or (self.classify and kind in OPTIMIZATION_KINDS)
 
+    def judges_points(self) -> bool:
+        """Whether the predicate looks at retrieved points (then exact retrievals must save time)."""
+        return any(getattr(self, key) is not None for key in ("obj", "feas", "sign"))
+
     def error_metric(self, kind: str) -> Optional[str]:
         """The stored metric reported as "the error" of rows of ``kind`` (first checked one)."""
         checked = self.checks(kind)
         return TOLERANCE_METRICS[checked[0]] if checked else None
 
 
+#: the default preset of `calib tables`, `report` and `probe` (of an LP, SDP or QP)
+DEFAULT_PRESET = "usable"
+
 PRESETS = {
+    "usable": Predicate("usable", gap=None, obj=0.05, feas=0.05, sign=0.05),
+    "policy": Predicate("policy", gap=None, obj=0.05, feas=0.05, sign=0.05, faster=True),
     "bound": Predicate("bound", gap=0.05),
-    "solution": Predicate("solution", gap=None, obj=0.05, feas=0.05, sign=0.05),
     "classify": Predicate("classify", gap=None),
     "distortion": Predicate("distortion", gap=None, distortion=0.2, classify=False),
 }
+#: former preset names still accepted
+ALIASES = {"solution": "usable"}
 
 #: preset -> tolerances that its tau moves
-PRIMARY = {"bound": ("gap",), "solution": ("obj", "feas", "sign"), "classify": (), "distortion": ("distortion",)}
+PRIMARY = {"usable": ("obj", "feas", "sign"), "policy": ("obj", "feas", "sign"), "bound": ("gap",), "classify": (),
+           "distortion": ("distortion",)}
 
 
 def _positive(value, where: str) -> float:
@@ -93,14 +124,16 @@ def _positive(value, where: str) -> float:
     return float(value)
 
 
-def make_predicate(preset: str = "bound", **overrides) -> Predicate:
-    """A preset with some tolerances overridden (validated: each must be > 0 and finite).
+def make_predicate(preset: str = DEFAULT_PRESET, faster: bool = False, **overrides) -> Predicate:
+    """A preset with some tolerances overridden (validated: each must be > 0 and finite), and
+    ``faster`` to require the cost condition on top of any preset.
 
     >>> make_predicate("bound", gap=0.01).gap
     0.01
-    >>> make_predicate("solution", feas=0.1).name
-    'solution+custom'
+    >>> make_predicate("usable", feas=0.1).name, make_predicate("bound", faster=True).name
+    ('usable+custom', 'bound+faster')
     """
+    preset = ALIASES.get(preset, preset)
     if preset not in PRESETS:
         raise InputError("--preset", f"unknown preset {preset!r}", f"choose one of {', '.join(sorted(PRESETS))}")
     values = {}
@@ -108,7 +141,10 @@ def make_predicate(preset: str = "bound", **overrides) -> Predicate:
         if value is not None:
             values[key] = _positive(value, f"--tol-{key}")
     predicate = replace(PRESETS[preset], **values)
-    return replace(predicate, name=f"{preset}+custom") if values else predicate
+    name = f"{preset}+custom" if values else preset
+    if faster and not predicate.faster:
+        predicate, name = replace(predicate, faster=True), f"{name}+faster"
+    return replace(predicate, name=name)
 
 
 def preset_of(predicate: Predicate) -> str:
@@ -119,7 +155,7 @@ def preset_of(predicate: Predicate) -> str:
 def primary_tau(predicate: Predicate) -> Optional[float]:
     """The primary tolerance of the predicate (the largest of the ones its preset moves), or None.
 
-    >>> primary_tau(PRESETS["solution"])
+    >>> primary_tau(PRESETS["usable"])
     0.05
     >>> primary_tau(PRESETS["classify"]) is None
     True
@@ -131,15 +167,36 @@ def primary_tau(predicate: Predicate) -> Optional[float]:
 def with_tau(predicate: Predicate, tau: float) -> Predicate:
     """The predicate with its primary tolerance(s) set to ``tau``.
 
-    >>> with_tau(PRESETS["solution"], 0.1).feas
+    >>> with_tau(PRESETS["usable"], 0.1).feas
     0.1
     """
     keys = PRIMARY.get(preset_of(predicate), ())
     if not keys:
         raise InputError("--tau", f"preset {preset_of(predicate)!r} has no tolerance to vary",
-                         "use --preset bound, solution or distortion with --tau")
+                         "use --preset usable, policy, bound or distortion with --tau")
     tau = _positive(tau, "--tau")
     return replace(predicate, **{key: tau for key in keys})
+
+
+def _numbers(rows: pd.DataFrame, column: str) -> pd.Series:
+    import pandas as pd
+
+    if column not in rows:
+        return pd.Series(np.nan, index=rows.index)
+    return pd.to_numeric(rows[column], errors="coerce")
+
+
+def saves_time(rows: pd.DataFrame) -> pd.Series:
+    """Per row: faster end to end than the fair baseline (t_total < t_baseline), and for a warm start
+    fewer simplex iterations than the cold solve (iterations_saved > 0 where recorded).
+
+    >>> import pandas as pd
+    >>> saves_time(pd.DataFrame({"t_total": [1.0, 3.0, 1.0], "t_baseline": [2.0, 2.0, 2.0],
+    ...                          "iterations_saved": [None, None, -4]})).tolist()
+    [True, False, False]
+    """
+    total, baseline, saved = _numbers(rows, "t_total"), _numbers(rows, "t_baseline"), _numbers(rows, "iterations_saved")
+    return total.lt(baseline) & (saved.isna() | saved.gt(0))
 
 
 def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
@@ -165,5 +222,9 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
         values = pd.to_numeric(rows[column], errors="coerce").abs()
         # a checked metric that is missing where it applies is a failure, never a pass
         success &= ~applies | (values.le(tolerance) & values.notna())
+    if predicate.faster:
+        success &= ~rows["kind"].isin(OPTIMIZATION_KINDS) | saves_time(rows)
+    elif predicate.judges_points() and "exact" in rows:
+        success &= ~rows["exact"].eq(True)  # solved the original: no answer of the reduction, and no time to judge it by
     covered = rows["kind"].map(predicate.covers).astype(bool)
     return success & covered

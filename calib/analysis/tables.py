@@ -28,7 +28,10 @@ left out of the rates unless ``solver_errors="fail"``); a time limit is a failur
 
 A table holds one analysis per tolerance of a ladder (``taus``), all at one confidence target.
 Timings are not part of the table (they differ between two runs of one campaign, the table must
-not): see :mod:`calib.analysis.timing`. These are empirical statements, not proofs.
+not): see :mod:`calib.analysis.timing`. The one exception is asked for explicitly: the policy
+answer (:mod:`calib.analysis.policy`, ``policy=True`` or a predicate requiring time saved) rests
+on measured times, and a table carrying it can differ between runs. These are empirical
+statements, not proofs.
 """
 
 from __future__ import annotations
@@ -43,6 +46,7 @@ import pandas as pd
 
 from calib import SCHEMA_VERSION, __version__, theory
 from calib.analysis import bounds
+from calib.analysis import policy as policy_answer
 # safe_k_rule and load_rows are also imported from here by lookup, export and older callers
 from calib.analysis.cells import CellStats, cell_stats, instances_needed
 from calib.analysis.saferule import ALL_PASS, Confidence, censored_law, censoring, class_namer, safe_k_rule  # noqa: F401  (re-exported)
@@ -201,7 +205,7 @@ def cell_entry(cell: pd.DataFrame, predicate: Predicate, confidence: Confidence,
         "transition": transition(stats.fit, confidence),
         "theory": _theory(first["kind"], n_points, stats.safe_k, stats.class_safe_k, predicate, eps, confidence.delta),
         "grid": _grid(stats, _per_k(kept), solver_by_k),
-    }
+    } | policy_answer.entry_block(kept, confidence)
 
 
 # ----- per class: laws ----------------------------------------------------------------------
@@ -302,8 +306,9 @@ def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
 
 
 def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None,
-                   solver_errors: str = "exclude") -> dict:
-    """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws."""
+                   solver_errors: str = "exclude", policy: bool = False) -> dict:
+    """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws;
+    with ``policy`` (or a predicate that requires saving time) each entry carries its policy answer."""
     unbounded, excluded_unbounded = unbounded_exclusions(rows)
     rows = rows[~unbounded]
     covered = rows["kind"].map(predicate.covers).astype(bool)
@@ -316,6 +321,8 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
         rows = rows[covered]
         rows = rows.assign(success=evaluate(rows, predicate).astype(int), error=_error_column(rows, predicate),
                            solver_error=solver_error_mask(rows))
+        if policy or predicate.faster:
+            rows = pd.concat([rows, policy_answer.row_columns(rows, predicate)], axis=1)
         for key, cell in rows.groupby(CELL_KEYS, sort=True):
             entry = cell_entry(cell, predicate, confidence, eps, solver_errors)
             if entry is None:
@@ -345,8 +352,9 @@ def check_solver_errors(value: str) -> str:
 
 def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                 taus: Optional[Iterable[float]] = None, eps: Optional[float] = None,
-                rows: Optional[pd.DataFrame] = None, solver_errors: str = "exclude") -> dict:
-    """The JSON-ready safe-k table of a store: one analysis per tau of the ladder (or the predicate alone)."""
+                rows: Optional[pd.DataFrame] = None, solver_errors: str = "exclude", policy: bool = False) -> dict:
+    """The JSON-ready safe-k table of a store: one analysis per tau of the ladder (or the predicate alone);
+    ``policy`` adds the policy answer of :mod:`calib.analysis.policy` (it rests on measured times)."""
     solver_errors = check_solver_errors(solver_errors)
     rows = load_rows(store) if rows is None else rows
     if rows.empty:
@@ -369,7 +377,7 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
         "theory": {"rules": sorted(theory.RULES), "eps_choice": eps, "eps_convention": bounds.EPS_CONVENTION,
                    "failure": confidence.delta},
         "notice": NOTICE,
-        "analyses": [build_analysis(rows, each, confidence, eps, solver_errors) for each in predicates],
+        "analyses": [build_analysis(rows, each, confidence, eps, solver_errors, policy) for each in predicates],
     }
     return seal(table)
 
@@ -389,6 +397,8 @@ def table_to_frame(table: dict) -> pd.DataFrame:
                      "class_reason": entry["class"]["reason"], "cell_solver_errors": entry["solver_errors"]}
             base |= {"k50": entry["transition"]["k50"], "k_target": entry["transition"]["k_target"],
                      "law_a": law["a"], "law_C": law["C"], "error_metric": entry["error_metric"]}
+            if "policy" in entry:
+                base["policy_k"] = entry["policy"]["k"]
             for point in entry["grid"]:
                 lines.append({**base, **point})
     frame = pd.DataFrame(lines)

@@ -1,9 +1,12 @@
-"""Time saved: the original solve against sketch + projected solve + retrieval, per cell and k.
+"""Times against the fair baseline: the original's fastest method against sketch + projected solve
++ retrieval, per cell and k.
 
-Per (family, size, projector, retrieval, k): the median original solve time over the cell's
-instances (each instance is solved once and cached), the medians of the sketch time (draw T and
-apply it), the projected solve time and the retrieval time over the trials, the median of their
-sum per trial, and the speed-up = median original / median reduced pipeline. Rows of the safe k
+Per (family, size, projector, retrieval, k): the median baseline time over the cell's instances
+(each original is solved once per configured method and the fastest reaching the verdict is the
+baseline, :mod:`calib.solvers.methods`), the medians of the sketch time (draw T and apply it), the
+projected solve time and the retrieval time (with any extra solves) over the trials, the median
+end-to-end time t_total per trial, the speed-up = median baseline / median end to end (below 1:
+the reduction cost time), and the share of trials faster than their baseline. Rows of the safe k
 (from a table analysis) are marked, so the speed-up at the safe k can be read off.
 
 Timings differ between two runs of the same campaign, so they are kept out of the safe-k table
@@ -18,16 +21,19 @@ import pandas as pd
 from calib.analysis.tables import CELL_KEYS, num
 from calib.keys import canonical_json
 
-COLUMNS = ["orig_median_s", "sketch_median_s", "solve_median_s", "retrieve_median_s", "reduced_median_s", "speedup"]
+COLUMNS = ["baseline_median_s", "sketch_median_s", "solve_median_s", "retrieve_median_s", "reduced_median_s", "speedup",
+           "faster_share"]
 
 
 def _cell_timings(cell: pd.DataFrame) -> pd.Series:
-    orig = cell.drop_duplicates("instance_id")["orig_seconds"].median()
     ok = cell[cell["status"].eq("ok")]
-    parts = ok[["t_sketch", "t_solve_proj", "t_retrieve"]].apply(pd.to_numeric, errors="coerce")
-    reduced = parts.fillna(0.0).sum(axis=1).median() if not ok.empty else np.nan
-    speedup = orig / reduced if reduced and np.isfinite(reduced) and reduced > 0 else np.nan
-    values = [orig, parts["t_sketch"].median(), parts["t_solve_proj"].median(), parts["t_retrieve"].median(), reduced, speedup]
+    parts = ok[["t_sketch", "t_solve_proj", "t_retrieve", "t_total", "t_baseline"]].apply(pd.to_numeric, errors="coerce")
+    baseline = parts.loc[~ok["instance_id"].duplicated(), "t_baseline"].median() if not ok.empty else np.nan  # one per instance
+    reduced = parts["t_total"].median() if not ok.empty else np.nan
+    speedup = baseline / reduced if reduced and np.isfinite(reduced) and reduced > 0 else np.nan
+    faster = float(parts["t_total"].lt(parts["t_baseline"]).mean()) if not ok.empty else np.nan
+    values = [baseline, parts["t_sketch"].median(), parts["t_solve_proj"].median(), parts["t_retrieve"].median(), reduced,
+              speedup, faster]
     return pd.Series([num(value, 4) for value in values], index=COLUMNS)
 
 
@@ -45,7 +51,12 @@ def timing_frame(rows: pd.DataFrame, analysis: dict) -> pd.DataFrame:
 def speedup_at_safe_k(timings: pd.DataFrame) -> pd.DataFrame:
     """One line per cell that has a safe k: its speed-up there."""
     return timings[timings["at_safe_k"]][["family", "size", "params", "projector", "retrieval", "k", "reduced_median_s",
-                                         "orig_median_s", "speedup"]].reset_index(drop=True)
+                                         "baseline_median_s", "speedup", "faster_share"]].reset_index(drop=True)
+
+
+def nothing_saved(timings: pd.DataFrame) -> bool:
+    """True when no (cell, k) has a median end-to-end time below its median baseline."""
+    return not bool(pd.to_numeric(timings["speedup"], errors="coerce").gt(1.0).any())
 
 
 def write_timings(timings: pd.DataFrame, path) -> None:

@@ -126,6 +126,10 @@ def render(answer: dict) -> str:
             lines.append(f"flag: {answer['flag']}")
         lines.append(f"logistic model: success reaches {1 - answer['delta']:.3g} at k = {_fmt(answer['k_model'])}"
                      + (f" ({answer['model_reason']})" if answer["model_reason"] else ""))
+        if "policy" in answer:
+            policy = answer["policy"]
+            lines.append(f"policy (measured at {policy['from_size']}): "
+                         + (f"k = {policy['k']}, {policy['answer']}" if policy["k"] is not None else policy["answer"]))
     else:
         near = answer["nearest_measured"]
         error = answer["error"]
@@ -133,6 +137,11 @@ def render(answer: dict) -> str:
                      + (f" ({answer['model_reason']})" if answer["model_reason"] else ""))
         lines.append(f"measured at {near['size']}, k={near['k']}: rate {near['rate']:.3f}, lower bound "
                      f"{near['lower_bound']:.3f} over {near['trials']} trials")
+        if "policy_at_k" in answer:
+            point = answer["policy_at_k"]
+            lines.append(f"usable and faster than the fair baseline at {point['size']}, k={point['k']}: {point['successes']} "
+                         f"trials, lower bound {_fmt(point['lower_bound'])}, median {_fmt(point['time_median_s'])} s against "
+                         f"{_fmt(point['baseline_median_s'])} s; policy k there: {_fmt(point['policy_k'], '')}")
         if error["metric"]:
             lines.append(f"error {error['metric']} at {error['from_size']}: median {_fmt(error['median'])}, "
                          f"90th percentile {_fmt(error['q90'])}")

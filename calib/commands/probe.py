@@ -40,12 +40,15 @@ from calib.theory import counting
 from calib.wording import counted
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
-RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "retrieval_iterations", "widening_rounds",
-                    "iterations_saved", "t_retrieve", "t_factor", "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
+RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "exact", "retrieval_iterations",
+                    "widening_rounds", "columns_share", "iterations_saved", "warm_seconds_saved", "t_retrieve", "t_factor", "t_total",
+                    "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
 #: fields that describe the projection and its solve (shared by the retrievals of one replicate)
-PROJECTION_FIELDS = ("proj_status", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
+PROJECTION_FIELDS = ("proj_status", "proj_method", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
                      "proj_iterations", "t_sketch", "t_solve_proj")
 MPS_SUFFIXES = (".mps", ".mps.gz")
+#: closing line of every probe: what the numbers are and are not
+NOTICE_LINE = ("These are measurements on this instance and machine, not a proof; end-to-end times vary between runs.")
 
 
 def register(subparsers) -> None:
@@ -211,13 +214,14 @@ def _check_retrievals(args: argparse.Namespace, kind: str) -> list[str]:
 def run(args: argparse.Namespace) -> int:
     from calib.outputs import check_target, write_file
     from calib.reduce import HANDLERS
+    from calib.solvers.methods import baseline_info
     from calib.sweep.trial import Trial, run_trial
 
     _check_numbers(args)
     check_target(args.json, "--json")
     choice = _projector_choice(args)
     target = resolve_target(args)
-    predicate, confidence = _predicate(args, "distortion" if target.kind == "points" else "bound")
+    predicate, confidence = _predicate(args, "distortion" if target.kind == "points" else "usable")
     handler = HANDLERS[target.kind]
     retrievals = _check_retrievals(args, target.kind)
     m = handler.projected_dim(target.problem)
@@ -229,17 +233,22 @@ def run(args: argparse.Namespace) -> int:
     chosen = choose_ks(args, m, target.n_points)
     for k, _ in chosen:
         _check_projector(choice, k, m)
-    original = handler.solve_original(target.problem, solver)
+    baseline = handler.solve_baseline(target.problem, solver)
+    original = baseline.result
     payloads = []
     for k, k_label in chosen:
         records = []
         for replicate in range(args.replicates):
-            rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver)
+            rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver,
+                             baseline_info(baseline))
             records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
         summary = summarise(records, target.kind, predicate, confidence)
-        print(("\n" if payloads else "") + render(target, original, choice, k, k_label, m, records, summary, predicate, confidence))
+        print(("\n" if payloads else "") + render(target, original, choice, k, k_label, m, records, summary, predicate, confidence,
+                                                           baseline))
         payloads.append({"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_label": k_label,
                          "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
+                         "baseline": {"method": baseline.fastest, "seconds": baseline.seconds,
+                                      "methods": baseline.summary()},
                          "summary": summary})
     if args.json is not None:
         payload = payloads[0] if len(payloads) == 1 else {"runs": payloads}
@@ -370,21 +379,26 @@ def summarise(records: list[dict], kind: str, predicate, confidence) -> dict:
     import pandas as pd
 
     from calib.analysis.stats import clopper_pearson_lower
-    from calib.analysis.success import evaluate
+    from calib.analysis.success import evaluate, saves_time
 
     first = [row for row in records if row["retrieval"] == records[0]["retrieval"]]
     statuses: dict = {}
     for row in first:
         statuses[str(row["proj_status"])] = statuses.get(str(row["proj_status"]), 0) + 1
-    success = evaluate(pd.DataFrame.from_records(records).assign(status="ok", kind=kind), predicate).tolist()
+    frame = pd.DataFrame.from_records(records).assign(status="ok", kind=kind)
+    success = evaluate(frame, predicate).tolist()
+    faster = saves_time(frame).tolist() if kind != "points" else [False] * len(records)
     out = {"projection": {"proj_status": statuses, "metrics": _summary_block(first, PROJECTION_FIELDS)}, "retrievals": {}}
     for name in dict.fromkeys(row["retrieval"] for row in records):
         picked = [ok for row, ok in zip(records, success) if row["retrieval"] == name]
-        successes, trials = int(sum(picked)), len(picked)
+        quick = [ok and fast for row, ok, fast in zip(records, success, faster) if row["retrieval"] == name]
+        successes, trials, policy = int(sum(picked)), len(picked), int(sum(quick))
         out["retrievals"][name] = {
             "metrics": _summary_block([row for row in records if row["retrieval"] == name], RETRIEVAL_FIELDS),
             "successes": successes, "trials": trials,
             "success_lower_bound": float(clopper_pearson_lower(successes, trials, confidence.level)),
+            "policy_successes": policy,
+            "policy_lower_bound": float(clopper_pearson_lower(policy, trials, confidence.level)),
         }
     return out
 
@@ -424,7 +438,7 @@ def _pairs(record: dict, fields) -> str:
 
 
 def render(target: Target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
-           predicate, confidence) -> str:
+           predicate, confidence, baseline=None) -> str:
     """The human-readable report of a probe."""
     objective = f", objective {_objective(original.objective)}" if original.ok else ""
     replicates = sorted({r["replicate"] for r in records})
@@ -435,6 +449,9 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
         f"projector {choice.label}, k = {k} ({k_label}), {counted(len(replicates), 'replicate')}",
         "",
     ]
+    if baseline is not None and target.kind != "points":
+        methods = ", ".join(f"{name} {r.status} {r.seconds:.4g} s" for name, r in baseline.results.items())
+        lines.insert(3, f"fair baseline: {baseline.fastest} ({baseline.seconds:.4g} s), the fastest of: {methods}")
     for replicate in replicates:
         rows = [r for r in records if r["replicate"] == replicate]
         lines.append(f"replicate {replicate}: " + _pairs(rows[0], PROJECTION_FIELDS))
@@ -447,15 +464,22 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
     lines += _stat_lines(projection["metrics"])
     checks = predicate.as_dict()
     tolerances = ", ".join(f"{key} <= {value:g}" for key, value in checks.items()
-                           if key not in ("name", "classify") and value is not None)
+                           if key not in ("name", "classify", "faster") and value is not None)
     if checks.get("classify"):
         tolerances = ", ".join(filter(None, ["feasibility verdict matches", tolerances]))
+    if checks.get("faster"):
+        tolerances = ", ".join(filter(None, [tolerances, "faster end to end than the fair baseline"]))
     for name, entry in summary["retrievals"].items():
         verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
         lines.append(f"  {name}: success {entry['successes']}/{entry['trials']} under '{predicate.name}' "
                      f"({tolerances or 'classification only'}), lower bound {entry['success_lower_bound']:.3f} "
                      f"at confidence {confidence.level:g}: {verdict} the target rate {1.0 - confidence.delta:g}")
+        if target.kind != "points":
+            verdict = "usable and faster" if entry["policy_lower_bound"] >= 1.0 - confidence.delta else "no time saved"
+            lines.append(f"    policy at k = {k}: {entry['policy_successes']}/{entry['trials']} usable and faster end to end "
+                         f"than the fair baseline, lower bound {entry['policy_lower_bound']:.3f}: {verdict} at this k")
         lines += _stat_lines(entry["metrics"])
+    lines += ["", NOTICE_LINE]
     return "\n".join(lines)
 
 

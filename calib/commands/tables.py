@@ -11,16 +11,20 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     from calib.analysis.success import PRESETS
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
-    group.add_argument("--preset", default=None, choices=sorted(PRESETS),
-                       help="'bound': the projected optimum is within --tol-gap of the original (default; "
-                            "`probe` of a point set defaults to 'distortion'); "
-                            "'solution': the retrieved point meets --tol-obj, --tol-feas and --tol-sign; "
+    group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
+                       help="'usable' (default; `probe` of a point set defaults to 'distortion'): the verdict matches and "
+                            "the point of each retrieval meets --tol-obj, --tol-feas and --tol-sign; "
+                            "'policy': usable and faster end to end than the original solved by its fastest method; "
+                            "'bound': the projected optimum is within --tol-gap of the original; "
                             "'classify': only the feasibility verdict must match; "
                             "'distortion': point sets, worst pairwise distortion within --tol-distortion")
+    group.add_argument("--faster", action="store_true",
+                       help="on any preset: a trial also has to be faster end to end (sketch + projected solve + "
+                            "retrieval) than the fair baseline; depends on measured times")
     group.add_argument("--tol-gap", type=float, metavar="TAU", help="relative gap of the projected optimum (bound preset: 0.05)")
-    group.add_argument("--tol-obj", type=float, metavar="TAU", help="relative objective error of the retrieved point (solution preset: 0.05)")
-    group.add_argument("--tol-feas", type=float, metavar="TAU", help="relative feasibility error ||Ax-b||/max(1,||b||) (solution preset: 0.05)")
-    group.add_argument("--tol-sign", type=float, metavar="TAU", help="relative sign violation ||min(x,0)||/max(1,||x||) (solution preset: 0.05)")
+    group.add_argument("--tol-obj", type=float, metavar="TAU", help="objective error of the retrieved point relative to the objective's scale (usable preset: 0.05)")
+    group.add_argument("--tol-feas", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
+    group.add_argument("--tol-sign", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
     group.add_argument("--tol-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
     group.add_argument("--delta", type=float, default=0.1, help="target success rate is 1 - delta (default 0.1)")
     group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound and the intervals (default 0.95)")
@@ -33,6 +37,10 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--tau", type=float, nargs="+", metavar="TAU",
                        help="a ladder of primary tolerances: one analysis per value, each setting the tolerance(s) of the preset "
                             "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
+    group.add_argument("--policy", action="store_true",
+                       help="add the policy answer per cell: the k with the smallest median end-to-end time among the k "
+                            "where usable-and-faster trials reach the target, or 'no k saves time at this size' (rests on "
+                            "measured times, so the table then differs between runs)")
     group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
                                                  "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
     group.add_argument("--solver-errors", default="exclude", metavar="{exclude,fail}",
@@ -41,18 +49,19 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                             "A time limit is always a failure")
 
 
-def predicate_from(args: argparse.Namespace, default_preset: str = "bound"):
+def predicate_from(args: argparse.Namespace, default_preset: str = "usable"):
     """(predicate, confidence) from the parsed options; ``default_preset`` when --preset is not given."""
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
-    predicate = make_predicate(args.preset or default_preset, gap=args.tol_gap, obj=args.tol_obj, feas=args.tol_feas,
-                               sign=args.tol_sign, distortion=args.tol_distortion)
+    predicate = make_predicate(args.preset or default_preset, faster=args.faster, gap=args.tol_gap, obj=args.tol_obj,
+                               feas=args.tol_feas, sign=args.tol_sign, distortion=args.tol_distortion)
     return predicate, Confidence(delta=args.delta, level=args.confidence)
 
 
-def analyse(args: argparse.Namespace):
-    """(table, tidy rows, stored spec) of ``args.store`` under the parsed analysis options."""
+def analyse(args: argparse.Namespace, policy: bool = False):
+    """(table, tidy rows, stored spec) of ``args.store`` under the parsed analysis options; the policy
+    answer is added when ``policy`` or ``--policy`` asks for it."""
     from calib.analysis.tables import build_table, load_rows
     from calib.errors import InputError
     from calib.sweep.store import Store
@@ -64,7 +73,8 @@ def analyse(args: argparse.Namespace):
     try:
         rows = load_rows(store)
         table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows,
-                            solver_errors=getattr(args, "solver_errors", "exclude"))
+                            solver_errors=getattr(args, "solver_errors", "exclude"),
+                            policy=policy or getattr(args, "policy", False))
         spec = store.stored_spec()
     finally:
         store.close()
@@ -175,6 +185,7 @@ def scope_lines(entry: dict) -> list[str]:
 
 def render_summary(table: dict) -> str:
     """A plain-text view: per tolerance, one block per cell (one line per k), then the laws."""
+    from calib.analysis.policy import policy_text
     from calib.analysis.tables import class_labels
 
     target = table["target"]
@@ -191,6 +202,8 @@ def render_summary(table: dict) -> str:
                          f"m={entry['projected_dim']} n={entry['n_points']}, {entry['instances']} instance(s)")
             lines += [f"   {line}" for line in scope_lines(entry)]
             lines.append(f"   {_transition_text(entry['transition'])}")
+            if "policy" in entry:
+                lines.append(f"   {policy_text(entry)}")
             if entry["solver_errors"]:
                 lines.append(f"   {entry['solver_errors']} projected solve(s) ended in a solver error: "
                              + ("left out of the rates" if table["target"]["solver_errors"] == "exclude" else "counted as failures"))

@@ -1,9 +1,12 @@
 """What every reduction handler shares: the trial skeleton and the retrieval-selection rule.
 
 A handler (one per problem kind) implements a few hooks (listed in :class:`Handler`): the
-projected dimension, the original solve, the reduction by a drawn projector, the reduced solve and
-the errors of an original-space point, plus its table of retrievals. :meth:`Handler.trial_records` runs one trial:
-one projected solve, then every selected retrieval on it, one :mod:`calib.metrics` record each.
+projected dimension, its solve methods, the reduction by a drawn projector, the objective's size
+and the errors of an original-space point, plus its table of retrievals.
+:meth:`Handler.trial_records` runs one trial: one projected solve, then every selected retrieval
+on it, one :mod:`calib.metrics` record each, each measured on its own point and timed end to end
+(sketch + projected solve + this retrieval with its extra solves) against the fair baseline of
+:mod:`calib.solvers.methods`.
 
 Retrieval selection (:meth:`Handler.retrieval_names`): of the retrieval names a spec or a probe
 asks for, a handler runs those its kind supports, in the order asked; when it supports none of
@@ -20,8 +23,9 @@ from typing import Any, Callable, ClassVar, Optional
 
 import numpy as np
 
-from calib.metrics import ratio, record, rel_diff
+from calib.metrics import record, relative, scale
 from calib.projectors.base import Projector
+from calib.solvers import methods as solve_methods
 from calib.solvers.result import SolveResult
 
 
@@ -45,6 +49,8 @@ class Context:
     reduced: Any
     projected: SolveResult
     solver: dict
+    #: the fair baseline of the original (:func:`calib.solvers.methods.baseline_info`), empty when unknown
+    baseline: dict = field(default_factory=dict)
 
     @property
     def time_limit(self) -> float:
@@ -55,11 +61,14 @@ class Handler:
     """Base class of the per-kind reductions.
 
     Subclasses define, as static methods: ``projected_dim(problem) -> int`` (the dimension m that
-    T of shape (k, m) shrinks), ``solve_original(problem, solver) -> SolveResult``,
-    ``reduce(problem, projector) -> reduced``, ``solve_reduced(reduced, solver) -> SolveResult`` and
-    ``point_metrics(problem, x) -> dict`` (feas_error and, where the class has a cone, sign_violation).
-    ``solver`` is the spec's solver table (``time_limit_s`` in seconds, optional ``highs``/``scs``
-    option tables).
+    T of shape (k, m) shrinks), ``solve_with(problem, method, solver, need_basis) -> SolveResult or
+    None`` (None: the method does not apply), ``reduce(problem, projector) -> reduced``,
+    ``reduced_problem(reduced)`` (the solvable problem inside it), ``objective_size(problem, x)``
+    (the objective's size at x without cancellation, see :mod:`calib.metrics`) and
+    ``point_metrics(problem, x, x_ref) -> dict`` (feas_error and, where the class has a cone,
+    sign_violation; ``x_ref`` is the reference point of the feasibility scale). ``solver`` is the
+    spec's solver table (``time_limit_s`` in seconds, optional ``highs``/``scs`` option tables,
+    ``methods`` and ``projected``, see :mod:`calib.solvers.methods`).
     """
 
     kind: ClassVar[str] = ""
@@ -68,6 +77,45 @@ class Handler:
     default_retrieval: ClassVar[str] = ""
     #: "relaxation" (projected optimum <= original) or "restriction" (>=): the sign of proj_gap
     bound: ClassVar[str] = "relaxation"
+    #: retrievals that read the projected basis (the projected solve must return one)
+    basis_retrievals: ClassVar[frozenset] = frozenset()
+
+    @classmethod
+    def solve_baseline(cls, problem, solver: dict) -> solve_methods.Baseline:
+        """The original solved by every configured method (:func:`calib.solvers.methods.race`)."""
+        return solve_methods.race(lambda name: cls.solve_with(problem, name, solver, False),
+                                  solve_methods.configured(cls.kind, solver))
+
+    @classmethod
+    def solve_original(cls, problem, solver: dict) -> SolveResult:
+        """The reference solve of the original (the first configured method that reaches a verdict)."""
+        return cls.solve_baseline(problem, solver).result
+
+    @classmethod
+    def projected_method(cls, problem, solver: dict) -> str:
+        """The method of a projected solve: the spec's ``projected`` choice, ``auto`` by default."""
+        chosen = (solver.get("projected") or {}).get(cls.kind, "auto")
+        return cls.auto_method(problem) if chosen == "auto" else chosen
+
+    @classmethod
+    def auto_method(cls, problem) -> str:
+        """The ``auto`` method: the first default method that applies (LPs override this)."""
+        return solve_methods.DEFAULT_METHODS[cls.kind][0]
+
+    @classmethod
+    def solve_reduced(cls, reduced, solver: dict, need_basis: bool = True) -> SolveResult:
+        problem = cls.reduced_problem(reduced)
+        method = cls.projected_method(problem, solver)
+        result = cls.solve_with(problem, method, solver, need_basis)
+        if result is None:  # the named method does not apply to this problem: its first default does
+            method = cls.auto_method(problem)
+            result = cls.solve_with(problem, method, solver, need_basis)
+        result.method = method
+        return result
+
+    @staticmethod
+    def reduced_problem(reduced):
+        return reduced
 
     @classmethod
     def retrieval_names(cls, requested: Optional[list[str]]) -> list[str]:
@@ -77,33 +125,55 @@ class Handler:
 
     @classmethod
     def trial_records(cls, problem, original: SolveResult, projector: Projector, retrievals: list[str],
-                      solver: dict) -> list[dict]:
-        """One metrics record per selected retrieval, all sharing one projected solve."""
+                      solver: dict, baseline: Optional[dict] = None) -> list[dict]:
+        """One metrics record per selected retrieval, all sharing one projected solve.
+
+        ``baseline`` holds the fair baseline of the original (:func:`calib.solvers.methods.baseline_info`);
+        without it the original's own solve time is the baseline.
+        """
+        baseline = {key: value for key, value in (baseline or {}).items() if value is not None}
+        baseline.setdefault("seconds", original.seconds)
+        if original.options.get("solver") == "simplex":  # the reference solve is itself the cold simplex solve
+            baseline.setdefault("simplex_iterations", original.iterations)
+            baseline.setdefault("simplex_seconds", original.seconds)
+        names = cls.retrieval_names(retrievals)
         start = time.perf_counter()
         reduced = cls.reduce(problem, projector)
         t_sketch = projector.draw_seconds + (time.perf_counter() - start)
-        projected = cls.solve_reduced(reduced, solver)
-        common = solve_fields(original, projected, cls.bound)
-        common["t_sketch"] = t_sketch
-        context = Context(problem, original, reduced, projected, solver)
+        projected = cls.solve_reduced(reduced, solver, need_basis=bool(cls.basis_retrievals & set(names)))
+        obj_scale = cls.objective_scale(problem, original)
+        common = solve_fields(original, projected, cls.bound, obj_scale)
+        common.update(t_sketch=t_sketch, t_baseline=baseline["seconds"], proj_method=projected.method)
+        context = Context(problem, original, reduced, projected, solver, baseline)
         rows = []
-        for name in cls.retrieval_names(retrievals):
+        for name in names:
             values = dict(common)
             if projected.ok:
-                values.update(cls._retrieve(context, name))
-                spent = t_sketch + projected.seconds + values["t_retrieve"] + (values.get("t_factor") or 0.0)
-                values["time_saved"] = original.seconds - spent
+                values.update(cls._retrieve(context, name, obj_scale))
+            values["t_total"] = t_sketch + projected.seconds + values.get("t_retrieve", 0.0) + (values.get("t_factor") or 0.0)
+            values["time_saved"] = baseline["seconds"] - values["t_total"]
             rows.append(record(**values))
         return rows
 
     @classmethod
-    def _retrieve(cls, context: Context, name: str) -> dict:
+    def objective_scale(cls, problem, original: SolveResult) -> Optional[float]:
+        """The objective's scale (:mod:`calib.metrics`); None without an original optimum."""
+        if not original.ok or original.x is None:
+            return None
+        return scale(original.objective, cls.objective_size(problem, original.x))
+
+    @classmethod
+    def _retrieve(cls, context: Context, name: str, obj_scale: Optional[float]) -> dict:
         start = time.perf_counter()
         got = cls.retrievals[name](context)
-        values = {"t_retrieve": time.perf_counter() - start - got.untimed, **cls.point_metrics(context.problem, got.x), **got.extra}
+        reference = context.original.x if context.original.ok and context.original.x is not None else got.x
+        values = {"t_retrieve": time.perf_counter() - start - got.untimed,
+                  **cls.point_metrics(context.problem, got.x, reference), **got.extra}
         if context.original.ok:
             value = context.problem.objective(got.x)
-            values["obj_error"] = rel_diff(value, context.original.objective)
+            if obj_scale is not None:
+                values["obj_error"] = relative(value - context.original.objective,
+                                               obj_scale or cls.objective_size(context.problem, got.x))
             if context.original.objective != 0.0:
                 values["obj_ratio"] = value / context.original.objective
         return values
@@ -112,9 +182,9 @@ class Handler:
 class RowProjectionHandler(Handler):
     """A kind whose equality constraints A x = b are aggregated to (TA) x = Tb, x in a cone (LP, SDP).
 
-    The projected problem keeps the cost and the cone, so it is a relaxation solved by the same
-    solver as the original. Subclasses add ``kind``, ``retrievals``, ``default_retrieval``,
-    ``solve_original`` and ``cone_violation(x) -> float`` (the sign_violation of a point).
+    The projected problem keeps the cost and the cone, so it is a relaxation solved by the methods
+    of the same kind. Subclasses add ``kind``, ``retrievals``, ``default_retrieval``, ``solve_with``,
+    ``objective_size`` and ``cone_violation(x) -> float`` (the sign_violation of a point).
     """
 
     bound = "relaxation"
@@ -130,25 +200,32 @@ class RowProjectionHandler(Handler):
                                    name=f"{problem.name}|{projector.name}-k{projector.k}")
 
     @classmethod
-    def solve_reduced(cls, reduced, solver: dict) -> SolveResult:
-        return cls.solve_original(reduced, solver)
-
-    @classmethod
-    def point_metrics(cls, problem, x: np.ndarray) -> dict:
-        return {"feas_error": relative_residual(problem, x), "sign_violation": cls.cone_violation(x)}
+    def point_metrics(cls, problem, x: np.ndarray, x_ref: np.ndarray) -> dict:
+        return {"feas_error": relative_residual(problem, x, x_ref), "sign_violation": cls.cone_violation(x)}
 
 
-def relative_residual(problem, x: np.ndarray) -> float:
-    """||residual(x)|| / max(1, ||b||) for a problem with ``residual`` and ``b`` (LP, SDP).
+
+def linear_size(c: np.ndarray, x: np.ndarray, offset: float) -> float:
+    """|c|^T |x| + |offset|: a linear objective's size at x without cancellation.
+
+    >>> linear_size(np.array([1.0, -2.0]), np.array([3.0, 1.0]), -1.0)
+    6.0
+    """
+    return float(np.abs(c) @ np.abs(x)) + abs(float(offset))
+
+
+def relative_residual(problem, x: np.ndarray, x_ref: np.ndarray) -> Optional[float]:
+    """||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||) for an LP or SDP (svec) problem.
 
     >>> from calib.problems import StandardLP
-    >>> relative_residual(StandardLP(c=[1.0], A=[[1.0]], b=[2.0]), np.array([1.0]))
+    >>> relative_residual(StandardLP(c=[1.0], A=[[1.0]], b=[2.0]), np.array([1.0]), np.array([2.0]))
     0.5
     """
-    return ratio(np.linalg.norm(problem.residual(x)), np.linalg.norm(problem.b))
+    terms = np.linalg.norm(abs(problem.A) @ np.abs(x_ref))
+    return relative(np.linalg.norm(problem.residual(x)), scale(np.linalg.norm(problem.b), terms))
 
 
-def solve_fields(original: SolveResult, projected: SolveResult, bound: str) -> dict:
+def solve_fields(original: SolveResult, projected: SolveResult, bound: str, obj_scale: Optional[float]) -> dict:
     """The metric fields that describe the two solves (statuses, values, verdicts, the bound's gap)."""
     values = dict(
         orig_status=original.status, orig_feasible=original.feasible, t_solve_orig=original.seconds,
@@ -159,9 +236,12 @@ def solve_fields(original: SolveResult, projected: SolveResult, bound: str) -> d
         values["orig_objective"] = original.objective
     if projected.ok:
         values["proj_objective"] = projected.objective
-    if original.ok and projected.ok:
+    if original.ok and obj_scale is not None:
+        values["obj_scale"] = obj_scale
+    if original.ok and projected.ok and obj_scale is not None:
         sign = 1.0 if bound == "relaxation" else -1.0
-        values["proj_gap"] = ratio(sign * (original.objective - projected.objective), abs(original.objective))
+        gap = sign * (original.objective - projected.objective)
+        values["proj_gap"] = None if relative(gap, obj_scale) is None else float(np.sign(gap)) * relative(gap, obj_scale)
     if original.feasible is not None and projected.feasible is not None:
         values["feasibility_agrees"] = original.feasible == projected.feasible
     return values

@@ -34,6 +34,7 @@ from calib.conic import PointSet
 from calib.metrics import record
 from calib.projectors.base import Projector
 from calib.reduce.base import Handler
+from calib.solvers.methods import Baseline
 from calib.solvers.result import SolveResult
 
 #: every pair is checked up to this many points (n(n-1)/2 ≈ 5·10⁷ pairs)
@@ -210,8 +211,13 @@ class PointsHandler(Handler):
         return SolveResult(status="optimal", solver="none", solver_code=0, solver_message="point set: nothing to solve")
 
     @classmethod
+    def solve_baseline(cls, points: PointSet, solver: dict) -> Baseline:
+        """The placeholder of :meth:`solve_original` as the one "method" ``none``."""
+        return Baseline({"none": cls.solve_original(points, solver)}, "none", "none")
+
+    @classmethod
     def trial_records(cls, points: PointSet, original: SolveResult, projector: Projector, retrievals: list[str],
-                      solver: dict) -> list[dict]:
+                      solver: dict, baseline: Optional[dict] = None) -> list[dict]:
         """One record (retrieval ``none``): distortion max, 99th percentile, pairs checked and in all, t_sketch."""
         start = time.perf_counter()
         projected = np.asarray(projector.apply(points.columns)).T

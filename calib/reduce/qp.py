@@ -6,8 +6,9 @@ For min 1/2 x^T Q x + c^T x s.t. A x <= b, lower <= x <= upper, ||B x|| <= r and
     min 1/2 u^T (T Q T^T) u + (T c)^T u   s.t.   (A T^T) u <= b,
         (T^T u)_j <= upper_j and -(T^T u)_j <= -lower_j for the finite bounds,   ||(B T^T) u|| <= r
 
-(the ball is kept exactly through ``ball_map = B T^T``; B = I when the original has no map). It is
-solved by HiGHS without a ball and by SCS with one (:func:`calib.solvers.qp.solve_qp`). Every
+(the ball is kept exactly through ``ball_map = B T^T``; B = I when the original has no map). Both
+problems are solved by the methods of :mod:`calib.solvers.methods`: ``highs`` (without a ball) or
+``scs``; ``auto`` picks HiGHS without a ball and SCS with one. Every
 feasible u gives a feasible x = T^T u with the same objective value, so the reduced problem is a
 restriction: its optimum is an upper bound on the original optimum, and a feasible original may
 become infeasible (the one-sided error of a restriction). The retrieval ``lift`` is x = T^T u*:
@@ -21,15 +22,16 @@ convex program).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Optional
 
 import numpy as np
 import scipy.sparse as sp
 
 from calib.conic import QP
-from calib.metrics import ratio
+from calib.metrics import relative, scale
 from calib.problems import Matrix
 from calib.projectors.base import Projector
-from calib.reduce.base import Context, Handler, Retrieved
+from calib.reduce.base import Context, Handler, Retrieved, linear_size
 from calib.solvers.result import SolveResult
 
 
@@ -60,9 +62,17 @@ def project_qp(qp: QP, projector: Projector) -> ReducedQP:
     return ReducedQP(reduced, lift)
 
 
-def feas_error(qp: QP, x: np.ndarray) -> float:
-    """Largest violation of the rows, bounds and ball of ``qp`` at x, over max(1, ||b||_inf)."""
-    return ratio(qp.violation(x), np.abs(qp.b).max(initial=0.0))
+def feasibility_scale(qp: QP, x_ref: np.ndarray) -> float:
+    """max(||b||_inf, largest finite bound, radius, SCALE_FLOOR * || |A| |x_ref| ||_inf, SCALE_FLOOR * ||x_ref||_inf)."""
+    bounds = np.concatenate([qp.lower[np.isfinite(qp.lower)], qp.upper[np.isfinite(qp.upper)]])
+    rhs = max(np.abs(qp.b).max(initial=0.0), np.abs(bounds).max(initial=0.0), qp.radius or 0.0)
+    terms = max(np.abs(np.asarray(abs(qp.A) @ np.abs(x_ref))).max(initial=0.0), np.abs(x_ref).max(initial=0.0))
+    return scale(rhs, terms)
+
+
+def feas_error(qp: QP, x: np.ndarray, x_ref: np.ndarray) -> float:
+    """Largest violation of the rows, bounds and ball of ``qp`` at x over :func:`feasibility_scale`."""
+    return relative(qp.violation(x), feasibility_scale(qp, x_ref))
 
 
 def _lift(context: Context) -> Retrieved:
@@ -71,12 +81,6 @@ def _lift(context: Context) -> Retrieved:
 
 #: retrieval name -> function(Context) -> Retrieved
 RETRIEVALS = {"lift": _lift}
-
-
-def _solve(qp: QP, solver: dict) -> SolveResult:
-    from calib.solvers.qp import solve_qp
-
-    return solve_qp(qp, time_limit=solver["time_limit_s"], options=solver.get("scs" if qp.has_ball else "highs"))
 
 
 class QPHandler(Handler):
@@ -92,17 +96,31 @@ class QPHandler(Handler):
         return qp.n_vars
 
     @staticmethod
-    def solve_original(qp: QP, solver: dict) -> SolveResult:
-        return _solve(qp, solver)
+    def solve_with(qp: QP, method: str, solver: dict, need_basis: bool) -> Optional[SolveResult]:
+        """``highs`` (None with a ball: it does not apply) or ``scs``, with the spec's option table of that solver."""
+        from calib.solvers.qp import solve_qp_highs, solve_qp_scs
+
+        if method == "highs":
+            return None if qp.has_ball else solve_qp_highs(qp, solver["time_limit_s"], solver.get("highs"))
+        return solve_qp_scs(qp, solver["time_limit_s"], solver.get("scs"))
+
+    @staticmethod
+    def auto_method(qp: QP) -> str:
+        return "scs" if qp.has_ball else "highs"
 
     @staticmethod
     def reduce(qp: QP, projector: Projector) -> ReducedQP:
         return project_qp(qp, projector)
 
     @staticmethod
-    def solve_reduced(reduced: ReducedQP, solver: dict) -> SolveResult:
-        return _solve(reduced.qp, solver)
+    def reduced_problem(reduced: ReducedQP) -> QP:
+        return reduced.qp
 
     @staticmethod
-    def point_metrics(qp: QP, x: np.ndarray) -> dict:
-        return {"feas_error": feas_error(qp, x)}
+    def objective_size(qp: QP, x: np.ndarray) -> float:
+        """1/2 x^T Q x + |c|^T |x| + |offset| (Q is PSD, so its term is already >= 0)."""
+        return 0.5 * abs(float(x @ np.asarray(qp.Q @ x).ravel())) + linear_size(qp.c, x, qp.offset)
+
+    @staticmethod
+    def point_metrics(qp: QP, x: np.ndarray, x_ref: np.ndarray) -> dict:
+        return {"feas_error": feas_error(qp, x, x_ref)}

@@ -20,8 +20,10 @@ Retrievals of the projected optimum X' (svec x'):
     the stopping rule of :func:`calib.reduce.affine.alternate` (PSD violation <= 1e-9, a stalled
     round, 500 rounds or the solver time limit); the point returned satisfies the equalities.
 
-Errors recorded for each (see :mod:`calib.metrics`): feas_error = ||A(X) - b|| / max(1, ||b||)
-and sign_violation = the PSD violation ||X_-||_F / max(1, ||X||_F) of :func:`psd_violation`.
+Errors recorded for each (see :mod:`calib.metrics`): feas_error = ||A(X) - b|| over the
+feasibility scale of the kind, and sign_violation = the PSD violation ||X_-||_F / ||X||_F of
+:func:`psd_violation`. Both problems are solved by the methods of :mod:`calib.solvers.methods`
+(SCS with the spec's settings).
 
 Reference for the aggregation: A. Bluhm and D. S. França, "Dimensionality reduction of SDPs
 through sketching", Linear Algebra and its Applications 563:461–475, 2019.
@@ -33,9 +35,8 @@ import numpy as np
 
 from calib.conic import StandardSDP, smat, svec
 from calib.projectors.base import Projector
-from calib.metrics import ratio
 from calib.reduce.affine import affine_set, alternate
-from calib.reduce.base import Context, Retrieved, RowProjectionHandler
+from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size
 from calib.solvers.result import SolveResult
 
 
@@ -55,15 +56,16 @@ def psd_clip(x: np.ndarray) -> np.ndarray:
 
 
 def psd_violation(x: np.ndarray) -> float:
-    """||X_-||_F / max(1, ||X||_F) for X = smat(x), X_- its negative part.
+    """||X_-||_F / ||X||_F for X = smat(x), X_- its negative part (0 at X = 0).
 
     ||X_-||_F is the 2-norm of the negative eigenvalues, and ||X||_F = ||x|| (svec keeps norms).
 
-    >>> psd_violation(svec(np.diag([3.0, -4.0])))
-    0.8
+    >>> psd_violation(svec(np.diag([3.0, -4.0]))), round(psd_violation(svec(np.diag([0.03, -0.04]))), 12)
+    (0.8, 0.8)
     """
     values = np.linalg.eigvalsh(smat(x))
-    return ratio(np.linalg.norm(np.minimum(values, 0.0)), np.linalg.norm(x))
+    negative = np.linalg.norm(np.minimum(values, 0.0))
+    return 0.0 if negative == 0.0 else float(negative / np.linalg.norm(x))
 
 
 def _affine(context: Context) -> Retrieved:
@@ -99,7 +101,11 @@ class SDPHandler(RowProjectionHandler):
     cone_violation = staticmethod(psd_violation)
 
     @staticmethod
-    def solve_original(sdp: StandardSDP, solver: dict) -> SolveResult:
+    def solve_with(sdp: StandardSDP, method: str, solver: dict, need_basis: bool) -> SolveResult:
         from calib.solvers.scs_sdp import solve_sdp
 
         return solve_sdp(sdp, time_limit=solver["time_limit_s"], settings=solver.get("scs"))
+
+    @staticmethod
+    def objective_size(sdp: StandardSDP, x: np.ndarray) -> float:
+        return linear_size(sdp.c_vec, x, sdp.offset)

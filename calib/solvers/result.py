@@ -50,6 +50,8 @@ class SolveResult:
         Wall time of the solve call alone.
     options : dict
         The solver options used (recorded with every result).
+    method : str or None
+        The method name of :mod:`calib.solvers.methods` that produced it, when chosen by name.
     """
 
     status: str
@@ -63,6 +65,7 @@ class SolveResult:
     seconds: float = 0.0
     options: dict = field(default_factory=dict)
     dual: Optional[np.ndarray] = None
+    method: Optional[str] = None
 
     @property
     def ok(self) -> bool:

@@ -181,7 +181,7 @@ class Coordinator:
         self._ready.extend(self._trial_task(trial, retrievals, stored_row) for trial, retrievals in todo)
 
     def _trial_task(self, trial: Trial, retrievals: tuple, stored_row: dict) -> TrialTask:
-        original = {name: stored_row[name] for name in ORIGINAL_FIELDS}
+        original = {name: stored_row.get(name) for name in ORIGINAL_FIELDS}
         return TrialTask(trial, tuple(retrievals), self.spec.solver, original, self.spec.plugins)
 
     # ----- results -------------------------------------------------------------------------

@@ -470,7 +470,7 @@ def default_trial_timeout(time_limit_s: float) -> float:
 
 #: HiGHS options calib sets itself and a spec may not override
 _RESERVED_HIGHS = {"threads": "calib runs one solver thread per worker", "time_limit": "use time_limit_s",
-                   "solver": "the LP adapter needs simplex for its basis", "output_flag": "workers stay quiet"}
+                   "solver": "choose LP methods with solver.methods and solver.projected", "output_flag": "workers stay quiet"}
 
 
 def _seconds(table: dict, key: str, default, errors: _Collector) -> Optional[float]:
@@ -485,7 +485,7 @@ def _parse_solver(value, errors: _Collector) -> dict:
     if not isinstance(value, dict):
         errors.add("solver", "must be a table", "write [solver] with time_limit_s = 60")
         return {"time_limit_s": 60.0, "trial_timeout_s": default_trial_timeout(60.0)}
-    errors.unknown_keys(value, {"time_limit_s", "trial_timeout_s", "highs"}, "solver")
+    errors.unknown_keys(value, {"time_limit_s", "trial_timeout_s", "highs", "scs", "methods", "projected"}, "solver")
     limit = _seconds(value, "time_limit_s", 60.0, errors) or 60.0
     timeout = _seconds(value, "trial_timeout_s", default_trial_timeout(limit), errors)
     solver = {"time_limit_s": limit, "trial_timeout_s": timeout or default_trial_timeout(limit)}
@@ -493,7 +493,49 @@ def _parse_solver(value, errors: _Collector) -> dict:
         highs = _parse_highs(value["highs"], errors)
         if highs:
             solver["highs"] = highs
+    if "scs" in value:
+        scs_settings = _parse_scs(value["scs"], errors)
+        if scs_settings:
+            solver["scs"] = scs_settings
+    _parse_methods(value, solver, errors)
     return solver
+
+
+def _parse_methods(value: dict, solver: dict, errors: _Collector) -> None:
+    """``methods`` (kind -> list, the fair baseline's race) and ``projected`` (kind -> method or auto)."""
+    from calib.solvers.methods import check_methods, check_projected
+
+    for key, check in (("methods", check_methods), ("projected", check_projected)):
+        if key in value:
+            try:
+                checked = check(value[key], f"solver.{key}")
+            except InputError as error:
+                errors.add(error.where, error.problem, error.fix)
+                continue
+            solver[key] = {kind: list(names) if isinstance(names, tuple) else names for kind, names in checked.items()}
+
+
+#: SCS settings a spec may set (the others are calib's: verbose, linear_solver, time_limit_secs)
+SCS_SETTINGS = {"eps_abs": float, "eps_rel": float, "eps_infeas": float, "max_iters": int, "normalize": bool,
+                "scale": float, "adaptive_scale": bool, "rho_x": float, "alpha": float, "acceleration_lookback": int}
+
+
+def _parse_scs(value, errors: _Collector) -> dict:
+    """Extra SCS settings for conic solves (SDPs, QPs by SCS): a table of the names in :data:`SCS_SETTINGS`."""
+    if not isinstance(value, dict):
+        errors.add("solver.scs", f"must be a table of SCS settings, got {value!r}", "e.g. scs = {eps_abs = 1e-7}")
+        return {}
+    good = {}
+    for key, setting in sorted(value.items()):
+        kind = SCS_SETTINGS.get(key)
+        if kind is None:
+            errors.add(f"solver.scs.{key}", "is not an SCS setting a spec may change", f"use one of {', '.join(sorted(SCS_SETTINGS))}")
+        elif isinstance(setting, bool) != (kind is bool) or not isinstance(setting, (int, float)) \
+                or (kind is int and not isinstance(setting, int)):
+            errors.add(f"solver.scs.{key}", f"must be a {kind.__name__}, got {setting!r}", "give one value of that type")
+        else:
+            good[key] = kind(setting)
+    return good
 
 
 def solver_settings(raw_solver) -> dict:

@@ -5,7 +5,10 @@ WAL journal, one transaction per finished trial, trial rows append-only. Tables:
 - ``campaign`` (key, value): name, spec fingerprint and text, root seed, schema version, store
   format.
 - ``environments`` (env_id, versions): package versions of each process that produced rows.
-- ``instances``: one row per instance with its size and the cached original solve.
+- ``instances``: one row per instance with its size, the cached original solve (the reference
+  method's) and its fair baseline: ``baseline_method``, ``baseline_seconds`` and ``methods`` (JSON:
+  every configured method's status, solver code and message, value, seconds, iterations, options;
+  see :mod:`calib.solvers.methods`).
 - ``trials``: one row per (trial, retrieval) with identity, status, message, metrics (JSON),
   seconds, stream key, root seed, solver options and environment.
 
@@ -20,7 +23,9 @@ for, which then lives beside it as ``<name>-2.sqlite``, ``-3``...
 
 Store formats (``campaign.store_format``): 1 (no key) had no ``root_seed`` and ``solver_options``
 trial columns; opening it for writing migrates it to 2 by adding them (old rows keep NULL there:
-their root seed is the last element of ``stream_key``, their solver options the spec's).
+their root seed is the last element of ``stream_key``, their solver options the spec's). Format 2
+had no fair baseline; 3 adds the instance columns ``baseline_method``, ``baseline_seconds`` and
+``methods`` (old rows keep NULL: their baseline is their original solve time).
 """
 
 from __future__ import annotations
@@ -48,7 +53,8 @@ CREATE TABLE IF NOT EXISTS instances (
     instance_id TEXT PRIMARY KEY, family TEXT NOT NULL, params TEXT NOT NULL, idx INTEGER NOT NULL,
     kind TEXT NOT NULL, projected_dim INTEGER NOT NULL, n_points INTEGER NOT NULL,
     orig_status TEXT NOT NULL, orig_code INTEGER, orig_message TEXT, orig_objective REAL,
-    orig_seconds REAL, orig_iterations INTEGER, solver_options TEXT, orig_x BLOB, build_seconds REAL
+    orig_seconds REAL, orig_iterations INTEGER, solver_options TEXT, orig_x BLOB, build_seconds REAL,
+    baseline_method TEXT, baseline_seconds REAL, methods TEXT
 );
 CREATE TABLE IF NOT EXISTS trials (
     trial_id TEXT NOT NULL, retrieval TEXT NOT NULL, instance_id TEXT NOT NULL,
@@ -60,10 +66,12 @@ CREATE TABLE IF NOT EXISTS trials (
 """
 
 #: the layout written by this code (see the module docstring for the history)
-STORE_FORMAT = 2
+STORE_FORMAT = 3
 
 #: columns added by each migration: format -> [(table, column, type)]
-_MIGRATIONS = {2: [("trials", "root_seed", "INTEGER"), ("trials", "solver_options", "TEXT")]}
+_MIGRATIONS = {2: [("trials", "root_seed", "INTEGER"), ("trials", "solver_options", "TEXT")],
+               3: [("instances", "baseline_method", "TEXT"), ("instances", "baseline_seconds", "REAL"),
+                   ("instances", "methods", "TEXT")]}
 
 
 def environment() -> dict:

@@ -14,6 +14,7 @@ so a fresh campaign and a resumed one use byte-identical originals.
 from __future__ import annotations
 
 import functools
+import json
 import math
 import time
 from collections import OrderedDict
@@ -29,9 +30,10 @@ INSTANCE_CACHE_SIZE = 4
 #: statuses of a trial row: ran to the end, raised, exceeded trial_timeout_s, or killed its worker
 TRIAL_STATUSES = ("ok", "error", "timeout", "crashed")
 
-#: the instance-row fields that describe the original solve
+#: the instance-row fields that describe the original solve: the reference method's result, then the
+#: fair baseline (the fastest configured method reaching its verdict) and every method's record
 ORIGINAL_FIELDS = ("orig_status", "orig_code", "orig_message", "orig_objective", "orig_seconds",
-                   "orig_iterations", "solver_options", "orig_x")
+                   "orig_iterations", "solver_options", "orig_x", "baseline_method", "baseline_seconds", "methods")
 
 _instances: "OrderedDict[str, object]" = OrderedDict()
 
@@ -115,7 +117,8 @@ def built_instance(ref: InstanceRef):
 
 
 def solve_original(task: OriginalTask) -> dict:
-    """Instance-row fields of the original solve (``orig_*``, ``solver_options``, ``build_seconds``)."""
+    """Instance-row fields of the original solve (``orig_*``, ``solver_options``, ``build_seconds``)
+    and of its fair baseline (every configured method, :func:`calib.solvers.methods.race`)."""
     from calib.keys import canonical_json
     from calib.reduce import HANDLERS
 
@@ -123,7 +126,8 @@ def solve_original(task: OriginalTask) -> dict:
     try:
         instance = built_instance(task.instance)
         build_seconds = time.perf_counter() - start
-        original = HANDLERS[instance.kind].solve_original(instance.problem, task.solver)
+        baseline = HANDLERS[instance.kind].solve_baseline(instance.problem, task.solver)
+        original = baseline.result
     except Exception as error:  # a failed build or solve is recorded, the campaign goes on
         return failed_original("error", describe_exception(error), time.perf_counter() - start)
     # SQLite stores a NaN REAL as NULL: a point set's original has no objective, so it is None on both sides
@@ -131,7 +135,8 @@ def solve_original(task: OriginalTask) -> dict:
     return {"orig_status": original.status, "orig_code": original.solver_code, "orig_message": original.solver_message,
             "orig_objective": objective, "orig_seconds": original.seconds,
             "orig_iterations": original.iterations, "solver_options": canonical_json(original.options),
-            "orig_x": original.x, "build_seconds": build_seconds}
+            "orig_x": original.x, "build_seconds": build_seconds, "baseline_method": baseline.fastest,
+            "baseline_seconds": baseline.seconds, "methods": json.dumps(baseline.summary(), sort_keys=True, default=str)}
 
 
 def failed_original(status: str, message: str, seconds: float) -> dict:
@@ -139,13 +144,21 @@ def failed_original(status: str, message: str, seconds: float) -> dict:
     vocabulary: "error" for an exception or a crash, "time_limit" for an external timeout)."""
     return {"orig_status": status, "orig_code": None, "orig_message": message, "orig_objective": None,
             "orig_seconds": seconds, "orig_iterations": 0, "solver_options": "{}", "orig_x": None,
-            "build_seconds": None}
+            "build_seconds": None, "baseline_method": None, "baseline_seconds": None, "methods": None}
+
+
+def stored_baseline(fields: dict) -> dict:
+    """The fair baseline of a stored instance row (:func:`calib.solvers.methods.baseline_info` fields);
+    a row written before baselines were recorded gives its original solve time."""
+    methods = json.loads(fields.get("methods") or "{}")
+    simplex = methods.get("simplex") or {}
+    seconds = fields.get("baseline_seconds")
+    return {"method": fields.get("baseline_method"), "seconds": fields["orig_seconds"] if seconds is None else seconds,
+            "simplex_iterations": simplex.get("iterations"), "simplex_seconds": simplex.get("seconds")}
 
 
 def original_result(fields: dict):
     """The original solve as a :class:`~calib.solvers.result.SolveResult`, from stored fields."""
-    import json
-
     from calib.solvers.result import SolveResult
 
     objective = fields["orig_objective"]
@@ -158,14 +171,12 @@ def original_result(fields: dict):
 
 def trial_outcomes(task: TrialTask) -> list[tuple[str, Optional[str], Optional[str]]]:
     """(status, message, metrics JSON) per retrieval; an exception gives "error" for each."""
-    import json
-
     from calib.sweep.trial import run_trial
 
     try:
         instance = built_instance(task.trial.instance)
         records = run_trial(task.trial, instance.problem, instance.kind, original_result(task.original),
-                            list(task.retrievals), task.solver)
+                            list(task.retrievals), task.solver, stored_baseline(task.original))
         return [("ok", "", json.dumps(record, sort_keys=True, allow_nan=False)) for record in records]
     except Exception as error:  # one trial's failure must not stop the campaign
         return [("error", describe_exception(error), None)] * len(task.retrievals)

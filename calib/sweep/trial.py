@@ -105,9 +105,11 @@ def count_trials(spec: Spec) -> tuple[int, int]:
     return instances, trials
 
 
-def run_trial(trial: Trial, problem, kind: str, original, retrievals: list[str], solver: dict) -> list[dict]:
+def run_trial(trial: Trial, problem, kind: str, original, retrievals: list[str], solver: dict,
+              baseline: dict | None = None) -> list[dict]:
     """Execute one trial on an already built problem and its cached original solve.
 
+    ``baseline`` is the original's fair baseline (:func:`calib.sweep.tasks.stored_baseline`).
     Returns one metrics record per retrieval (see :mod:`calib.metrics`).
     """
     from calib import projectors
@@ -116,6 +118,6 @@ def run_trial(trial: Trial, problem, kind: str, original, retrievals: list[str],
     handler = HANDLERS[kind]
     projector = projectors.make(trial.projector.name, trial.k, handler.projected_dim(problem), trial.rng(),
                                 **dict(trial.projector.options))
-    return handler.trial_records(problem, original, projector, retrievals, solver)
+    return handler.trial_records(problem, original, projector, retrievals, solver, baseline)
 
 
