@@ -130,8 +130,9 @@ def frankl_maehara_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
 def pair_failure(k: ArrayLike, eps: ArrayLike) -> np.ndarray:
     """Probability that one pair leaves 1 ± eps under a Gaussian T with N(0, 1/k) entries.
 
-    k·|Tx|²/|x|² follows chi-square with k degrees of freedom (Dasgupta & Gupta 2003, Lemma 2.2's
-    setting), so this is P(chi2_k < k(1 - eps)) + P(chi2_k > k(1 + eps)), computed exactly.
+    k·|Tx|²/|x|² is the sum of k squared standard normals, so it follows chi-square with k degrees
+    of freedom (a fact of the Gaussian distribution; Dasgupta & Gupta 2003 start from it); this is
+    P(chi2_k < k(1 - eps)) + P(chi2_k > k(1 + eps)), computed exactly.
 
     >>> round(float(pair_failure(100, 0.2)), 6)
     0.154742
@@ -316,6 +317,28 @@ def eps_from_k(rule: str, n: int, k: int) -> float:
     """
     bound = check_rule(rule)
     return float(bound.eps(check_points(n), check_k(k)))
+
+
+#: how each kind counts n (the points the JL theory counts) and the projected dimension m: the one
+#: text ``calib families``, ``calib probe`` and the docs show (the functions below compute them)
+COUNTING = {
+    "lp": "n = the columns of the standard form's A plus b (cols + 1), the points a row projection T A, T b "
+          "must keep; m = the rows of A (its equality constraints), reduced to k",
+    "sdp": "n = d(d + 1)/2 + 1 for order d, the svec columns of [A | b] a constraint projection must keep; "
+           "m = the number of linear constraints, reduced to k",
+    "qp": "n = the rows of A plus c and the optimum (rows + 2), the vectors a variable projection x = T^T u "
+          "must keep; m = the number of variables, reduced to k",
+    "points": "n = the number of points; m = their dimension, reduced to k",
+}
+
+
+def counting(kind: str) -> str:
+    """How ``kind`` counts n and m (:data:`COUNTING`).
+
+    >>> counting("points")
+    'n = the number of points; m = their dimension, reduced to k'
+    """
+    return COUNTING[kind]
 
 
 def lp_points(n_cols: int) -> int:

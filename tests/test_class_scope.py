@@ -237,7 +237,7 @@ def test_dry_run_gives_the_advice_per_size(tmp_path, capsys):
     assert main(["run", str(spec), "--dry-run", "--no-probe", "--out", str(tmp_path / "out")]) == 0
     out = capsys.readouterr().out
     assert "these instances: cannot certify 90% at 95% (10 trials per k, 29 needed): use replicates = 3" in out
-    assert "the class: cannot certify 90% at 95% with 10 instance(s) x 1 replicate(s); use instances = 29 (add 19)" in out
+    assert "the class: cannot certify 90% at 95% with 10 instances x 1 replicate; use instances = 29 (add 19)" in out
 
 
 def test_a_stored_solver_error_is_reported_by_run_and_kept_out_of_the_rate(tmp_path, capsys):

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
+
 from calib.cli import main
 from calib.families import REGISTRY
 
@@ -32,3 +34,35 @@ def test_unknown_family_is_a_one_line_error(capsys):
     assert main(["families", "no-such-family"]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "no-such-family" in err
+
+
+# one small family per kind; the counting text is checked against the problem each one builds
+KIND_EXAMPLES = {"lp": ("lp-planted", {"rows": 6, "cols": 12}), "sdp": ("sdp-planted", {"order": 4, "constraints": 5}),
+                 "qp": ("qp-random", {"vars": 8, "rows": 5}), "points": ("points-gaussian", {"points": 7, "dim": 9})}
+
+
+def _counted_from_the_problem(kind: str, problem) -> tuple[int, int]:
+    """(n, m) as the kind's counting text states them, read off the built problem itself."""
+    if kind == "lp":  # the columns of A plus b; the rows of A
+        return problem.A.shape[1] + 1, problem.A.shape[0]
+    if kind == "sdp":  # d(d + 1)/2 + 1 for order d; the constraints
+        order = problem.C.shape[0]
+        return order * (order + 1) // 2 + 1, len(problem.b)
+    if kind == "qp":  # the rows of A plus c and the optimum; the variables
+        return problem.A.shape[0] + 2, len(problem.c)
+    return problem.points.shape  # the points; their dimension
+
+
+def test_every_kind_says_how_n_and_m_are_counted_and_the_families_count_so(capsys):
+    from calib.theory import COUNTING
+
+    assert set(COUNTING) == {family.kind for family in REGISTRY.values()} == set(KIND_EXAMPLES)
+    for kind, (name, params) in KIND_EXAMPLES.items():
+        family = REGISTRY[name]
+        full = family.resolve(params, "test")
+        problem = family.make(full, 0, np.random.default_rng([0, 7])).problem
+        assert (family.n_points(full), family.projected_dim(full)) == _counted_from_the_problem(kind, problem), kind
+        assert main(["families", name, "--json"]) == 0
+        assert json.loads(capsys.readouterr().out)["counting"] == COUNTING[kind]
+        assert main(["families", name]) == 0
+        assert "  n and m: n = " in capsys.readouterr().out

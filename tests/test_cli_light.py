@@ -2,8 +2,8 @@
 
 Start-up time is measured as a whole process by ``tests/benchmarks/test_bench_cli.py`` (a benchmark,
 never a timed test). What can be checked deterministically is the cause: the modules a command
-imports. ``calib --help``, ``calib bounds`` and ``calib families`` must not import pandas, the
-plotting library, the solvers or ``scipy.stats`` (each costs 0.3–1 s to import on the 2-core machines
+imports. ``calib --help``, ``calib bounds``, ``calib families`` and ``calib lookup`` must not import
+pandas, the plotting library, the solvers or ``scipy.stats`` (each costs 0.3–1 s to import on the 2-core machines
 calib is built for; measured with ``python -X importtime``).
 """
 
@@ -13,7 +13,12 @@ import json
 import subprocess
 import sys
 
+from pathlib import Path
+
 import pytest
+
+TABLE = str(Path(__file__).parent / "corpus" / "tables" / "valid.json")
+LOOKUP = ("lookup", TABLE, "--family", "lp-planted", "--projector", "gaussian")
 
 HEAVY = ("pandas", "matplotlib", "highspy", "scs", "scipy.stats", "sklearn", "statsmodels", "distributed")
 
@@ -35,7 +40,10 @@ def imported_by(*argv: str) -> set[str]:
 
 
 @pytest.mark.parametrize("argv", [("--help",), ("bounds", "--n", "1001", "--eps", "0.2"), ("families",),
-                                  ("families", "lp-quantile")])
+                                  ("families", "lp-quantile"), (*LOOKUP, "--size", "rows=12,cols=24"),
+                                  (*LOOKUP, "--n", "5000", "--m", "400", "--scope", "instances"),
+                                  (*LOOKUP, "--n", "25", "--k", "6", "--json"),
+                                  (*LOOKUP, "--size", "rows=12,cols=24", "--delta", "0.2", "--confidence", "0.9")])
 def test_light_commands_import_no_heavy_library(argv):
     loaded = imported_by(*argv)
     assert "calib.cli" in loaded  # the probe really ran the command line

@@ -60,7 +60,8 @@ def test_every_conic_family_is_registered_with_its_documentation():
 
 @pytest.mark.parametrize("name", sorted(SMALL))
 def test_same_seed_gives_identical_bytes(name):
-    # Reproducibility requirement of issue 4 (common practice: compare the raw bytes).
+    # docs/robustness.md (Reproducibility): a trial is a pure function of its identity, so one seed gives one
+    # instance (common practice: compare the raw bytes).
     params = {**SMALL[name], **RANDOM_ONLY.get(name, {})}
     first, second = _make(name, 11, params)[1], _make(name, 11, params)[1]
     assert _instance_bytes(first) == _instance_bytes(second)

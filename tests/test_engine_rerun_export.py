@@ -8,8 +8,10 @@ json), and the Parquet file against the CSV through pyarrow, an outside reader.
 from __future__ import annotations
 
 import json
+import re
 import shutil
 import sqlite3
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -17,6 +19,7 @@ from engine_faults import fault_plugin  # noqa: F401  (fixture)
 from engine_helpers import table_bytes, write_spec
 
 from calib.cli import main
+from calib.metrics import FIELDS
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
 from calib.sweep.store import STORE_FORMAT
@@ -104,6 +107,47 @@ def test_export_csv_and_parquet_hold_every_row_and_metric(campaign, tmp_path, ca
     assert parquet["trial_id"].tolist() == frame["trial_id"].tolist()
     assert parquet["proj_objective"].equals(frame["proj_objective"])
     assert {"stream_key", "root_seed", "solver_options", "env_versions"} <= set(frame.columns)
+
+
+SPEC = Path(__file__).resolve().parents[1] / "docs" / "spec.md"
+
+
+def _section(text: str, start: str, end: str) -> str:
+    return text[text.index(start):text.index(end, text.index(start))]
+
+
+def _metrics_table() -> dict:
+    """field -> (unit, classes) of the metrics table of docs/spec.md."""
+    table = _section(SPEC.read_text(encoding="utf-8"), "| field | meaning | unit | classes |", "`calib.metrics.FIELDS`")
+    out = {}
+    for line in table.splitlines()[2:]:
+        if line.startswith("| `"):
+            cells = [cell.strip() for cell in re.split(r"(?<!\\)\|", line)[1:-1]]
+            out[cells[0].strip("`")] = (cells[-2], cells[-1])
+    return out
+
+
+def test_the_documented_metrics_table_is_the_metrics_list():
+    # docs/spec.md is what users read: its metrics table must name every field of calib.metrics.FIELDS,
+    # in the same order, with the same unit and classes
+    documented = _metrics_table()
+    assert list(documented) == list(FIELDS)
+    assert documented == {name: (field.units, field.classes) for name, field in FIELDS.items()}
+
+
+def test_every_exported_column_is_documented(campaign, tmp_path):
+    # docs/spec.md documents the export's columns: the store's trial columns (its `trials` row), the
+    # instance columns of "Exporting: calib export", the metrics table and env_versions
+    _, store = campaign
+    csv_path = tmp_path / "rows.csv"
+    assert main(["export", str(store), "--csv", str(csv_path)]) == 0
+    columns = list(pd.read_csv(csv_path, nrows=0).columns)
+    text = SPEC.read_text(encoding="utf-8")
+    trials_row = next(line for line in text.splitlines() if line.startswith("| `trials` |"))
+    export = _section(text, "## Exporting: `calib export`", "## Plugins")
+    documented = (set(re.findall(r"`([a-z_0-9]+)`", trials_row)) - {"trials", "metrics"}) | set(re.findall(r"`([a-z_0-9]+)`", export))
+    assert set(FIELDS) <= set(columns)
+    assert sorted(set(columns) - documented - set(_metrics_table())) == []
 
 
 def test_export_without_a_target_is_a_user_error(campaign, capsys):

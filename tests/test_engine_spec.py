@@ -8,6 +8,7 @@ usage errors, as Python's own argparse does).
 
 from __future__ import annotations
 
+import sqlite3
 import subprocess
 import sys
 import tomllib
@@ -171,6 +172,90 @@ def test_dry_run_prints_counts_and_an_estimate_and_creates_nothing(tmp_path, cap
     assert main(["run", str(spec), "--out", str(out), "--dry-run", "--workers", "2"]) == 0
     text = capsys.readouterr().out
     assert "6 instances, 120 trials" in text
-    assert "lp-planted rows=20,cols=40: 2 instances x 1 projector(s) x 5 k in 2..16 x 4 replicate(s) = 40 trials" in text
-    assert "CPU-seconds for the 120 trials left" in text and "on 2 worker(s)" in text
+    assert "lp-planted rows=20,cols=40: 2 instances x 1 projector x 5 k in 2..16 x 4 replicates = 40 trials" in text
+    assert "CPU-seconds for the 120 trials left" in text and "on 2 workers" in text
     assert not out.exists()
+
+
+MIXED = """
+[campaign]
+name = "mixed"
+root_seed = 3
+replicates = 2
+
+[[families]]
+name = "lp-planted"
+sizes = [{rows = 20, cols = 40}]
+instances = 1
+
+[[families]]
+name = "lp-planted"
+sizes = [{rows = 20, cols = 40}]
+instances = 1
+params = {density = 0.5}
+
+[[families]]
+name = "qp-random"
+sizes = [{vars = 12, rows = 6}]
+instances = 1
+
+[sweep]
+projectors = ["gaussian"]
+k = [4, 50]
+retrievals = ["basis-lstsq", "alternating", "lift"]
+"""
+
+
+def test_dry_run_announces_the_rows_a_run_writes_and_names_each_cell(tmp_path, capsys):
+    # each kind runs its own retrievals (lp: basis-lstsq and alternating; qp: lift), so the rows are
+    # counted per family, and the run must write exactly the rows the dry run announced
+    spec = tmp_path / "mixed.toml"
+    spec.write_text(MIXED)
+    out = tmp_path / "out"
+    assert main(["run", str(spec), "--out", str(out), "--dry-run", "--no-probe"]) == 0
+    text = capsys.readouterr().out
+    assert "3 instances, 6 trials (10 stored rows: one per trial and retrieval of its kind)" in text
+    # two cells of one family and size that differ in a parameter get two lines, told apart by it
+    assert "  lp-planted rows=20,cols=40 density=1.0: 1 instance x 1 projector x k=4 x 2 replicates = 2 trials x 2 retrievals = 4 rows" in text
+    assert "  lp-planted rows=20,cols=40 density=0.5: 1 instance x" in text
+    assert "  qp-random vars=12,rows=6: 1 instance x 1 projector x k=4 x 2 replicates = 2 trials x 1 retrieval = 2 rows" in text
+    # k = 50 lies above both projected dimensions (20 rows; 12 variables): said, not dropped silently
+    skipped = ["k = 50 skipped for lp-planted rows=20,cols=40 density=1.0: above its projected dimension 20",
+               "k = 50 skipped for lp-planted rows=20,cols=40 density=0.5: above its projected dimension 20",
+               "k = 50 skipped for qp-random vars=12,rows=6: above its projected dimension 12"]
+    assert all(line in text for line in skipped)
+    assert main(["run", str(spec), "--out", str(out), "--in-process", "--quiet"]) == 0
+    summary = capsys.readouterr().out
+    assert all(line in summary for line in skipped)
+    with sqlite3.connect(out / "mixed.sqlite") as db:
+        assert db.execute("SELECT COUNT(*) FROM trials").fetchone() == (10,)
+
+
+def test_a_dense_lp_too_large_for_memory_is_refused_before_anything_is_built(tmp_path, capsys):
+    # 10^6 x 2 * 10^6 float64 entries at 8 bytes each (IEEE 754 double) = 1.6e13 bytes = 14.6 TiB
+    spec = tmp_path / "huge.toml"
+    spec.write_text(HUGE)
+    out = tmp_path / "out"
+    for extra in (["--dry-run"], ["--dry-run", "--no-probe"], []):
+        assert main(["run", str(spec), "--out", str(out), *extra]) == 2
+        captured = capsys.readouterr()
+        assert captured.out == "" and captured.err.count("\n") == 1
+        assert captured.err.startswith("calib: error: lp-planted rows=1000000,cols=2000000: needs about 14.6 TiB to build")
+        assert not out.exists()
+
+
+HUGE = """
+[campaign]
+name = "huge"
+root_seed = 1
+replicates = 2
+
+[[families]]
+name = "lp-planted"
+sizes = [{rows = 1000000, cols = 2000000}]
+instances = 1
+
+[sweep]
+projectors = ["gaussian"]
+k = [100]
+"""

@@ -120,7 +120,7 @@ def test_a_store_without_features_gives_entries_without_them_and_migrates_on_res
     added = next(version for version, columns in _MIGRATIONS.items() if ("instances", "features", "TEXT") in columns)
     spec_path = write_spec(tmp_path, replicates=1)
     summary = run_campaign(load_spec(spec_path), tmp_path / "out", inline=True)
-    with sqlite3.connect(summary.store_path) as db:  # the layout before features were stored
+    with sqlite3.connect(summary.store_path) as db:  # the layout before features were stored (format 3)
         db.execute("ALTER TABLE instances DROP COLUMN features")
         db.execute("UPDATE campaign SET value = ? WHERE key = 'store_format'", (str(added - 1),))
     store = Store.open_existing(summary.store_path)

@@ -11,7 +11,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from calib.analysis.lookup import Query, bounded, k_for, size_of, size_of_mps
+from calib.analysis.lookup import Query, bounded, class_entries, k_for, safe_ks, size_of, size_of_mps
 from calib.analysis.success import make_predicate
 from calib.analysis.tables import Confidence, build_analysis
 from calib.cli import main
@@ -79,6 +79,17 @@ def test_a_measured_size_gets_its_measured_safe_k():
             assert klass["safe_k"] == entry["class"]["safe_k"]
 
 
+@pytest.mark.parametrize("scope", ["class", "instances"])
+def test_stated_safe_k_equals_the_recomputation_from_the_counts(scope):
+    # lookup reads a size's safe k from the table at the table's own target and recomputes it from
+    # the stored counts otherwise: both paths must agree at the table's target (the reference for the
+    # bounds themselves is scipy.stats, see tests/test_analysis_stats.py)
+    stated = Confidence(0.1, 0.95)
+    for table in TABLES:
+        entries = class_entries(table["analyses"][0], Query(FAMILY, 2, "gaussian"))
+        assert safe_ks(entries, stated, scope, stated) == safe_ks(entries, stated, scope)
+
+
 def test_law_values_are_bounded_to_one_and_m():
     # common practice: a law value is rounded up; below 1 it is raised to 1, above m there is no reduction
     assert bounded(46.2, 40) == (None, "no reduction meets the target at this size (the law gives 46.2 > m = 40)")
@@ -94,7 +105,7 @@ def test_mps_file_and_size_keys_give_n_and_m(tmp_path, capsys):
     from calib.analysis.tablefile import dumps, seal
 
     table = TABLES[0]
-    full = seal({"format": "calib.safe-k", "format_version": 2, **table})
+    full = seal({"format": "calib.safe-k", "format_version": 3, **table})
     table_path.write_text(dumps(full))
     # the schema refuses this partial table: the command must say so in one line, exit code 2
     assert main(["lookup", str(table_path), "--family", FAMILY, "--size", "rows=100,cols=400",

@@ -4,6 +4,7 @@ import json
 from pathlib import Path
 
 import pytest
+from scipy import stats
 
 from calib.cli import main
 from calib.families import get
@@ -18,14 +19,14 @@ TIMES = {name for name, field in FIELDS.items() if field.units == "s"}
 def test_family_probe_prints_replicates_and_summary_and_matches_a_campaign_trial(tmp_path, capsys):
     out = tmp_path / "probe.json"
     argv = ["probe", "lp-planted", "--param", "rows=20", "--param", "cols=40", "--param", "cost=nonnegative",
-            "--k", "12", "--replicates", "3", "--seed", "7", "--json", str(out)]
+            "--k", "18", "--replicates", "3", "--seed", "7", "--preset", "bound", "--json", str(out)]
     assert main(argv) == 0
     text = capsys.readouterr().out
     assert "replicate 2:" in text and "summary (median / max over replicates):" in text
     for name in ("basis-lstsq", "alternating", "restricted-repair", "warm-start"):
         assert f"  {name}: success " in text
     payload = json.loads(out.read_text())
-    assert payload["k"] == 12 and payload["kind"] == "lp" and len(payload["records"]) == 3 * 4
+    assert payload["k"] == 18 and payload["kind"] == "lp" and len(payload["records"]) == 3 * 4
     # The probe's streams are a campaign's with root_seed = --seed (instance 0): same numbers.
     params = get("lp-planted").resolve({"rows": 20, "cols": 40, "cost": "nonnegative"}, "test")
     ref = InstanceRef("lp-planted", params, 0, 7)
@@ -33,12 +34,25 @@ def test_family_probe_prints_replicates_and_summary_and_matches_a_campaign_trial
     from calib.reduce import HANDLERS
 
     original = HANDLERS["lp"].solve_original(problem, {"time_limit_s": 60.0})
-    rows = run_trial(Trial(ref, ProjectorChoice("gaussian"), 12, 1), problem, "lp", original, ["warm-start"], {"time_limit_s": 60.0})
+    rows = run_trial(Trial(ref, ProjectorChoice("gaussian"), 18, 1), problem, "lp", original, ["warm-start"], {"time_limit_s": 60.0})
     probed = next(r for r in payload["records"] if r["replicate"] == 1 and r["retrieval"] == "warm-start")
     for name in set(FIELDS) - TIMES:
         assert probed[name] == rows[0][name], name
     summary = payload["summary"]["retrievals"]["warm-start"]
-    assert summary["trials"] == 3 and 0 <= summary["successes"] <= 3
+    # the 'bound' predicate (docs/spec.md): the feasibility verdict matches and the projected bound's gap
+    # (orig - proj) / obj_scale is at most 0.05, recomputed here from the printed objectives; obj_scale is
+    # |orig| here, since c > 0 and x* >= 0 make the objective size |c|^T |x*| equal to orig itself
+    gap = payload["predicate"]["gap"]
+    assert gap == 0.05
+    warm = [r for r in payload["records"] if r["retrieval"] == "warm-start"]
+    assert all(r["obj_scale"] == abs(r["orig_objective"]) for r in warm)
+    expected = sum(r["feasibility_agrees"] and (r["orig_objective"] - r["proj_objective"]) / abs(r["orig_objective"]) <= gap
+                   for r in warm)
+    assert summary["trials"] == 3 and summary["successes"] == expected
+    assert 0 < expected < 3  # k = 18 of m = 20 at seed 7 gives a mix, so the count is really tested
+    # one-sided Clopper-Pearson lower bound; reference: scipy.stats.binomtest(..., alternative="greater")
+    reference = stats.binomtest(expected, 3, alternative="greater").proportion_ci(0.95, method="exact").low
+    assert summary["success_lower_bound"] == pytest.approx(reference, rel=1e-9)
 
 
 def test_mps_probe_with_eps_and_one_retrieval(capsys):
@@ -50,6 +64,13 @@ def test_mps_probe_with_eps_and_one_retrieval(capsys):
     text = capsys.readouterr().out
     assert "k = 5 (eps = 0.99 by ln-over-eps2 with 52 points)" in text
     assert "warm-start" not in text
+    # the header says how n and m are counted, with their values: 27 rows, 51 + 1 points
+    assert "(lp; projected dimension m = 27, n = 52 points)" in text and "\n  n and m: n = the columns" in text
+    # the objective is printed with its digits: Netlib's published optimum of afiro is -4.6475314286E+02
+    # (the Netlib lp/data index; from memory); 10 significant digits must agree
+    printed = float(text.split("original: optimal, objective ")[1].split(",")[0])
+    assert printed == pytest.approx(-464.75314286, abs=5e-9 * 464.75)
+    assert len(text.split("original: optimal, objective ")[1].split(",")[0].lstrip("-").replace(".", "")) >= 10
 
 
 def test_points_probe_reports_distortion(capsys):

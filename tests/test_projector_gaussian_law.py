@@ -7,7 +7,9 @@ from calib import projectors
 
 
 def test_gaussian_squared_norm_follows_chi_square():
-    # Dasgupta & Gupta (2003), Lemma 2.2: with T_ij ~ N(0, 1/k), k ||Tx||^2 / ||x||^2 ~ chi^2_k.
+    # With T_ij ~ N(0, 1/k) iid, the k entries of sqrt(k) T x / ||x|| are independent standard normals,
+    # so k ||Tx||^2 / ||x||^2 ~ chi^2_k: the chi-square law of a sum of k squared standard normals (a fact
+    # of the Gaussian distribution, the starting point of Dasgupta & Gupta 2003).
     # Reference: scipy.stats.chi2. Fixed seeds; KS test at level 0.01.
     k, m, draws = 12, 40, 1500
     x = np.random.default_rng(0).standard_normal(m)

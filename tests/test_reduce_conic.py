@@ -183,3 +183,30 @@ def test_sampled_claim_is_the_clopper_pearson_bound_for_zero_events():
     reference = stats.binomtest(0, s).proportion_ci(confidence_level=0.90, method="exact").high
     assert points_module.sampled_claim(s, 10 * s, 0.95) == pytest.approx(reference, rel=1e-9)
     assert points_module.sampled_claim(s, s) is None
+
+
+def test_the_affine_set_is_factored_once_per_instance_and_timed_on_its_own(monkeypatch):
+    # The factorisation of {x : A x = b} depends on the instance alone: the retrievals of every trial
+    # of one instance share it, and its time is reported as t_factor, not inside t_retrieve.
+    from calib.reduce import affine
+
+    built = []
+    original_init = affine.AffineSet.__init__
+
+    def counting_init(self, A, b):
+        built.append(A.shape)
+        original_init(self, A, b)
+
+    monkeypatch.setattr(affine.AffineSet, "__init__", counting_init)
+    problem = instance("sdp-planted", {"order": 6, "constraints": 12}).problem
+    original = SDPHandler.solve_original(problem, SOLVER)
+    rows = _sweep(SDPHandler, problem, original, 8, range(3), ["affine", "affine-psd", "alternating"])
+    assert built == [problem.A.shape]  # one factorisation for 3 trials x 3 retrievals
+    factors = {row[name]["t_factor"] for row in rows for name in row}
+    assert len(factors) == 1 and next(iter(factors)) > 0.0
+    for row in rows:
+        for rec in row.values():  # time_saved counts the factorisation once, as a single solve pays it
+            spent = rec["t_sketch"] + rec["t_solve_proj"] + rec["t_retrieve"] + rec["t_factor"]
+            assert rec["time_saved"] == pytest.approx(rec["t_solve_orig"] - spent, rel=1e-12, abs=1e-15)
+    other = instance("sdp-planted", {"order": 6, "constraints": 12}, index=1).problem
+    assert affine.affine_set(other)[0] is not affine.affine_set(problem)[0] and len(built) == 2

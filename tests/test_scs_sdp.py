@@ -1,7 +1,7 @@
 """SCS adapter for standard-form SDPs, checked against published SDP values.
 
 SCS tolerances in this file: eps_abs = eps_rel = 1e-7 (eps_infeas = 1e-7, the adapter default).
-Published values below are quoted from memory of the cited papers (and the brief of issue 4).
+Published values below are quoted from memory of the cited papers.
 Objectives are compared at relative tolerance 1e-5, two orders above the stopping tolerance: SCS
 stops when its residuals and duality gap are below eps_abs + eps_rel * scale, which bounds the
 objective error by O(eps) times the data scale.

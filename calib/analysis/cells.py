@@ -25,28 +25,9 @@ from typing import Optional
 import numpy as np
 
 from calib.analysis.logistic import LogisticFit, fit_clustered
-from calib.analysis.scope import CellCounts, ClassScope, cell_counts, class_scope, instances_needed, refusal
+from calib.analysis.saferule import ALL_PASS, safe_k_rule
+from calib.analysis.scope import CellCounts, ClassScope, cell_counts, class_reason, class_scope, instances_needed
 from calib.analysis.stats import clopper_pearson_lower, wilson_lower
-
-ALL_PASS = "all swept k pass: the safe k may be smaller than the grid shows"
-
-
-def safe_k_rule(ks, passes) -> tuple[Optional[int], str]:
-    """The monotone safe-k rule on a grid sorted by k: (safe k or None, reason).
-
-    >>> safe_k_rule([4, 8, 16, 32], [True, False, True, True])
-    (16, '')
-    >>> safe_k_rule([4, 8], [False, False])
-    (None, 'no swept k reaches the target')
-    """
-    ks, passes = np.asarray(ks), np.asarray(passes, dtype=bool)
-    if not passes[-1]:
-        reason = "no swept k reaches the target" if not passes.any() else "the largest swept k misses the target"
-        return None, reason
-    failing = np.flatnonzero(~passes)
-    first = failing[-1] + 1 if failing.size else 0
-    return int(ks[first]), (ALL_PASS if first == 0 else "")
-
 
 @dataclass(frozen=True)
 class CellStats:
@@ -73,14 +54,6 @@ class CellStats:
     @property
     def instances_per_k(self) -> np.ndarray:
         return (self.counts.trials > 0).sum(axis=1)
-
-
-def class_reason(safe_k: Optional[int], reason: str, n_instances: int, target: float, confidence: float) -> str:
-    """The reason shown beside the class safe k: the design's limit first when it explains it."""
-    if safe_k is not None:
-        return reason
-    limit = refusal(n_instances, target, confidence)
-    return limit or f"{reason} for the class (instance-to-instance spread counted)"
 
 
 def cell_stats(k, instance, success, target: float, confidence: float) -> CellStats:

@@ -9,7 +9,7 @@
   or the answer for the instances measured (``scope="instances"``); each size's safe k is recomputed
   from the stored counts when delta or the confidence differ from the table's (the same rules);
 - a size that was measured is answered with its measured safe k; another size with the law
-  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.tables.censored_law`),
+  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.saferule.censored_law`),
   rounded up; never below 1 and never above m: a value above m is answered "no reduction meets
   the target at this size", a value below 1 is raised to 1 with a flag;
 - an n outside the measured sizes is an extrapolation, flagged with how far (x the largest, or
@@ -33,12 +33,9 @@ from dataclasses import dataclass, field
 from typing import Optional
 
 import numpy as np
-from scipy import special
 
 from calib.analysis.law import fit_law
-from calib.analysis.scope import Anova, class_lower_bound, design_rho
-from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.tables import Confidence, censored_law, censoring, class_namer, safe_k_rule
+from calib.analysis.saferule import Confidence, censored_law, censoring, class_namer, safe_k_rule
 from calib.errors import InputError
 
 SCOPES = ("class", "instances")
@@ -174,6 +171,9 @@ def class_entries(analysis: dict, query: Query) -> list[dict]:
 
 def _lower_bounds(entry: dict, confidence: Confidence, scope: str) -> np.ndarray:
     """Per-k lower bounds of one entry in ``scope`` at ``confidence``, recomputed from its counts."""
+    from calib.analysis.scope import Anova, class_lower_bound, design_rho
+    from calib.analysis.stats import clopper_pearson_lower
+
     grid = entry["grid"]
     successes, trials = [p["successes"] for p in grid], [p["trials"] for p in grid]
     if scope == "instances":
@@ -185,18 +185,53 @@ def _lower_bounds(entry: dict, confidence: Confidence, scope: str) -> np.ndarray
     return class_lower_bound(successes, trials, sizes, design_rho(fields, sizes, confidence.level), confidence.level)
 
 
-def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class") -> list[tuple[Optional[int], str]]:
-    """(safe k, reason) of each size in ``scope`` by the monotone rule at ``confidence``, from the counts."""
+def _stored_safe_k(entry: dict, scope: str) -> tuple[Optional[int], str]:
+    """(safe k, reason) of one entry in ``scope`` as the table states it (at the table's target)."""
+    if scope == "instances":
+        return entry["safe_k"], entry["safe_k_reason"]
+    return entry["class"]["safe_k"], entry["class"]["reason"]
+
+
+def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class",
+            stated: Optional[Confidence] = None) -> list[tuple[Optional[int], str]]:
+    """(safe k, reason) of each size in ``scope`` by the monotone rule at ``confidence``.
+
+    Read from the entries when ``confidence`` is the table's own (``stated``), else recomputed from
+    the stored counts (the only path that needs the beta and F quantiles of ``scipy.special``).
+    """
+    if stated is not None and confidence == stated:
+        return [_stored_safe_k(entry, scope) for entry in entries]
     out = []
     for entry in entries:
         lower = _lower_bounds(entry, confidence, scope)
         safe, reason = safe_k_rule([p["k"] for p in entry["grid"]], lower >= confidence.target)
         if scope == "class" and safe is None:
-            from calib.analysis.cells import class_reason
+            from calib.analysis.scope import class_reason
 
             reason = class_reason(safe, reason, entry["instances"], confidence.target, confidence.level)
         out.append((safe, reason))
     return out
+
+
+def _expit(x: float) -> float:
+    """The logistic function 1 / (1 + e^-x), without overflow for large |x|.
+
+    >>> _expit(0.0), round(_expit(math.log(9.0)), 12), _expit(-1000.0)
+    (0.5, 0.9, 0.0)
+    """
+    if x >= 0:
+        return 1.0 / (1.0 + math.exp(-x))
+    z = math.exp(x)
+    return z / (1.0 + z)
+
+
+def _logit(p: float) -> float:
+    """ln(p / (1 - p)), the inverse of :func:`_expit`.
+
+    >>> round(_logit(0.9), 12) == round(math.log(9.0), 12)
+    True
+    """
+    return math.log(p / (1.0 - p))
 
 
 @dataclass(frozen=True)
@@ -208,10 +243,10 @@ class Transition:
     reason: str = ""
 
     def success(self, k: float) -> float:
-        return float(special.expit(self.slope * (math.log(k) - math.log(self.k50))))
+        return _expit(self.slope * (math.log(k) - math.log(self.k50)))
 
     def k_at(self, rate: float) -> float:
-        return float(self.k50 * math.exp(special.logit(rate) / self.slope))
+        return float(self.k50 * math.exp(_logit(rate) / self.slope))
 
 
 def transition_at(entries: list[dict], n: int) -> Transition:
@@ -272,11 +307,12 @@ def _measured(entries: list[dict], query: Query) -> Optional[int]:
 def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) -> dict:
     """The k for ``query`` at ``confidence`` (default: the table's target), with how it was found."""
     target = table["target"]
-    confidence = confidence or Confidence(target["delta"], target["confidence"])
+    stated = Confidence(target["delta"], target["confidence"])
+    confidence = confidence or stated
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)
     sizes = [entry["n_points"] for entry in entries]
-    answers = safe_ks(entries, confidence, query.scope)
+    answers = safe_ks(entries, confidence, query.scope, stated)
     censored = [censoring(k, reason, entry["projected_dim"]) for (k, reason), entry in zip(answers, entries)]
     law = censored_law(sizes, [k for k, _ in answers], censored)
     answer = {"family": query.family, "n": query.n, "m": query.m, "size": query.size, "scope": query.scope,

@@ -54,9 +54,10 @@ from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
-from scipy import stats as scipy_stats
+from scipy import special
 
 from calib.analysis.stats import clopper_pearson_lower
+from calib.wording import counted
 
 
 @dataclass(frozen=True)
@@ -130,7 +131,7 @@ class Anova:
         squares = self._mean_squares()
         if squares is None or squares[1] <= 0:
             return 1.0
-        f_low = float(scipy_stats.f.ppf(1.0 - confidence, self.groups - 1, self.df_within))
+        f_low = float(special.fdtri(self.groups - 1, self.df_within, 1.0 - confidence))  # the F quantile
         ratio = squares[0] / squares[1] / f_low
         return float(min(1.0, max(0.0, (ratio - 1.0) / (ratio + self.n0 - 1.0))))
 
@@ -218,6 +219,14 @@ def refusal(n_instances: int, target: float, confidence: float) -> str:
             f"confidence for the class unless they agree closely; when each instance decides alone, {needed} are needed")
 
 
+def class_reason(safe_k: Optional[int], reason: str, n_instances: int, target: float, confidence: float) -> str:
+    """The reason shown beside the class safe k: the design's limit first when it explains it."""
+    if safe_k is not None:
+        return reason
+    limit = refusal(n_instances, target, confidence)
+    return limit or f"{reason} for the class (instance-to-instance spread counted)"
+
+
 @dataclass(frozen=True)
 class ClassScope:
     """The class-scope statistics of one cell: per k bounds, and the intraclass correlation used."""
@@ -294,6 +303,6 @@ def advice_text(advice: dict, target: float, confidence: float) -> str:
         klass = (f"the class: only if the {advice['instances']} instances agree closely (intraclass correlation upper "
                  f"limit <= {advice['class_rho_max']:.2g}); sure with {needed} instances (add {advice['instances_to_add']})")
     else:
-        klass = (f"the class: cannot certify {level} with {advice['instances']} instance(s) x {advice['replicates']} "
-                 f"replicate(s); use instances = {needed} (add {advice['instances_to_add']})")
+        klass = (f"the class: cannot certify {level} with {counted(advice['instances'], 'instance')} x "
+                 f"{counted(advice['replicates'], 'replicate')}; use instances = {needed} (add {advice['instances_to_add']})")
     return f"{mine}; {klass}"

@@ -1,6 +1,6 @@
 """Safe-k table files: stable bytes, a checksum against edits, and validation on reading.
 
-The JSON Schema of the format ships in the package (``calib/schemas/safe-k-table.v2.json``) so
+The JSON Schema of the format ships in the package (``calib/schemas/safe-k-table.v3.json``) so
 other tools can read a table without reading calib's code. A table carries
 ``checksum = "sha256:" + sha256(canonical JSON of the table without its checksum)``, where the
 canonical JSON has sorted keys and no whitespace; a table edited by hand no longer matches and is
@@ -17,9 +17,9 @@ from pathlib import Path
 from calib import __version__
 from calib.errors import InputError
 
-SCHEMA_FILE = "safe-k-table.v2.json"
+SCHEMA_FILE = "safe-k-table.v3.json"
 FORMAT = "calib.safe-k"
-VERSION = 2
+VERSION = 3
 
 
 def schema(name: str = SCHEMA_FILE) -> dict:

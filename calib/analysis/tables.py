@@ -48,7 +48,8 @@ from calib import SCHEMA_VERSION, __version__, theory
 from calib.analysis import bounds
 from calib.analysis import policy as policy_answer
 # safe_k_rule and load_rows are also imported from here by lookup, export and older callers
-from calib.analysis.cells import ALL_PASS, CellStats, cell_stats, instances_needed, safe_k_rule
+from calib.analysis.cells import CellStats, cell_stats, instances_needed
+from calib.analysis.saferule import ALL_PASS, Confidence, censored_law, censoring, class_namer, safe_k_rule  # noqa: F401  (re-exported)
 from calib.analysis.classrule import fraction_rule
 from calib.analysis.law import Law, fit_law
 from calib.features import NUMERIC, median_features
@@ -64,24 +65,6 @@ CLASS_KEYS = ["family", "class_params", "projector", "retrieval"]
 NOTICE = ("Safe-k tables are empirical evidence on the instances measured, not a proof: check a reduction "
           "policy on your own instances (`calib probe`) before relying on it in production.")
 _DIGITS = 6
-
-
-@dataclass(frozen=True)
-class Confidence:
-    """Target success rate 1 - delta, claimed at the given confidence level."""
-
-    delta: float = 0.1
-    level: float = 0.95
-
-    def __post_init__(self) -> None:
-        if not 0.0 < self.delta < 1.0:
-            raise InputError("--delta", f"must lie in (0, 1), got {self.delta!r}", "e.g. 0.1 for a 90% success target")
-        if not 0.0 < self.level < 1.0:
-            raise InputError("--confidence", f"must lie in (0, 1), got {self.level!r}", "e.g. 0.95")
-
-    @property
-    def target(self) -> float:
-        return 1.0 - self.delta
 
 
 def num(value, digits: int = _DIGITS) -> Optional[float]:
@@ -141,7 +124,7 @@ def _per_k(cell: pd.DataFrame) -> pd.DataFrame:
 
 def _grid(stats: CellStats, per_k: pd.DataFrame, solver_errors: pd.Series) -> list[dict]:
     klass = stats.klass
-    return [{"k": int(k), "k_source": per_k.at[k, "k_label"] or "", "trials": int(stats.trials[i]),
+    return [{"k": int(k), "k_label": per_k.at[k, "k_label"] or "", "trials": int(stats.trials[i]),
              "successes": int(stats.successes[i]), "errors": int(per_k.at[k, "errors"]),
              "solver_errors": int(solver_errors.get(k, 0)), "instances": int(stats.instances_per_k[i]),
              "rate": num(stats.successes[i] / stats.trials[i]), "lower_bound": num(stats.lower[i]),
@@ -239,25 +222,6 @@ def cell_features(cell: pd.DataFrame) -> Optional[dict]:
 
 # ----- per class: laws ----------------------------------------------------------------------
 
-def censoring(value, reason: str, projected_dim: int) -> str:
-    """Why a size's value is not fitted as a value ('' when it is): none, no reduction, an upper bound.
-
-    >>> censoring(None, "no swept k reaches the target", 40)
-    'no safe k (no swept k reaches the target)'
-    >>> censoring(40, "", 40)
-    'the safe k is the projected dimension: no reduction'
-    >>> censoring(12, "", 40)
-    ''
-    """
-    if value is None:
-        return f"no safe k ({reason})" if reason else "no value"
-    if value >= projected_dim:
-        return "the safe k is the projected dimension: no reduction"
-    if reason == ALL_PASS:
-        return "every swept k passes: the safe k is an upper bound"
-    return ""
-
-
 def law_json(law: Law, sizes: list[str], n: list[int], values: list, name: str, censored: list[str]) -> dict:
     """JSON view of a law with one point per size; censored points carry the reason and no residual."""
     residuals = iter(law.residuals)
@@ -266,14 +230,6 @@ def law_json(law: Law, sizes: list[str], n: list[int], values: list, name: str, 
               for size, count, value, why in zip(sizes, n, values, censored)]
     return {"a": num(law.a), "C": num(law.C), "C_se": num(law.C_se), "n_min": law.n_min, "n_max": law.n_max,
             "reason": law.reason, "censored": sum(bool(why) for why in censored), "points": points}
-
-
-def censored_law(n: list[int], values: list, censored: list[str]) -> Law:
-    """The law k = a + C ln n over the uncensored sizes only (at least two needed)."""
-    law = fit_law(n, [None if why else value for value, why in zip(values, censored)])
-    if not law.ok and any(censored):
-        return Law(reason=f"{law.reason} ({sum(map(bool, censored))} censored size(s) are not fitted as values)")
-    return law
 
 
 def _law_of(entries: list[dict], values: list, reasons: list[str], name: str) -> tuple[Law, dict]:
@@ -325,18 +281,6 @@ def policy_rule(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) 
     names = names or {size: size.split("=", 1)[-1] for size in rows["size"]}
     return fraction_rule(rows["k_label"].fillna(""), unit.to_numpy(), rows["success"].to_numpy(), names,
                          confidence.target, confidence.level, word)
-
-
-def class_namer(items: list[dict]):
-    """class_params -> short text naming only the parameters that differ between the items' classes.
-
-    >>> name = class_namer([{"class_params": {"rank": 12, "cost": "c"}}, {"class_params": {"rank": None, "cost": "c"}}])
-    >>> name({"rank": 12, "cost": "c"})
-    'rank=12'
-    """
-    keys = sorted({key for item in items for key in item["class_params"]})
-    varying = [key for key in keys if len({json.dumps(item["class_params"].get(key)) for item in items}) > 1]
-    return lambda params: " ".join(f"{key}={json.dumps(params.get(key))}" for key in varying)
 
 
 def class_labels(analysis: dict):

@@ -14,11 +14,14 @@ WIDTH = 100
 
 def describe(family: Family) -> dict:
     """A JSON-able description of one family."""
+    from calib.theory import counting
+
     return {
         "name": family.name,
         "kind": family.kind,
         "description": family.description,
         "size_keys": list(family.size_keys),
+        "counting": counting(family.kind),
         "parameters": [{"name": key, "default": family.defaults[key], "required": key in family.size_keys and family.defaults[key] is None,
                         "doc": family.param_doc.get(key, "")} for key in family.defaults],
     }
@@ -37,6 +40,7 @@ def render(family: Family) -> str:
     entry = describe(family)
     lines = [f"{family.name}  [{family.kind}]"]
     lines += textwrap.wrap(family.description, WIDTH, initial_indent="  ", subsequent_indent="  ")
+    lines += textwrap.wrap(entry["counting"], WIDTH, initial_indent="  n and m: ", subsequent_indent="  " + " " * 9)
     lines.append("  parameters:")
     pad = max(len(p["name"]) for p in entry["parameters"])
     for param in entry["parameters"]:

@@ -64,7 +64,7 @@ def register(subparsers) -> None:
 def run(args: argparse.Namespace) -> int:
     from calib.analysis.lookup import Query, k_for, success_for
     from calib.analysis.tablefile import read_table
-    from calib.analysis.tables import Confidence
+    from calib.analysis.saferule import Confidence
 
     table = read_table(args.table)
     query = query_from(args)

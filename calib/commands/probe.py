@@ -36,10 +36,12 @@ from typing import Any
 import numpy as np
 
 from calib.errors import InputError
+from calib.theory import counting
+from calib.wording import counted
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "exact", "retrieval_iterations",
-                    "widening_rounds", "columns_share", "iterations_saved", "warm_seconds_saved", "t_retrieve", "t_total",
+                    "widening_rounds", "columns_share", "iterations_saved", "warm_seconds_saved", "t_retrieve", "t_factor", "t_total",
                     "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
 #: fields that describe the projection and its solve (shared by the retrievals of one replicate)
 PROJECTION_FIELDS = ("proj_status", "proj_method", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
@@ -234,16 +236,16 @@ def run(args: argparse.Namespace) -> int:
     baseline = handler.solve_baseline(target.problem, solver)
     original = baseline.result
     payloads = []
-    for k, k_source in chosen:
+    for k, k_label in chosen:
         records = []
         for replicate in range(args.replicates):
             rows = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, retrievals, solver,
                              baseline_info(baseline))
             records += [{"replicate": replicate, "retrieval": name, **row} for name, row in zip(retrievals, rows)]
         summary = summarise(records, target.kind, predicate, confidence)
-        print(("\n" if payloads else "") + render(target, original, choice, k, k_source, m, records, summary, predicate, confidence,
+        print(("\n" if payloads else "") + render(target, original, choice, k, k_label, m, records, summary, predicate, confidence,
                                                            baseline))
-        payloads.append({"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_source": k_source,
+        payloads.append({"target": target.label, "kind": target.kind, "projector": choice.label, "k": k, "k_label": k_label,
                          "projected_dim": m, "seed": args.seed, "predicate": predicate.as_dict(), "records": records,
                          "baseline": {"method": baseline.fastest, "seconds": baseline.seconds,
                                       "methods": baseline.summary()},
@@ -275,8 +277,9 @@ def find_k(args: argparse.Namespace, target: Target, choice, retrievals: list[st
         for replicate in range(len(done), count):
             done.append(_trial_success(target, choice, k, replicate, original, retrieval, solver, predicate))
         search.offer(done[:count])
-    objective = f", objective {_fmt(original.objective)}" if original.ok else ""
-    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m})",
+    objective = f", objective {_objective(original.objective)}" if original.ok else ""
+    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
+             f"  n and m: {counting(target.kind)}",
              f"original: {original.status}{objective}",
              f"projector {choice.label}, retrieval {retrieval}, k in [{low}, {high}], at most {args.max_trials} trials per k",
              f"target: success rate >= {confidence.target:g} under {target_text(predicate, confidence.target)}"]
@@ -413,24 +416,42 @@ def _fmt(value) -> str:
     return f"{value:.4g}"
 
 
+#: printed with :func:`_objective`: an optimum is only of use with its digits
+OBJECTIVES = ("orig_objective", "proj_objective")
+
+
+def _objective(value) -> str:
+    """An objective value with 12 significant digits.
+
+    >>> _objective(-2331389.8243), _objective(7.0), _objective(None)
+    ('-2331389.8243', '7', 'None')
+    """
+    return str(value) if value is None else f"{float(value):.12g}"
+
+
+def _field(field: str, value) -> str:
+    return _objective(value) if field in OBJECTIVES else _fmt(value)
+
+
 def _pairs(record: dict, fields) -> str:
-    return "  ".join(f"{field} {_fmt(record[field])}" for field in fields if record.get(field) is not None)
+    return "  ".join(f"{field} {_field(field, record[field])}" for field in fields if record.get(field) is not None)
 
 
-def render(target: Target, original, choice, k: int, k_source: str, m: int, records: list[dict], summary: dict,
+def render(target: Target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
            predicate, confidence, baseline=None) -> str:
     """The human-readable report of a probe."""
-    objective = f", objective {_fmt(original.objective)}" if original.ok else ""
+    objective = f", objective {_objective(original.objective)}" if original.ok else ""
     replicates = sorted({r["replicate"] for r in records})
     lines = [
-        f"probe: {target.label} ({target.kind}; projected dimension m = {m})",
+        f"probe: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
+        f"  n and m: {counting(target.kind)}",
         f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
-        f"projector {choice.label}, k = {k} ({k_source}), {len(replicates)} replicates",
+        f"projector {choice.label}, k = {k} ({k_label}), {counted(len(replicates), 'replicate')}",
         "",
     ]
     if baseline is not None and target.kind != "points":
         methods = ", ".join(f"{name} {r.status} {r.seconds:.4g} s" for name, r in baseline.results.items())
-        lines.insert(2, f"fair baseline: {baseline.fastest} ({baseline.seconds:.4g} s), the fastest of: {methods}")
+        lines.insert(3, f"fair baseline: {baseline.fastest} ({baseline.seconds:.4g} s), the fastest of: {methods}")
     for replicate in replicates:
         rows = [r for r in records if r["replicate"] == replicate]
         lines.append(f"replicate {replicate}: " + _pairs(rows[0], PROJECTION_FIELDS))
@@ -463,4 +484,4 @@ def render(target: Target, original, choice, k: int, k_source: str, m: int, reco
 
 
 def _stat_lines(metrics: dict) -> list[str]:
-    return [f"    {field:<22} {_fmt(stats['median'])} / {_fmt(stats['max'])}" for field, stats in metrics.items()]
+    return [f"    {field:<22} {_field(field, stats['median'])} / {_field(field, stats['max'])}" for field, stats in metrics.items()]

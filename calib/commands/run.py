@@ -48,8 +48,13 @@ def run(args: argparse.Namespace) -> int:
     if args.dry_run:
         print(dry_run(spec, args))
         return 0
-    from calib.sweep.estimate import design_warning, size_plans
+    from calib.sweep.estimate import check_memory, design_warning, size_plans, skipped_lines
     from calib.sweep.runner import run_campaign
+    from calib.wording import counted
+
+    plans = size_plans(spec)
+    if not args.scheduler:  # a cluster's workers have memory of their own
+        check_memory(plans)
 
     previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
     bar = None if args.quiet else _ProgressBar(spec.name)
@@ -65,12 +70,14 @@ def run(args: argparse.Namespace) -> int:
     statuses = ", ".join(f"{count} {status}" for status, count in sorted(summary.statuses.items()) if status != "ok")
     print(f"trials: {summary.planned} planned, {summary.skipped} already stored, {summary.ran} run"
           f" ({statuses or 'none failed'}) in {summary.seconds:.1f} s on {summary.executor}")
-    warning = design_warning(spec, size_plans(spec))
+    for line in skipped_lines(plans):
+        print(line)
+    warning = design_warning(spec, plans)
     if warning:
         print(warning)
     solver_errors = count_solver_errors(summary.store_path)
     if solver_errors:
-        print(f"{solver_errors} projected solve(s) ended in a solver error: counted apart and left out of the success "
+        print(f"{counted(solver_errors, 'projected solve')} ended in a solver error: counted apart and left out of the success "
               f"rates by `calib tables` (--solver-errors fail counts them as failures)")
     if summary.searches:
         print(search_report(spec, summary.searches))
@@ -169,7 +176,7 @@ class _ProgressBar:
 
 def dry_run(spec, args: argparse.Namespace) -> str:
     """The --dry-run report (creates nothing)."""
-    from calib.sweep.estimate import probe_sizes, render_plan, size_plans
+    from calib.sweep.estimate import check_memory, probe_sizes, render_plan, size_plans
     from calib.sweep.executors import default_workers
     from calib.sweep.store import Store, locate
 
@@ -183,6 +190,8 @@ def dry_run(spec, args: argparse.Namespace) -> str:
             store.close()
     note = f"{path} ({'resumes: ' + str(stored) + ' trials stored' if exists else 'new'})"
     plans = size_plans(spec)
+    if not args.scheduler:  # a cluster's workers have memory of their own
+        check_memory(plans)
     probes = None if args.no_probe else probe_sizes(spec, plans)
     workers = 1 if args.in_process else (args.workers or default_workers())
     if args.scheduler:

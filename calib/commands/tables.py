@@ -91,7 +91,7 @@ def register(subparsers) -> None:
                     "and/or CSV when asked. Timings go to their own file (--timings): they differ between runs, "
                     "the table does not.")
     parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
-    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v2.json)")
+    parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v3.json)")
     parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
     parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
     add_analysis_options(parser)

@@ -73,6 +73,9 @@ class Family:
     fixed : bool
         Every instance index of a size gives the same problem (read from a file): the size, not
         the instance, is the unit of a class claim across sizes.
+    memory : callable or None
+        params -> bytes the built problem's data takes at least, from the sizes alone (checked
+        before anything is built); None when the family does not estimate it.
     """
 
     name: str
@@ -87,6 +90,7 @@ class Family:
     check: Callable[[dict], None] = lambda params: None
     expand: Optional[Callable[[dict], list]] = None
     fixed: bool = False
+    memory: Optional[Callable[[dict], int]] = None
 
     def sizes(self, params: dict, where: str) -> list[dict]:
         """The full parameter dicts ``params`` stands for: itself, or one per file of a folder alone."""

@@ -12,6 +12,8 @@ and may turn it feasible: the one-sided error calib counts.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import scipy.sparse as sp
 
@@ -38,6 +40,21 @@ def _matrix(rows: int, cols: int, density: float, rng: np.random.Generator, rank
         fill = sp.csr_array((rng.standard_normal(empty.size), (rng.integers(0, rows, empty.size), empty)), shape=(rows, cols))
         A = (A + fill).tocsr()
     return A
+
+
+def matrix_bytes(rows: int, cols: int, density: float, rank=None) -> int:
+    """Bytes :func:`_matrix` needs at least for its result: 8 per float64 entry when dense (density 1
+    or a low-rank A), else CSR's 8-byte value and 4-byte column index per nonzero plus the row
+    pointers (scipy.sparse's layout with 32-bit indices).
+
+    >>> matrix_bytes(10**6, 2 * 10**6, 1.0) / 2**40  # the 1e6 x 2e6 dense LP: 14.6 TiB
+    14.551915228366852
+    >>> matrix_bytes(1000, 2000, 0.01)
+    244004
+    """
+    if density >= 1.0 or (rank is not None and rank < rows):
+        return 8 * rows * cols
+    return 12 * math.ceil(density * rows * cols) + 4 * (rows + 1)
 
 
 def _check_common(params: dict) -> None:
@@ -116,6 +133,7 @@ register(Family(
     projected_dim=lambda p: p["rows"],
     n_points=lambda p: lp_points(p["cols"]),
     check=_check_planted,
+    memory=lambda p: matrix_bytes(p["rows"], p["cols"], p["density"], p["rank"]),
 ))
 
 register(Family(
@@ -130,4 +148,5 @@ register(Family(
     projected_dim=lambda p: p["rows"],
     n_points=lambda p: lp_points(p["cols"]),
     check=_check_farkas,
+    memory=lambda p: matrix_bytes(p["rows"], p["cols"], p["density"]),
 ))

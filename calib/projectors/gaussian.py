@@ -1,8 +1,9 @@
 """Dense Gaussian projector: T_ij ~ N(0, 1/k) i.i.d., so E[T^T T] = I.
 
-For a fixed x, k * ||T x||^2 / ||x||^2 follows the chi-square law with k degrees of freedom
-(Dasgupta & Gupta, "An elementary proof of a theorem of Johnson and Lindenstrauss", Random
-Structures & Algorithms 22(1), 2003).
+For a fixed x, each entry of sqrt(k) T x / ||x|| is a standard normal and the k entries are
+independent, so k * ||T x||^2 / ||x||^2 follows the chi-square law with k degrees of freedom (a fact
+of the Gaussian distribution; the JL proof of Dasgupta & Gupta, "An elementary proof of a theorem
+of Johnson and Lindenstrauss", Random Structures & Algorithms 22(1), 2003, starts from it).
 
 T is kept transposed, as a C-ordered m x k array G = Tᵀ: dense input goes through BLAS either way,
 and a CSR input X is multiplied as (Xᵀ G)ᵀ, which reads the rows of G in order, once each. A CSC

@@ -49,7 +49,7 @@ import scipy.sparse as sp
 
 from calib.problems import StandardLP
 from calib.projectors.base import Projector
-from calib.reduce.affine import AffineSet, alternate, least_squares
+from calib.reduce.affine import affine_set, alternate, least_squares
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size
 from calib.solvers.result import SolveResult
 
@@ -96,10 +96,10 @@ def _retrieve_lstsq(context: Context) -> Retrieved:
 
 
 def _retrieve_alternating(context: Context) -> Retrieved:
-    lp = context.problem
-    out = alternate(context.projected.x, AffineSet(lp.A, lp.b), lambda x: np.maximum(x, 0.0), sign_violation,
+    affine, building = affine_set(context.problem)
+    out = alternate(context.projected.x, affine, lambda x: np.maximum(x, 0.0), sign_violation,
                     max_seconds=context.time_limit)
-    return Retrieved(out.x, {"retrieval_iterations": out.rounds})
+    return Retrieved(out.x, {"retrieval_iterations": out.rounds, "t_factor": affine.seconds}, building)
 
 
 def widening_order(reduced: StandardLP, projected: SolveResult) -> np.ndarray:

@@ -35,7 +35,7 @@ import numpy as np
 
 from calib.conic import StandardSDP, smat, svec
 from calib.projectors.base import Projector
-from calib.reduce.affine import AffineSet, alternate
+from calib.reduce.affine import affine_set, alternate
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size
 from calib.solvers.result import SolveResult
 
@@ -69,18 +69,19 @@ def psd_violation(x: np.ndarray) -> float:
 
 
 def _affine(context: Context) -> Retrieved:
-    sdp = context.problem
-    return Retrieved(AffineSet(sdp.A, sdp.b).project(context.projected.x))
+    affine, building = affine_set(context.problem)
+    return Retrieved(affine.project(context.projected.x), {"t_factor": affine.seconds}, building)
 
 
 def _affine_psd(context: Context) -> Retrieved:
-    return Retrieved(psd_clip(_affine(context).x))
+    got = _affine(context)
+    return Retrieved(psd_clip(got.x), got.extra, got.untimed)
 
 
 def _alternating(context: Context) -> Retrieved:
-    sdp = context.problem
-    out = alternate(context.projected.x, AffineSet(sdp.A, sdp.b), psd_clip, psd_violation, max_seconds=context.time_limit)
-    return Retrieved(out.x, {"retrieval_iterations": out.rounds})
+    affine, building = affine_set(context.problem)
+    out = alternate(context.projected.x, affine, psd_clip, psd_violation, max_seconds=context.time_limit)
+    return Retrieved(out.x, {"retrieval_iterations": out.rounds, "t_factor": affine.seconds}, building)
 
 
 #: retrieval name -> function(Context) -> Retrieved

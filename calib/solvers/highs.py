@@ -21,14 +21,16 @@ from __future__ import annotations
 
 import os
 import time
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import highspy
 import numpy as np
 import scipy.sparse as sp
 
-from calib.problems import StandardLP
 from calib.solvers.result import SolveResult
+
+if TYPE_CHECKING:  # annotations only: calib.problems reads MPS files through new_highs (no import cycle)
+    from calib.problems import StandardLP
 
 _MS = highspy.HighsModelStatus
 
@@ -150,26 +152,32 @@ def solve_lp(lp: StandardLP, time_limit: float = 60.0, options: Optional[dict] =
     start = time.perf_counter()
     h.run()
     seconds = time.perf_counter() - start
-    return _collect(h, lp.n_cols, seconds, {**DEFAULT_OPTIONS, **used}, f"highs-{method}")
+    return collect_result(h, seconds, {**DEFAULT_OPTIONS, **used}, f"highs-{method}", n_cols=lp.n_cols)
 
 
-def _collect(h: "highspy.Highs", n_cols: int, seconds: float, options: dict, solver: str = "highs") -> SolveResult:
+def collect_result(h: "highspy.Highs", seconds: float, options: dict, solver: str, n_cols: Optional[int] = None,
+                   dual_sign: float = 1.0) -> SolveResult:
+    """The :class:`SolveResult` of a HiGHS run: status by :data:`STATUS_TABLE` with HiGHS's own code and
+    message, iterations of every HiGHS solver summed (simplex, interior point, QP), and when optimal the
+    point, the row duals times ``dual_sign`` and the objective; with ``n_cols``, the basic structural columns.
+    """
     model_status = h.getModelStatus()
     status = STATUS_TABLE.get(model_status, "solver_failed")
     info = h.getInfo()
     result = SolveResult(
         status=status, solver=solver, solver_code=int(model_status),
         solver_message=h.modelStatusToString(model_status),
-        iterations=int(max(info.simplex_iteration_count, 0) + max(info.ipm_iteration_count, 0)),
+        iterations=int(sum(max(count, 0) for count in (info.simplex_iteration_count, info.ipm_iteration_count,
+                                                       info.qp_iteration_count))),
         seconds=seconds, options=options,
     )
     if status == "optimal":
         solution = h.getSolution()
         result.x = np.asarray(solution.col_value, dtype=float)
-        result.dual = np.asarray(solution.row_dual, dtype=float)
+        result.dual = dual_sign * np.asarray(solution.row_dual, dtype=float)
         result.objective = float(info.objective_function_value)
-        basis = h.getBasis()
-        if basis.valid:
+        basis = h.getBasis() if n_cols is not None else None
+        if basis is not None and basis.valid:
             col_status = basis.col_status
             result.basis = np.array([j for j in range(n_cols) if col_status[j] == highspy.HighsBasisStatus.kBasic], dtype=np.int64)
     return result

@@ -23,7 +23,7 @@ import scipy.sparse as sp
 
 from calib.conic import QP
 from calib.errors import InputError
-from calib.solvers.highs import DEFAULT_OPTIONS, STATUS_TABLE, new_highs
+from calib.solvers.highs import DEFAULT_OPTIONS, collect_result, new_highs
 from calib.solvers.result import SolveResult
 from calib.solvers.scs_base import run_scs, upper_csc
 
@@ -66,20 +66,8 @@ def solve_qp_highs(qp: QP, time_limit: float = 60.0, options: Optional[dict] = N
     start = time.perf_counter()
     h.run()
     seconds = time.perf_counter() - start
-    model_status = h.getModelStatus()
-    info = h.getInfo()
-    result = SolveResult(
-        status=STATUS_TABLE.get(model_status, "solver_failed"), solver="highs-qp", solver_code=int(model_status),
-        solver_message=h.modelStatusToString(model_status),
-        iterations=int(max(info.qp_iteration_count, 0) + max(info.simplex_iteration_count, 0) + max(info.ipm_iteration_count, 0)),
-        seconds=seconds, options={**DEFAULT_OPTIONS, **used},
-    )
-    if result.status == "optimal":
-        solution = h.getSolution()
-        result.x = np.asarray(solution.col_value, dtype=float)
-        result.dual = -np.asarray(solution.row_dual, dtype=float)
-        result.objective = float(info.objective_function_value)
-    return result
+    # HiGHS's row duals of A x <= b are <= 0 at a minimum; lambda >= 0 is their negative
+    return collect_result(h, seconds, {**DEFAULT_OPTIONS, **used}, "highs-qp", dual_sign=-1.0)
 
 
 def scs_qp_data(qp: QP) -> tuple[dict, dict]:

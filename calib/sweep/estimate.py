@@ -23,13 +23,20 @@ from typing import Optional
 from calib.families import get as get_family
 from calib.keys import canonical_json
 from calib.sweep.runner import retrieval_names
-from calib.sweep.spec import Spec
+from calib.sweep.spec import Spec, skipped_ks
 from calib.sweep.trial import InstanceRef, Trial, instance_refs
+from calib.wording import byte_size, counted
 
 
 @dataclass
 class SizePlan:
-    """The trials of one (family, size) cell of the spec."""
+    """The trials of one (family, size, parameters) cell of the spec, and the rows they store.
+
+    ``label`` names the family and size, plus the parameters that tell it apart from another cell
+    of the same family and size (set by :func:`size_plans`); ``retrievals`` is the number of
+    retrievals of the family's kind (one stored row per trial and retrieval); ``skipped`` the k
+    values of the grid above the size's projected dimension ``m``.
+    """
 
     family: str
     params: dict
@@ -37,25 +44,77 @@ class SizePlan:
     ks: list
     labels: list
     trials: int
+    retrievals: int = 1
+    skipped: tuple = ()
+    m: int = 0
+    label: str = ""
 
     @property
-    def label(self) -> str:
-        from calib.families import get
-
-        return f"{self.family} " + get(self.family).size_label(self.params)
+    def rows(self) -> int:
+        return self.trials * self.retrievals
 
 
 def size_plans(spec: Spec) -> list[SizePlan]:
-    """One :class:`SizePlan` per (family, size) in spec order."""
+    """One :class:`SizePlan` per (family, size, parameters) in spec order."""
     plans: dict[str, SizePlan] = {}
     per_instance = len(spec.projectors) * spec.replicates
     for ref, ks, labels in instance_refs(spec):
         key = f"{ref.family}|{canonical_json(ref.params)}"
         if key not in plans:
-            plans[key] = SizePlan(ref.family, ref.params, 0, ks, labels, 0)
+            family = get_family(ref.family)
+            plans[key] = SizePlan(ref.family, ref.params, 0, ks, labels, 0,
+                                  len(retrieval_names(family.kind, spec.retrievals)),
+                                  tuple(skipped_ks(spec.k_grid, family, ref.params)), family.projected_dim(ref.params))
         plans[key].instances += 1
         plans[key].trials += per_instance * _k_count(spec, ks)
+    _label(list(plans.values()))
     return list(plans.values())
+
+
+def _label(plans: list[SizePlan]) -> None:
+    """Set each plan's label: family and size, and the parameters that differ within the same family and size."""
+    groups: dict[str, list[SizePlan]] = {}
+    for plan in plans:
+        plan.label = f"{plan.family} " + get_family(plan.family).size_label(plan.params)
+        groups.setdefault(plan.label, []).append(plan)
+    for same in groups.values():
+        if len(same) == 1:
+            continue
+        keys = sorted({key for plan in same for key in plan.params})
+        varying = [key for key in keys if len({canonical_json(plan.params.get(key)) for plan in same}) > 1]
+        for plan in same:
+            plan.label += " " + ",".join(f"{key}={canonical_json(plan.params.get(key))}" for key in varying)
+
+
+def machine_memory() -> int:
+    """Bytes of physical memory of this machine (POSIX sysconf)."""
+    import os
+
+    return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+
+
+def check_memory(plans: list[SizePlan], available: Optional[int] = None) -> None:
+    """Refuse, before anything is built, a size whose data alone would not fit in memory.
+
+    The estimate is the family's own (:attr:`calib.families.base.Family.memory`), from the sizes;
+    families without one are not checked.
+    """
+    from calib.errors import InputError
+
+    available = machine_memory() if available is None else available
+    for plan in plans:
+        estimate = get_family(plan.family).memory
+        needed = estimate(plan.params) if estimate is not None else None
+        if needed is not None and needed > available:
+            raise InputError(plan.label, f"needs about {byte_size(needed)} to build (its data alone, estimated from "
+                             f"the sizes), more than the {byte_size(available)} of memory of this machine",
+                             "choose smaller sizes or a density below 1")
+
+
+def skipped_lines(plans: list[SizePlan]) -> list[str]:
+    """One line per k of the grid that a size skips because it exceeds its projected dimension."""
+    return [f"k = {k} skipped for {plan.label}: above its projected dimension {plan.m}"
+            for plan in plans for k in plan.skipped]
 
 
 @dataclass
@@ -136,7 +195,7 @@ def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
         advice = design_advice(files, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)
         verdict = ("can certify a rule k = f m" if advice["class_sure"] else
                    f"cannot certify a rule k = f m for the class; use {advice['needed']} files (add {advice['instances_to_add']})")
-        lines.append(f"  {label}: {files} file(s), the units of the class: {verdict} (each file may decide alone)")
+        lines.append(f"  {label}: {counted(files, 'file')}, the units of the class: {verdict} (each file may decide alone)")
     return lines
 
 
@@ -163,7 +222,7 @@ def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
     if not short:
         return None
     needed = design_advice(1, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)["needed"]
-    return (f"warning: {len(short)} of {len(plans)} size(s) have fewer than {needed} instances, so their class answer "
+    return (f"warning: {len(short)} of {counted(len(plans), 'size')} have fewer than {needed} instances, so their class answer "
             f"({ADVICE_TARGET:.0%} at {ADVICE_CONFIDENCE:.0%}) can be empty; `calib run --dry-run` says per size what "
             f"would certify it")
 
@@ -188,13 +247,17 @@ def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]]
     """The dry-run report: counts per size, the probe times and the work estimate."""
     instances = sum(plan.instances for plan in plans)
     trials = sum(plan.trials for plan in plans)
+    rows = sum(plan.rows for plan in plans)
     bound = "at most " if spec.k_grid.is_search else ""  # a search usually stops far below its cap
-    lines = [f"campaign {spec.name}: {instances} instances, {bound}{trials} trials "
-             f"({trials * len(spec.retrievals)} stored rows: {len(spec.retrievals)} retrieval(s) per trial)",
+    lines = [f"campaign {spec.name}: {counted(instances, 'instance')}, {bound}{counted(trials, 'trial')} "
+             f"({bound}{counted(rows, 'stored row')}: one per trial and retrieval of its kind)",
              f"store: {store_note}"]
     for plan in plans:
-        lines.append(f"  {plan.label}: {plan.instances} instances x {len(spec.projectors)} projector(s) x "
-                     f"{_k_range(plan.ks, spec.k_grid.is_search)} x {spec.replicates} replicate(s) = {bound}{plan.trials} trials")
+        lines.append(f"  {plan.label}: {counted(plan.instances, 'instance')} x {counted(len(spec.projectors), 'projector')} x "
+                     f"{_k_range(plan.ks, spec.k_grid.is_search)} x {counted(spec.replicates, 'replicate')} = "
+                     f"{bound}{counted(plan.trials, 'trial')} x {counted(plan.retrievals, 'retrieval')} = "
+                     f"{bound}{counted(plan.rows, 'row')}")
+    lines += skipped_lines(plans)
     lines += advice_lines(spec, plans)
     if probes is None:
         lines.append("estimate: not measured (--no-probe)")
@@ -213,5 +276,5 @@ def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]]
         lines.append(f"work: unknown for the {trials - stored} trials left (a probe failed, see above)")
         return "\n".join(lines)
     lines.append(f"work: about {remaining:.1f} CPU-seconds for the {trials - stored} trials left; "
-                 f"about {remaining / max(1, workers):.1f} s of wall time on {workers} worker(s)")
+                 f"about {remaining / max(1, workers):.1f} s of wall time on {counted(workers, 'worker')}")
     return "\n".join(lines)

@@ -37,7 +37,7 @@ def load(names: tuple[str, ...]) -> None:
             raise InputError(ENV_VAR, f"cannot import plugin module {name!r}: {error}",
                              "make the module importable (PYTHONPATH) or remove it from the list") from None
         except Exception as error:  # noqa: BLE001 - the plugin's own bug, reported on one line
-            from calib.sweep.tasks import describe_exception
+            from calib.errors import describe_exception
 
             raise InputError(ENV_VAR, f"plugin module {name!r} failed while importing: {describe_exception(error)}",
                              "fix the plugin (import it in Python to see the full traceback)") from None

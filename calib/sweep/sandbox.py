@@ -109,7 +109,7 @@ def child_main() -> None:
         try:
             reply = ("done", execute(task))
         except BaseException as error:  # noqa: BLE001 - reported to the parent, never swallowed
-            from calib.sweep.tasks import describe_exception
+            from calib.errors import describe_exception
 
             reply = ("raised", describe_exception(error))
         _write_message(protocol_out, reply)

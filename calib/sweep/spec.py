@@ -629,6 +629,23 @@ def k_values(k_grid: KGrid, family, params: dict) -> tuple[list[int], list[str]]
     return ks, [pairs[k] for k in ks]
 
 
+def skipped_ks(k_grid: KGrid, family, params: dict) -> list[int]:
+    """The k values of the grid that :func:`k_values` drops for one size: above its projected dimension.
+
+    A search's upper end above m is capped, not dropped, so a search skips nothing.
+    """
+    from calib.theory import k_from_eps
+
+    if k_grid.is_search or k_grid.mode == "fractions":  # fractions of m never exceed it
+        return []
+    m = family.projected_dim(params)
+    if k_grid.mode == "absolute":
+        ks = [int(value) for value in k_grid.values]
+    else:
+        ks = [k_from_eps(k_grid.rule, family.n_points(params), value) for value in k_grid.values]
+    return sorted({k for k in ks if k > m})
+
+
 def search_range(k_grid: KGrid, m: int) -> Optional[tuple[int, int]]:
     """The integer range (low, high) a k search covers for projected dimension ``m``, or None.
 

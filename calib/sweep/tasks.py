@@ -22,12 +22,11 @@ import functools
 import json
 import math
 import time
-import traceback
 from collections import OrderedDict
 from dataclasses import dataclass
-from pathlib import Path
 from typing import Optional, Union
 
+from calib.errors import describe_exception
 from calib.sweep.trial import InstanceRef, Trial
 
 #: built instances kept per worker process (most recently used)
@@ -174,13 +173,6 @@ def remember_original(task: TrialTask) -> dict:
     while len(_originals) > ORIGINAL_CACHE_SIZE:
         _originals.popitem(last=False)
     return original
-
-
-def describe_exception(error: BaseException) -> str:
-    """``Type: text (at file.py:line)`` of the innermost frame, on one line."""
-    frames = traceback.extract_tb(error.__traceback__)
-    where = f" (at {Path(frames[-1].filename).name}:{frames[-1].lineno})" if frames else ""
-    return f"{type(error).__name__}: {error}{where}".replace("\n", " ")
 
 
 def solve_original(task: OriginalTask) -> dict:

@@ -10,9 +10,13 @@ from __future__ import annotations
 import subprocess
 import sys
 
+from pathlib import Path
+
 import pytest
 
-COMMANDS = {"help": ["--help"], "bounds": ["bounds", "--n", "1001", "--eps", "0.2"], "families": ["families"]}
+TABLE = str(Path(__file__).parents[1] / "corpus" / "tables" / "valid.json")
+COMMANDS = {"help": ["--help"], "bounds": ["bounds", "--n", "1001", "--eps", "0.2"], "families": ["families"],
+            "lookup": ["lookup", TABLE, "--family", "lp-planted", "--projector", "gaussian", "--size", "rows=12,cols=24"]}
 
 
 @pytest.mark.parametrize("name", sorted(COMMANDS))
