@@ -143,3 +143,13 @@ def test_the_shipped_atlas_validates_and_its_checksum_matches(name):
     body = {key: value for key, value in table.items() if key != "checksum"}
     canonical = json.dumps(body, sort_keys=True, separators=(",", ":"), allow_nan=False)
     assert table["checksum"] == "sha256:" + hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+
+
+def test_lookup_from_the_atlas_stays_light(monkeypatch):
+    # `calib lookup` without a table imports no heavy library either (the rule of tests/test_cli_light.py).
+    from test_cli_light import HEAVY, TABLE, imported_by
+
+    monkeypatch.setenv(atlas.ENV, TABLE)
+    loaded = imported_by("lookup", "--family", "lp-planted", "--projector", "gaussian", "--size", "rows=12,cols=24")
+    assert "calib.atlas" in loaded
+    assert sorted(name for name in loaded if name in HEAVY or name.startswith(tuple(f"{h}." for h in HEAVY))) == []
