@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: venv demo test bench clean
+.PHONY: venv demo atlas test bench clean
 
 venv: $(STAMP)
 
@@ -20,6 +20,20 @@ demo: venv
 	    --json results/quickstart/safe_k.json --csv results/quickstart/safe_k.csv \
 	    --timings results/quickstart/timings.csv --tau 0.01 0.05 0.1
 	$(BIN)/calib report results/quickstart/quickstart.sqlite --html results/quickstart/report.html
+
+# The atlas (instances/atlas*.toml): about an hour on 2 cores; resumable (run it again after a stop).
+# ATLAS_RUN="--scheduler tcp://HOST:8786" runs it on a Dask cluster (docs/distributed.md).
+ATLAS     := results/atlas
+ATLAS_RUN ?=
+atlas: venv
+	$(BIN)/calib run instances/atlas.toml --out $(ATLAS) $(ATLAS_RUN)
+	$(BIN)/calib run instances/atlas-points.toml --out $(ATLAS) $(ATLAS_RUN)
+	$(BIN)/calib tables $(ATLAS)/atlas.sqlite --preset bound --tau 0.05 0.1 \
+	    --json $(ATLAS)/safe_k.json --csv $(ATLAS)/safe_k.csv --timings $(ATLAS)/timings.csv
+	$(BIN)/calib tables $(ATLAS)/atlas-points.sqlite --preset distortion --tau 0.2 0.3 \
+	    --json $(ATLAS)/safe_k-points.json --csv $(ATLAS)/safe_k-points.csv --timings $(ATLAS)/timings-points.csv
+	$(BIN)/calib report $(ATLAS)/atlas.sqlite --preset bound --html $(ATLAS)/report.html
+	$(BIN)/calib report $(ATLAS)/atlas-points.sqlite --preset distortion --html $(ATLAS)/report-points.html
 
 test: venv
 	$(BIN)/python -m pytest -q

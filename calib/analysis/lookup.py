@@ -349,6 +349,17 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
     return answer | policy_at(entries, query.n)
 
 
+def answer(table: dict, query: Query, k: Optional[int] = None, delta: Optional[float] = None,
+           confidence: Optional[float] = None) -> dict:
+    """The answer of ``calib lookup``: :func:`success_for` at ``k`` when given, else :func:`k_for` at the
+    target 1 - ``delta`` and ``confidence`` (each defaulting to the table's)."""
+    if k is not None:
+        return success_for(table, query, k)
+    target = table["target"]
+    return k_for(table, query, Confidence(delta if delta is not None else target["delta"],
+                                          confidence if confidence is not None else target["confidence"]))
+
+
 def policy_at(entries: list[dict], n: int) -> dict:
     """``{"policy": ...}``: the policy answer measured at the size nearest to n (on ln n), when the table has it.
 

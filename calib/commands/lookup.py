@@ -33,7 +33,9 @@ def register(subparsers) -> None:
                     "k = a + C ln n fitted over the uncensored sizes (flagged with how far when n lies outside them). "
                     "Never a k above the projected dimension: 'no reduction meets the target at this size' instead. "
                     "With --k, answer the other way: the expected success at that k and the measured error.")
-    parser.add_argument("table", help="safe-k table JSON written by `calib tables --json`")
+    parser.add_argument("table", nargs="?", help="safe-k table JSON written by `calib tables --json`; default the atlas: "
+                                                 "the file or folder in $CALIB_ATLAS, else the shipped results/atlas "
+                                                 "(`make atlas` creates it)")
     parser.add_argument("--family", help="family name as in the table (read from the manifest with --instance; "
                                          "an LP family of the table with --mps)")
     where = parser.add_mutually_exclusive_group(required=True)
@@ -62,20 +64,13 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.analysis.lookup import Query, k_for, success_for
-    from calib.analysis.tablefile import read_table
-    from calib.analysis.saferule import Confidence
+    from calib.analysis.lookup import answer
+    from calib.atlas import load_table
 
-    table = read_table(args.table)
     query = query_from(args)
-    if args.k is not None:
-        answer = success_for(table, query, args.k)
-    else:
-        target = table["target"]
-        confidence = Confidence(args.delta if args.delta is not None else target["delta"],
-                                args.confidence if args.confidence is not None else target["confidence"])
-        answer = k_for(table, query, confidence)
-    print(json.dumps(answer, indent=2, sort_keys=True) if args.json else render(answer))
+    table = load_table(query.family, args.table)
+    result = answer(table, query, k=args.k, delta=args.delta, confidence=args.confidence)
+    print(json.dumps(result, indent=2, sort_keys=True) if args.json else render(result))
     return 0
 
 
