@@ -9,8 +9,9 @@ sizes. For one analysis (one tolerance) of a table, :func:`class_answers` gather
 - the safe k of the instances scope at every other tolerance of the table's ladder;
 - the fitted law k = a + C ln n (class scope when it has one, else the instances scope, said which)
   beside the published constants C at the table's eps, or why there is no law;
-- time: the best median speed-up of the reduced pipeline over the original's baseline, or
-  "no saving" when every measured k was slower end to end.
+- time: from the policy block when the table has one (a saving counts only at a policy k: usable and
+  faster in enough trials), else the best median speed-up of the reduced pipeline over the original's
+  baseline, or "no saving" when every measured k was slower end to end.
 
 Pure functions of the table (and the timings frame of :mod:`calib.analysis.timing`); no HTML here.
 """
@@ -58,8 +59,23 @@ def law_line(law: dict) -> dict:
             "reason": fitted.get("reason", "no law"), "eps": law["theory"]["eps"], "rules": law["theory"]["rules"]}
 
 
+def policy_time_line(entries: list[dict]) -> Optional[str]:
+    """The time verdict from the policy blocks (a saving counts only where it is usable often enough),
+    None when the table carries no policy block."""
+    blocks = [(entry["size"], entry["policy"]) for entry in entries if entry.get("policy") is not None]
+    if not blocks:
+        return None
+    saving = [(size, block) for size, block in blocks if block["k"] is not None]
+    if not saving:
+        return "no saving: at no measured k was the answer both usable and faster often enough (no policy k)"
+    size, block = max(saving, key=lambda item: item[1]["speedup"] or 0.0)
+    speedup = "" if block["speedup"] is None else f", {block['speedup']:.3g}× faster than the baseline"
+    return f"saves time: policy k = {block['k']} at {size}{speedup} (usable and faster in enough trials)"
+
+
 def time_line(timings: pd.DataFrame, key: tuple) -> str:
-    """The best median speed-up of the class over its sizes and k, or :data:`NO_SAVING`."""
+    """The best median speed-up of the class over its sizes and k, or :data:`NO_SAVING` (timings alone,
+    without asking whether the answer at that k was usable: used when the table has no policy block)."""
     if timings is None or timings.empty:
         return "not measured"
     family, _, projector, retrieval = key
@@ -70,7 +86,8 @@ def time_line(timings: pd.DataFrame, key: tuple) -> str:
     best = mine.loc[speedups.idxmax()]
     if float(best["speedup"]) <= 1.0:
         return NO_SAVING
-    return f"saves time: best median speed-up {float(best['speedup']):.3g}× at k = {int(best['k'])} ({best['size']})"
+    return (f"faster at some k, usability not weighed: best median speed-up {float(best['speedup']):.3g}× at "
+            f"k = {int(best['k'])} ({best['size']})")
 
 
 def class_answers(table: dict, analysis: dict, timings: Optional[pd.DataFrame], label) -> list[dict]:
@@ -91,5 +108,6 @@ def class_answers(table: dict, analysis: dict, timings: Optional[pd.DataFrame], 
         answers.append({"family": first["family"], "label": label(first), "projector": first["projector"],
                         "retrieval": first["retrieval"], "kind": first["kind"],
                         "sizes": [size_line(entry) for entry in entries], "ladder": others,
-                        "law": law_line(laws[key]) if key in laws else None, "time": time_line(timings, key)})
+                        "law": law_line(laws[key]) if key in laws else None,
+                        "time": policy_time_line(entries) or time_line(timings, key)})
     return answers

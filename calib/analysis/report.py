@@ -23,7 +23,7 @@ _STYLE = """
 body { font-family: system-ui, sans-serif; margin: 1.5em auto; max-width: 1200px; padding: 0 1em; color: #222; line-height: 1.4; }
 h1, h2, h3 { color: #123; }
 .notice { border: 2px solid #b36b00; background: #fff4e0; padding: 0.8em 1em; border-radius: 6px; }
-.cards { display: grid; grid-template-columns: repeat(auto-fill, minmax(340px, 1fr)); gap: 1em; }
+.cards { display: grid; grid-template-columns: repeat(auto-fill, minmax(440px, 1fr)); gap: 1em; }
 .card { border: 1px solid #c8d3de; border-radius: 8px; padding: 0.6em 0.9em; background: #fbfcfe; }
 .card h3 { margin: 0.1em 0 0.4em; font-size: 1em; }
 .card p { margin: 0.35em 0; font-size: 0.85em; }
@@ -98,7 +98,7 @@ def predicate_text(predicate: dict) -> str:
 
 
 def _k_text(k, fraction) -> str:
-    return "none" if k is None else f"{k} ({fraction:.0%} of m)"
+    return "none" if k is None else f"{k} ({fraction:.0%})"
 
 
 def _law_text(law: Optional[dict]) -> str:
@@ -115,7 +115,7 @@ def _law_text(law: Optional[dict]) -> str:
 def answer_card(answer: dict, taus: list) -> str:
     """One class: its safe k per size in both scopes, the policy k, the ladder, the law and the time."""
     title = " ".join(filter(None, [answer["family"], answer["label"]]))
-    header = ["size", "m", "instances", "class safe k", "these instances"]
+    header = ["size", "m", "instances", "class safe k (k/m)", "these instances"]
     with_policy = any(line["policy_answer"] is not None for line in answer["sizes"])
     header += ["policy k"] if with_policy else []
     lines = []
@@ -123,7 +123,7 @@ def answer_card(answer: dict, taus: list) -> str:
         row = [line["size"], line["m"], line["instances"], _k_text(line["class_safe_k"], line["class_fraction"]),
                _k_text(line["safe_k"], line["fraction"])]
         if with_policy:
-            row.append("no k saves time" if line["policy_k"] is None else line["policy_k"])
+            row.append("none" if line["policy_k"] is None else line["policy_k"])
         lines.append(row)
     parts = [f'<div class="card"><h3>{escape(title)} · {escape(answer["projector"])} · {escape(answer["retrieval"])}</h3>',
              html_table(header, lines)]
