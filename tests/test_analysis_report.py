@@ -115,3 +115,14 @@ def test_report_renders_in_headless_chromium(report, tmp_path):
 
 def test_report_refuses_a_missing_store(tmp_path):
     assert main(["report", str(tmp_path / "none.sqlite"), "--html", str(tmp_path / "r.html")]) == 2
+
+
+def test_card_time_verdict_counts_a_saving_only_at_a_policy_k():
+    from calib.analysis.answers import policy_time_line
+
+    fast_but_unusable = {"size": "rows=60", "policy": {"k": None, "speedup": None}}
+    usable_and_faster = {"size": "rows=240", "policy": {"k": 12, "speedup": 20.7}}
+    assert policy_time_line([{"size": "s"}]) is None  # no policy block: the caller falls back to timings
+    assert policy_time_line([fast_but_unusable]).startswith("no saving")
+    line = policy_time_line([fast_but_unusable, usable_and_faster])
+    assert line.startswith("saves time: policy k = 12 at rows=240") and "20.7×" in line
