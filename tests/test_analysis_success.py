@@ -1,6 +1,6 @@
 """Success predicates decided at analysis time, on hand-made rows of the tidy trial table.
 
-The expected verdicts follow the definitions of DESIGN.md ("Analysis") and calib.metrics: the
+The expected verdicts follow the definitions of README.md ("Success predicates") and calib.metrics: the
 projected LP is a relaxation, so "original infeasible, projected feasible" is a failure; a metric
 is checked only on the kinds that fill it; a point set is judged by its distortion alone.
 """

@@ -1,7 +1,7 @@
 """Executors give the same numbers; failures become rows; originals are solved once.
 
-Reference for the equality checks: a trial is a pure function of its identity (DESIGN.md,
-"Trials, seeds, reproducibility"), so the serial in-process run is the reference every executor
+Reference for the equality checks: a trial is a pure function of its identity (DEVELOPERS.md,
+"Randomness"), so the serial in-process run is the reference every executor
 must reproduce byte for byte in the safe-k tables. Signal names come from POSIX via Python's
 ``signal`` module (SIGSEGV for an invalid memory access).
 """

@@ -94,7 +94,7 @@ def test_a_campaign_stores_features_once_per_instance_and_the_table_carries_thei
     finally:
         store.close()
     entries = table["analyses"][0]["entries"]
-    assert entries
+    assert len(entries) == len({(family, rows) for family, rows in by_size})  # one entry per stored size
     for entry in entries:
         records = by_size[(entry["family"], entry["params"]["rows"])]
         assert entry["features"]["instances"] == len(records) == 2

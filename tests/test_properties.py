@@ -10,7 +10,7 @@ absolute floor scaled by sqrt(m) and the input's size).
 
 Spec expansion: trial ids are unique; growing a grid (a k, a replicate, a projector, a family)
 keeps every existing trial id together with its instance, stream entropy, k and replicate, so a
-grown campaign reuses every stored number (DESIGN.md, "Trials, seeds, reproducibility"). The last
+grown campaign reuses every stored number (DEVELOPERS.md, "Randomness"; docs/spec.md, growing a campaign). The last
 test checks the numbers themselves: the metrics of shared trials are equal between a small and a
 grown campaign, timings aside.
 """

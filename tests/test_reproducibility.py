@@ -5,7 +5,7 @@ twice from scratch in two folders, once in-process and once on a local pool of t
 safe-k tables (JSON and CSV, two predicates) must be byte-identical, and so must every stored
 metric apart from timings. Then ``calib rerun`` re-runs a random (fixed-seed) sample of stored
 trials alone, one per family and two more, and must find every value equal (timings aside).
-Reference: DESIGN.md, "Trials, seeds, reproducibility" (a trial is a pure function of its
+Reference: DEVELOPERS.md, "Randomness" (a trial is a pure function of its
 identity); the comparison itself is exact equality, no tolerance.
 """
 

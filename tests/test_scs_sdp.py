@@ -160,7 +160,7 @@ def test_stopping_at_max_iters_is_stopped_on_iterations_with_the_settings_record
 
 
 def test_stopping_at_the_time_limit_is_stopped_on_time_not_a_solution():
-    # STACK-NOTES: SCS reports "solved (inaccurate - reached time_limit_secs)" after a time limit,
+    # SCS reports "solved (inaccurate - reached time_limit_secs)" after a time limit (observed with scs 3.3),
     # possibly with 0 iterations; it must not pass for a solution.
     sdp, _ = _family_sdp("sdp-theta", graph="petersen", nodes=10)
     result = solve_sdp(sdp, time_limit=1e-9)
