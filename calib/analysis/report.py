@@ -112,7 +112,7 @@ def _law_text(law: Optional[dict]) -> str:
             f"eps = {law['eps']:g}: {rules}.")
 
 
-def answer_card(answer: dict, taus: list) -> str:
+def answer_card(answer: dict) -> str:
     """One class: its safe k per size in both scopes, the policy k, the ladder, the law and the time."""
     title = " ".join(filter(None, [answer["family"], answer["label"]]))
     header = ["size", "m", "instances", "class safe k (k/m)", "these instances"]
@@ -264,7 +264,7 @@ def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
         f"<p>Safe k: the smallest k whose success rate is at least {target['success_rate']:g} with "
         f"{target['confidence']:.0%} confidence, for the class (the default answer: instances are the unit) and for "
         f"the instances measured. Success: {escape(predicate_text(first['predicate']))}.{escape(ladder)}</p>",
-        '<div class="cards">', *[answer_card(answer, taus) for answer in answers], "</div>",
+        '<div class="cards">', *[answer_card(answer) for answer in answers], "</div>",
     ]
     parts += [f"<p>Left out: {escape(item['family'])} ({escape(item['reason'])}).</p>" for item in first["excluded"]]
     parts += [f"<h2>Figures ({escape(predicate_text(first['predicate']))})</h2>"]

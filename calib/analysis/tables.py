@@ -37,7 +37,6 @@ statements, not proofs.
 from __future__ import annotations
 
 import json
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Optional
 
