@@ -53,7 +53,9 @@ def test_search_forms_parse():
     assert spec.k_grid.is_search and spec.k_grid.values == (1, 12)
     assert spec.target.rate == pytest.approx(0.9) and spec.target.predicate.gap == 1e-6
     spec = parse_spec(_raw(sweep__k={"search": {"low_fraction": 0.1, "high_fraction": 0.5}}))
-    assert spec.k_grid.mode == "search-fractions"
+    assert spec.k_grid.mode == "search-fractions" and spec.k_grid.step == 1
+    spec = parse_spec(_raw(sweep__k={"search": {"low": 2, "high": 12, "step": 2}}))
+    assert spec.k_grid.values == (2, 12) and spec.k_grid.step == 2
 
 
 @pytest.mark.parametrize("changes, path", [
@@ -62,6 +64,8 @@ def test_search_forms_parse():
     ({"sweep__k": {"search": {"low": 2.5, "high": 5}}}, "sweep.k.search.low"),
     ({"sweep__k": {"search": {"low_fraction": 0.5, "high_fraction": 1.5}}}, "sweep.k.search.high_fraction"),
     ({"sweep__k": {"search": {"low": 1}}}, "sweep.k.search"),
+    ({"sweep__k": {"search": {"low": 1, "high": 9, "step": 0}}}, "sweep.k.search.step"),
+    ({"sweep__k": {"search": {"low": 1, "high": 9, "step": 1.5}}}, "sweep.k.search.step"),
     ({"sweep__k": {"search": {"low": 20, "high": 30}}}, "families[0].sizes[0]"),  # above m = 12
     ({"target__delta": 1.5}, "target.delta"),
     ({"target__confidence": 0}, "target.confidence"),
@@ -167,7 +171,53 @@ def test_the_stated_confidence_holds_over_many_searches():
     assert wrong <= stats.binom.ppf(0.999, runs, 1 - confidence)
     found = sum(s.safe_k == 12 for s in searches)
     assert found >= runs // 2  # the search has power: p = 0.97 passes, p = 0.88 mostly fails within 300 trials
-    assert all(len(s.steps) <= max_looks(low, high) for s in searches)
+    assert all(sum(step.phase == "bisection" for step in s.steps) <= max_looks(low, high) for s in searches)
+
+
+def test_the_stated_confidence_holds_where_the_walk_down_is_tempted():
+    # a long plateau just below the target (p = 0.895 for k < 25): every bisection look and every
+    # walk step there is a chance of a false pass; the claim must still hold at its confidence
+    low, high, rate, confidence, cap = 1, 60, 0.9, 0.8, 200
+    curve = {k: (0.895 if k < 25 else 0.99) for k in range(low, high + 1)}
+    rng = np.random.default_rng([20261202, 4])
+    runs = 300
+    searches = [_simulate(curve, low, high, rate, confidence, cap, rng, all_at_once=True) for _ in range(runs)]
+    wrong = sum(s.safe_k is not None and curve[s.safe_k] < rate for s in searches)
+    assert wrong <= stats.binom.ppf(0.999, runs, 1 - confidence)  # P(wrong) <= 1 - confidence (module text)
+
+
+def _fixed(successes_at: dict, cap: int, low: int, high: int, step: int = 1) -> KSearch:
+    """A search fed fixed outcome lists: successes first would let the anytime test pass early, so the
+    failures lead (the hardest order for a pass)."""
+    search = KSearch(low, high, 0.9, 0.95, cap, step)
+    while (demand := search.demand()) is not None:
+        k, _ = demand
+        wins = successes_at(k)
+        search.offer([False] * (cap - wins) + [True] * wins)
+    return search
+
+
+def test_the_walk_down_claims_what_a_grid_at_the_walk_level_claims():
+    # 78 of 80 passes the walk's Clopper-Pearson look at 0.975 (lower bound 0.913; scipy.stats.beta
+    # quantile, checked in test_stats) but not a bisection look at 1 - 0.05/32 (0.873): the bisection
+    # alone stops at 30, the walk goes down to 20, where 60 of 80 stops it
+    search = _fixed(lambda k: 80 if k >= 30 else 78 if k >= 20 else 60, 80, 1, 40)
+    bisection = [step for step in search.steps if step.phase == "bisection"]
+    walk = [step for step in search.steps if step.phase == "walk"]
+    assert min(step.k for step in bisection if step.verdict == "pass") == 30
+    assert search.safe_k == 20 and [step.k for step in walk] == list(range(29, 18, -1))
+    assert walk[-1].verdict.startswith("fail") and all(step.verdict == "pass" for step in walk[:-1])
+
+
+def test_the_walk_stays_on_the_lattice_and_reads_no_trial_twice():
+    search = _fixed(lambda k: 80 if k >= 31 else 78 if k >= 21 else 0, 80, 5, 45, step=4)
+    assert all((step.k - 5) % 4 == 0 for step in search.steps if step.k != 45)
+    assert search.safe_k == 21
+    # k = 29 and 25 failed at the cap in the bisection (78 of 80 at its stricter level); the walk
+    # reads the same 80 trials again, passes them at its own level, and they count once
+    both = {step.k for step in search.steps if step.phase == "walk"} & {step.k for step in search.steps if step.phase == "bisection"}
+    assert both == {25, 29}
+    assert search.trials_read == 73 + 6 + 80 + 73 + 80 + 80 + 5  # k = 45, 5, 25, 33, 29, 21, 17
 
 
 def test_a_sharp_curve_gives_the_exact_k_with_few_trials():

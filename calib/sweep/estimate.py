@@ -228,17 +228,28 @@ def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
 
 
 def _k_count(spec: Spec, ks: list) -> int:
-    """k values a size runs: the grid's, or the most a k search tests (an upper bound)."""
+    """k values a size runs: the grid's, or for a k search its most bisection k values plus one k of
+    the walk down (a planning figure: a flat success curve walks further, see :data:`WALK_NOTE`)."""
     from calib.sweep.search import max_looks
 
-    return max_looks(ks[0], ks[-1]) if spec.k_grid.is_search else len(ks)
+    if not spec.k_grid.is_search:
+        return len(ks)
+    return max_looks(ks[0], ks[-1], spec.k_grid.step) + (1 if ks[-1] > ks[0] else 0)
 
 
-def _k_range(ks: list, search: bool = False) -> str:
+#: how the dry run counts a k search's walk down
+WALK_NOTE = ("a k search counts its bisection at its cap and one k of its walk down; each further k the walk "
+             "passes costs instances x replicates trials more (a flat success curve walks further, at most "
+             "down to the low end)")
+
+
+def _k_range(ks: list, spec: Spec) -> str:
     from calib.sweep.search import max_looks
 
-    if search:
-        return f"a k search in {ks[0]}..{ks[-1]} (at most {max_looks(ks[0], ks[-1])} k values)"
+    if spec.k_grid.is_search:
+        step = f", step {spec.k_grid.step}" if spec.k_grid.step > 1 else ""
+        return (f"a k search in {ks[0]}..{ks[-1]}{step} (at most {max_looks(ks[0], ks[-1], spec.k_grid.step)} "
+                f"bisection k values, then a walk down)")
     return f"k={ks[0]}" if len(ks) == 1 else f"{len(ks)} k in {ks[0]}..{ks[-1]}"
 
 
@@ -248,15 +259,17 @@ def render_plan(spec: Spec, plans: list[SizePlan], probes: Optional[list[Probe]]
     instances = sum(plan.instances for plan in plans)
     trials = sum(plan.trials for plan in plans)
     rows = sum(plan.rows for plan in plans)
-    bound = "at most " if spec.k_grid.is_search else ""  # a search usually stops far below its cap
+    bound = "up to " if spec.k_grid.is_search else ""  # a search usually stops far below its cap
     lines = [f"campaign {spec.name}: {counted(instances, 'instance')}, {bound}{counted(trials, 'trial')} "
              f"({bound}{counted(rows, 'stored row')}: one per trial and retrieval of its kind)",
              f"store: {store_note}"]
     for plan in plans:
         lines.append(f"  {plan.label}: {counted(plan.instances, 'instance')} x {counted(len(spec.projectors), 'projector')} x "
-                     f"{_k_range(plan.ks, spec.k_grid.is_search)} x {counted(spec.replicates, 'replicate')} = "
+                     f"{_k_range(plan.ks, spec)} x {counted(spec.replicates, 'replicate')} = "
                      f"{bound}{counted(plan.trials, 'trial')} x {counted(plan.retrievals, 'retrieval')} = "
                      f"{bound}{counted(plan.rows, 'row')}")
+    if spec.k_grid.is_search:
+        lines.append(f"  ({WALK_NOTE})")
     lines += skipped_lines(plans)
     lines += advice_lines(spec, plans)
     if probes is None:

@@ -317,7 +317,8 @@ def search_cells(spec: Spec) -> list[SearchCell]:
             refs = [InstanceRef(cell.name, params, index, spec.root_seed) for index in range(cell.instances)]
             for choice in spec.projectors:
                 for retrieval in retrieval_names(family.kind, spec.retrievals):
-                    search = KSearch(low, high, spec.target.rate, spec.target.confidence, len(refs) * spec.replicates)
+                    search = KSearch(low, high, spec.target.rate, spec.target.confidence, len(refs) * spec.replicates,
+                                     spec.k_grid.step)
                     cells.append(SearchCell(cell.name, params, refs, choice, retrieval, label, search))
     return cells
 

@@ -30,12 +30,27 @@ pass at that k has probability <= alpha/2 + alpha/2 (a union bound; the look at 
 event whatever the sequence did before). The last look is what lets a k with, say, 79 successes in
 80 trials pass, where the anytime bound alone would need more trials than the cap.
 
-Many k: error spent by Bonferroni. Bracket-and-bisection on [low, high] tests at most
-K = 2 + ceil(log2(high - low)) values of k (high, low, then halving the gap), each at
-alpha = (1 - confidence) / K. The answer is the smallest tested k that passed, above a tested k
-that failed (or low itself); it is claimed safe only when it passed, so P(the claimed k has
-p(k) < t) <= K * alpha = 1 - confidence. The search visits high first: when high does not pass
-there is no claim. Bisection assumes p(k) does not fall as k grows (monotone success); k values
+Many k, in two phases, each spending half of the error 1 - confidence:
+
+1. Bracket and bisection. On the lattice low, low + step, low + 2 step, ... (and high), it tests
+   at most K = 2 + ceil(log2(ceil((high - low) / step))) values of k (high, low, then halving the
+   gap between the smallest passing and the largest failing k), each at alpha = (1 - confidence)
+   / (2 K) (Bonferroni: a bisection can look at several k below the true threshold, and each is a
+   chance of a false pass). Its answer k_b is the smallest tested k that passed, above a failing
+   one. When high does not pass there is no claim; when low passes, low is the answer.
+2. Walk down. From k_b the lattice points below it are tested in decreasing order, each at the
+   full level (1 - confidence) / 2 by the Clopper–Pearson look on its N trials (a k clearly below
+   the target stops early, on the confidence sequence at the same level); the walk stops at the
+   first k that does not pass, and the answer is the last k that did. This is fixed-sequence
+   testing along a monotone family (Maurer, Hothorn & Lehmacher 1995; Westfall & Krishen 2001):
+   for the true threshold k*, the walk can claim a k below k* only if it passes the first lattice
+   point below k*, a single fixed k whose fixed-N test has level (1 - confidence) / 2, whichever
+   trials the bisection had already read there. The walk is the step-down a full grid applies
+   (:func:`calib.analysis.saferule.safe_k_rule`), run only below k_b; it costs no new trial at a
+   k the bisection already decided, and a whole cap at each new k it passes.
+
+So P(the claimed k has p(k) < t) <= (1 - confidence) / 2 + (1 - confidence) / 2. Both phases
+assume p(k) does not fall as k grows (monotone success), as the grid's rule does; k values
 between tested ones are not checked, and this assumption is stated with every verdict.
 
 Costs: each look is O(1) (log-beta functions); a search holds the outcomes at its current k only.
@@ -114,11 +129,15 @@ def confidence_sequence(successes: int, trials: int, rate: float, alpha: float) 
     return ends[0], ends[1]
 
 
-def first_decision(outcomes: Sequence[bool], rate: float, alpha: float) -> tuple[Optional[str], int]:
-    """(verdict, trials used): the first prefix of ``outcomes`` that decides, or (None, len).
+def first_decision(outcomes: Sequence[bool], rate: float, alpha: float,
+                   verdicts: tuple = ("pass", "fail")) -> tuple[Optional[str], int]:
+    """(verdict, trials used): the first prefix of ``outcomes`` that decides one of ``verdicts``,
+    or (None, len).
 
     >>> first_decision([False] * 8, 0.9, 0.05 / 9)
     ('fail', 5)
+    >>> first_decision([True] * 80, 0.9, 0.05 / 9, verdicts=("fail",))
+    (None, 80)
     """
     if len(outcomes) == 0:
         return None, 0
@@ -127,19 +146,30 @@ def first_decision(outcomes: Sequence[bool], rate: float, alpha: float) -> tuple
     a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
     log_m = (betaln(a + successes, b + trials - successes) - betaln(a, b)
              - successes * math.log(rate) - (trials - successes) * math.log1p(-rate))
-    decided = np.flatnonzero((log_m >= math.log(1.0 / alpha)) & (successes != rate * trials))
+    above = successes > rate * trials
+    wanted = np.zeros(successes.size, dtype=bool)
+    if "pass" in verdicts:
+        wanted |= above
+    if "fail" in verdicts:
+        wanted |= successes < rate * trials
+    decided = np.flatnonzero((log_m >= math.log(1.0 / alpha)) & wanted)
     if not decided.size:
         return None, len(outcomes)
     first = decided[0]
-    return ("pass" if successes[first] > rate * trials[first] else "fail"), int(first) + 1
+    return ("pass" if above[first] else "fail"), int(first) + 1
 
 
-def trials_before_decision(successes: int, trials: int, rate: float, alpha: float, cap: int) -> int:
-    """The fewest further trials after which a decision is possible (all succeed or all fail), at
-    most ``cap - trials``: asking for exactly these never runs a trial the search will not read.
+def trials_before_decision(successes: int, trials: int, rate: float, alpha: float, cap: int,
+                           verdicts: tuple = ("pass", "fail")) -> int:
+    """The fewest further trials after which one of ``verdicts`` is possible (all succeed or all
+    fail), at most ``cap - trials``: asking for exactly these never runs a trial the search will not read.
 
     >>> trials_before_decision(0, 0, 0.9, 0.05 / 9, 1000)
     5
+    >>> trials_before_decision(60, 60, 0.9, 0.025, 80, verdicts=("fail",))  # 60 of 79 would fail
+    19
+    >>> trials_before_decision(70, 70, 0.9, 0.025, 80, verdicts=("fail",))  # no early fail: to the cap
+    10
     """
     extra = np.arange(1, cap - trials + 1)
     if extra.size == 0:
@@ -148,27 +178,41 @@ def trials_before_decision(successes: int, trials: int, rate: float, alpha: floa
     a, b = PRIOR_STRENGTH * rate, PRIOR_STRENGTH * (1.0 - rate)
     failures = trials - successes
     base = -betaln(a, b) - successes * math.log(rate) - failures * math.log1p(-rate)
-    all_pass = betaln(a + successes + extra, b + failures) + base - extra * math.log(rate)
-    all_fail = betaln(a + successes, b + failures + extra) + base - extra * math.log1p(-rate)
-    possible = np.flatnonzero(((all_pass >= level) & (successes + extra > rate * (trials + extra)))
-                              | ((all_fail >= level) & (successes < rate * (trials + extra))))
-    return int(extra[possible[0]]) if possible.size else int(extra[-1])
+    possible = np.zeros(extra.size, dtype=bool)
+    if "pass" in verdicts:
+        all_pass = betaln(a + successes + extra, b + failures) + base - extra * math.log(rate)
+        possible |= (all_pass >= level) & (successes + extra > rate * (trials + extra))
+    if "fail" in verdicts:
+        all_fail = betaln(a + successes, b + failures + extra) + base - extra * math.log1p(-rate)
+        possible |= (all_fail >= level) & (successes < rate * (trials + extra))
+    found = np.flatnonzero(possible)
+    return int(extra[found[0]]) if found.size else int(extra[-1])
 
 
-def max_looks(low: int, high: int) -> int:
-    """Most k values bracket-and-bisection tests on [low, high]: high, low, then ceil(log2(high - low)).
+def lattice_count(low: int, high: int, step: int = 1) -> int:
+    """Lattice points low, low + step, ... strictly below high: the most k a walk down can test.
 
-    >>> max_looks(10, 10), max_looks(10, 11), max_looks(8, 64)
-    (1, 2, 8)
+    >>> lattice_count(10, 150, 2), lattice_count(8, 64), lattice_count(5, 5)
+    (70, 56, 0)
+    """
+    return max(0, -(-(high - low) // step))
+
+
+def max_looks(low: int, high: int, step: int = 1) -> int:
+    """Most k values bracket-and-bisection tests on the lattice of [low, high]: high, low, then
+    ceil(log2(ceil((high - low) / step))).
+
+    >>> max_looks(10, 10), max_looks(10, 11), max_looks(8, 64), max_looks(10, 150, 2)
+    (1, 2, 8, 9)
     """
     if high <= low:
         return 1
-    return 2 + math.ceil(math.log2(high - low))
+    return 2 + math.ceil(math.log2(lattice_count(low, high, step)))
 
 
 @dataclass
 class Step:
-    """One tested k: trials read, successes, the anytime bounds and the verdict."""
+    """One tested k: trials read, successes, the bounds and the verdict, and the phase that tested it."""
 
     k: int
     trials: int
@@ -176,13 +220,15 @@ class Step:
     lower: float
     upper: float
     verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target)
+    phase: str = "bisection"  # "bisection" | "walk"
 
 
 @dataclass
 class KSearch:
     """The search on one cell; feed it outcomes at :meth:`demand`'s k until it is done.
 
-    ``cap`` is the most trials read at one k (instances x replicates of the spec).
+    ``cap`` is the most trials read at one k (instances x replicates of the spec); ``step`` the
+    lattice of k values below ``high`` (low, low + step, ...): the resolution of the answer.
     """
 
     low: int
@@ -190,13 +236,17 @@ class KSearch:
     rate: float
     confidence: float
     cap: int
+    step: int = 1
     steps: list = field(default_factory=list)
     safe_k: Optional[int] = None
     reason: str = ""
     done: bool = False
 
     def __post_init__(self) -> None:
-        self.alpha = (1.0 - self.confidence) / max_looks(self.low, self.high)
+        error = 1.0 - self.confidence
+        self.alpha = error / 2 / max_looks(self.low, self.high, self.step)  # one bisection look
+        self.walk_alpha = error / 2  # every k of the walk down (fixed sequence)
+        self.phase = "bisection"
         self._passing, self._failing = None, None  # smallest passing, largest failing k so far
         self.k: Optional[int] = self.high
         self._outcomes: list = []
@@ -205,33 +255,42 @@ class KSearch:
         """(k, n): the search needs the outcomes of the first n trials at k; None once done."""
         if self.done:
             return None
-        successes = sum(self._outcomes)
-        more = trials_before_decision(successes, len(self._outcomes), self.rate, self.alpha / 2, self.cap)
-        return self.k, len(self._outcomes) + max(1, more)
+        successes, read = sum(self._outcomes), len(self._outcomes)
+        if self.phase == "walk":  # passes only at the cap: ask up to the first possible early fail
+            more = trials_before_decision(successes, read, self.rate, self.walk_alpha, self.cap, ("fail",))
+        else:
+            more = trials_before_decision(successes, read, self.rate, self.alpha / 2, self.cap)
+        return self.k, read + max(1, more)
 
     def offer(self, outcomes: Sequence[bool]) -> None:
         """Outcomes of the first trials at the current k, in trial order (a longer list is fine)."""
         outcomes = [bool(value) for value in outcomes[:self.cap]]
-        verdict, used = first_decision(outcomes, self.rate, self.alpha / 2)
+        walking = self.phase == "walk"
+        alpha = self.walk_alpha if walking else self.alpha / 2
+        verdict, used = first_decision(outcomes, self.rate, alpha, ("fail",) if walking else ("pass", "fail"))
         if verdict is not None:
             self._record(verdict, outcomes[:used])
         elif len(outcomes) < self.cap:
             self._outcomes = outcomes
         else:  # the last look: a fixed-n Clopper–Pearson bound on all cap trials
-            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - self.alpha / 2))
+            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - alpha))
             self._record("pass" if lower >= self.rate else "fail at the cap", outcomes, lower)
 
     def _record(self, verdict: str, outcomes: list, last_lower: float = 0.0) -> None:
         successes = sum(outcomes)
-        lower, upper = confidence_sequence(successes, len(outcomes), self.rate, self.alpha / 2)
+        alpha = self.walk_alpha if self.phase == "walk" else self.alpha / 2
+        lower, upper = confidence_sequence(successes, len(outcomes), self.rate, alpha)
         lower = max(lower, last_lower)
-        self.steps.append(Step(self.k, len(outcomes), successes, lower, upper, verdict))
+        self.steps.append(Step(self.k, len(outcomes), successes, lower, upper, verdict, self.phase))
         self._outcomes = []
-        if verdict == "pass":
-            self._passing = self.k
+        if self.phase == "walk":
+            self.k = self._walk(self.k) if verdict == "pass" else self._finish_walk()
         else:
-            self._failing = self.k
-        self.k = self._next_k()
+            if verdict == "pass":
+                self._passing = self.k
+            else:
+                self._failing = self.k
+            self.k = self._next_k()
         if self.k is None:
             self.done = True
 
@@ -243,9 +302,25 @@ class KSearch:
             if self.low == self.high or self._passing == self.low:
                 return self._finish(self._passing, f"the low end k = {self.low} passes: a smaller k may be safe too")
             return self.low
-        if self._passing - self._failing <= 1:
-            return self._finish(self._passing, "")
-        return (self._passing + self._failing) // 2
+        inside = self._lattice_between(self._failing, self._passing)
+        if not inside:
+            return self._walk(self._passing)
+        return inside[(len(inside) - 1) // 2]
+
+    def _lattice_between(self, failing: int, passing: int) -> list[int]:
+        first = self.low + self.step * max(0, -(-(failing + 1 - self.low) // self.step))
+        return list(range(first, passing, self.step))
+
+    def _walk(self, passed: int) -> Optional[int]:
+        """The walk down's next k: the lattice point below ``passed`` (the smallest k passed so far)."""
+        self.phase, self._passing = "walk", passed
+        below = self.low + self.step * ((passed - 1 - self.low) // self.step)
+        if below < self.low:
+            return self._finish(passed, f"the low end k = {self.low} passes: a smaller k may be safe too")
+        return below
+
+    def _finish_walk(self) -> None:
+        return self._finish(self._passing, "")
 
     def _finish(self, k: int, reason: str) -> None:
         self.safe_k, self.reason = k, reason
@@ -253,22 +328,28 @@ class KSearch:
 
     @property
     def trials_read(self) -> int:
-        return sum(step.trials for step in self.steps)
+        """Distinct trials read: a k tested in both phases counts its largest prefix once."""
+        read: dict[int, int] = {}
+        for step in self.steps:
+            read[step.k] = max(read.get(step.k, 0), step.trials)
+        return sum(read.values())
 
 
 def trace_lines(search: KSearch, target_text: str) -> list[str]:
-    """Human-readable trace: one line per tested k, then the verdict with its assumption."""
-    lines = [f"  {'k':>6} {'trials':>7} {'successes':>9}  {'lower':>6} {'upper':>6}  verdict"]
-    for step in sorted(search.steps, key=lambda step: step.k):
-        lines.append(f"  {step.k:>6} {step.trials:>7} {step.successes:>9}  {step.lower:>6.3f} {step.upper:>6.3f}  {step.verdict}")
-    looks = max_looks(search.low, search.high)
+    """Human-readable trace: one line per tested k and phase, then the verdict with its assumption."""
+    lines = [f"  {'k':>6} {'trials':>7} {'successes':>9}  {'lower':>6} {'upper':>6}  {'phase':9}  verdict"]
+    for step in sorted(search.steps, key=lambda step: (step.k, step.phase)):
+        lines.append(f"  {step.k:>6} {step.trials:>7} {step.successes:>9}  {step.lower:>6.3f} {step.upper:>6.3f}  "
+                     f"{step.phase:9}  {step.verdict}")
+    looks = max_looks(search.low, search.high, search.step)
     if search.safe_k is None:
         verdict = f"no safe k in [{search.low}, {search.high}]: {search.reason}" if search.done else "search not finished"
     else:
         verdict = f"safe k = {search.safe_k}: {target_text} at confidence {search.confidence:g}"
         verdict += f" ({search.reason})" if search.reason else ""
     lines.append(f"  {verdict}")
-    lines.append(f"  bounds: per k, a beta-binomial confidence sequence at {1 - search.alpha / 2:.4g} and a last "
-                 f"Clopper–Pearson look at the cap at {1 - search.alpha / 2:.4g} (Bonferroni over at most {looks} k values); "
-                 f"{MONOTONE}")
+    lines.append(f"  bounds: bisection k at {1 - search.alpha / 2:.4g} (a beta-binomial confidence sequence, then a "
+                 f"Clopper–Pearson look at the cap; Bonferroni over at most {looks} k values), then a walk down the "
+                 f"k lattice (step {search.step}) with a Clopper–Pearson look at the cap at {1 - search.walk_alpha:.4g} "
+                 f"per k (fixed sequence); {MONOTONE}")
     return lines

@@ -85,6 +85,7 @@ class KGrid:
     mode: str  # "absolute" | "fractions" | "eps" | "search" | "search-fractions"
     values: tuple
     rule: Optional[str] = None
+    step: int = 1  # a search's lattice of k: low, low + step, ... (the resolution of its answer)
 
     @property
     def is_search(self) -> bool:
@@ -363,15 +364,22 @@ def _parse_k(value, errors: _Collector) -> KGrid:
     return KGrid("absolute", ())
 
 
-_SEARCH_FIX = "write k = {search = {low = 8, high = 64}} (integers, low < high) or {search = {low_fraction = 0.05, high_fraction = 0.5}}"
+_SEARCH_FIX = ("write k = {search = {low = 8, high = 64}} (integers, low < high) or {search = {low_fraction = 0.05, "
+               "high_fraction = 0.5}}, optionally with step = 2 (the resolution of the answer)")
 
 
 def _parse_search(value, errors: _Collector) -> KGrid:
-    """``{low, high}`` (integers 1 <= low < high) or ``{low_fraction, high_fraction}`` (0 < low < high <= 1)."""
+    """``{low, high}`` (integers 1 <= low < high) or ``{low_fraction, high_fraction}`` (0 < low < high <= 1),
+    with an optional ``step`` (integer >= 1, default 1): the lattice low, low + step, ... of k tested."""
     path = "sweep.k.search"
-    if not isinstance(value, dict) or set(value) not in ({"low", "high"}, {"low_fraction", "high_fraction"}):
+    ends = set(value) - {"step"} if isinstance(value, dict) else None
+    if not isinstance(value, dict) or ends not in ({"low", "high"}, {"low_fraction", "high_fraction"}):
         errors.add(path, f"cannot read {value!r}", _SEARCH_FIX)
         return KGrid("search", ())
+    step = value.get("step", 1)
+    if isinstance(step, bool) or not isinstance(step, int) or step < 1:
+        errors.add(f"{path}.step", f"invalid value {step!r}", "step is an integer >= 1 (1: every k)")
+        step = 1
     fractions = "low_fraction" in value
     keys = ("low_fraction", "high_fraction") if fractions else ("low", "high")
     good = True
@@ -387,7 +395,7 @@ def _parse_search(value, errors: _Collector) -> KGrid:
     low, high = (value[key] for key in keys)
     if good and not low < high:
         errors.add(path, f"{keys[0]} = {low} is not below {keys[1]} = {high}", _SEARCH_FIX)
-    return KGrid("search-fractions" if fractions else "search", (low, high))
+    return KGrid("search-fractions" if fractions else "search", (low, high), step=step)
 
 
 #: keys of the [target] table

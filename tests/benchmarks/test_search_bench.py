@@ -11,7 +11,7 @@ Run at full size with ``make bench`` (or ``pytest tests/benchmarks/test_search_b
 
 Per case and root seed the same cells run twice into fresh stores: as a search on [low, high], and
 as a grid of every 2nd k from low to high with the same instances and replicates (the search's cap
-per k). The grid's safe k is the table's (one-sided Clopper–Pearson at each k, monotone rule, from
+per k); the search runs on the same lattice (``step = 2``), so both answer on the same k values. The grid's safe k is the table's (one-sided Clopper–Pearson at each k, monotone rule, from
 :mod:`calib.analysis.tables`). Goal: at least 5x fewer trials, and a search answer within one grid
 step (2) of the grid's for at least 9 of 10 seeds. Both are empirical answers on the instances
 measured, not proofs.
@@ -45,6 +45,8 @@ REDUCED = {
 }
 
 INSTANCES, REPLICATES = 2, 40  # cap per k: 80 trials
+#: the grid's spacing, and the search's lattice step: both answer on the same k values
+GRID_STEP = 2
 
 SPEC = """
 [campaign]
@@ -72,7 +74,7 @@ def _spec(folder: Path, name: str, case: str, seed: int, reduced: bool, search: 
     family, size, params, projectors, (low, high), target = CASES[case]
     if reduced:
         size, (low, high) = REDUCED[case]
-    k = f"{{search = {{low = {low}, high = {high}}}}}" if search else str(list(range(low, high + 1, 2)))
+    k = f"{{search = {{low = {low}, high = {high}, step = {GRID_STEP}}}}}" if search else str(list(range(low, high + 1, GRID_STEP)))
     text = SPEC.format(name=name, seed=seed, replicates=REPLICATES, family=family, size=size, instances=INSTANCES,
                        params=params, projectors=projectors, k=k, target=f"[target]\n{target}" if search else "")
     folder.mkdir(parents=True, exist_ok=True)
@@ -112,7 +114,7 @@ def compare(case: str, seed: int, folder: Path, reduced: bool, workers: int) -> 
     for cell in search.searches:
         grid_k = from_grid.get(cell.projector.label)
         same = (grid_k is None and cell.search.safe_k is None) or (
-            grid_k is not None and cell.search.safe_k is not None and abs(grid_k - cell.search.safe_k) <= 2)
+            grid_k is not None and cell.search.safe_k is not None and abs(grid_k - cell.search.safe_k) <= GRID_STEP)
         rows.append({"case": case, "seed": seed, "projector": cell.projector.label,
                      "search_trials": cell.search.trials_read, "grid_trials": grid.ran // len(search_spec.projectors),
                      "search_k": cell.search.safe_k, "grid_k": grid_k, "same": same,
