@@ -177,6 +177,29 @@ def test_dry_run_prints_counts_and_an_estimate_and_creates_nothing(tmp_path, cap
     assert not out.exists()
 
 
+def test_dry_run_counts_only_the_stored_trials_of_its_own_plan(tmp_path, capsys):
+    # a store can hold trials a later spec does not plan (here: fewer replicates): they are not
+    # counted as its own, and the work left is never negative
+    out = tmp_path / "out"
+    first = write_spec(tmp_path)
+    assert main(["run", str(first), "--out", str(out), "--in-process", "--quiet"]) == 0
+    text = first.read_text()
+    assert main(["run", str(first), "--out", str(out), "--dry-run", "--workers", "2"]) == 0
+    assert "resumes: 120 of its trials stored" in capsys.readouterr().out
+    grown = tmp_path / "grown.toml"
+    grown.write_text(text.replace("replicates = 4", "replicates = 5"))
+    assert main(["run", str(grown), "--out", str(out), "--dry-run", "--workers", "2"]) == 0
+    report = capsys.readouterr().out
+    assert "6 instances, 150 trials" in report and "resumes: 120 of its trials stored" in report
+    assert "for the 30 trials left" in report
+    fewer = tmp_path / "fewer.toml"
+    fewer.write_text(text.replace("replicates = 4", "replicates = 2"))
+    assert main(["run", str(fewer), "--out", str(out), "--dry-run", "--workers", "2"]) == 0
+    report = capsys.readouterr().out
+    assert "6 instances, 60 trials" in report and "resumes: 60 of its trials stored" in report
+    assert "for the 0 trials left" in report  # before: "-60 trials left", a negative work estimate
+
+
 MIXED = """
 [campaign]
 name = "mixed"

@@ -174,6 +174,16 @@ class _ProgressBar:
             self.bar.close()
 
 
+def _stored_in_plan(spec, done: set, planned: int) -> int:
+    """Stored trials this spec would run: for a grid the planned trial ids found in the store (a
+    store can hold trials of an earlier, different spec); for a search, at most its planned count."""
+    from calib.sweep.trial import expand
+
+    if spec.k_grid.is_search:
+        return min(len(done), planned)
+    return sum(trial.trial_id in done for _, trials in expand(spec) for trial in trials)
+
+
 def dry_run(spec, args: argparse.Namespace) -> str:
     """The --dry-run report (creates nothing)."""
     from calib.sweep.estimate import check_memory, probe_sizes, render_plan, size_plans
@@ -182,14 +192,14 @@ def dry_run(spec, args: argparse.Namespace) -> str:
 
     path, exists = locate(spec, args.out, args.new_campaign)
     stored = 0
+    plans = size_plans(spec)
     if exists:
         store = Store.open_existing(path)
         try:
-            stored = len(store.done_trial_ids())
+            stored = _stored_in_plan(spec, store.done_trial_ids(), sum(plan.trials for plan in plans))
         finally:
             store.close()
-    note = f"{path} ({'resumes: ' + str(stored) + ' trials stored' if exists else 'new'})"
-    plans = size_plans(spec)
+    note = f"{path} ({'resumes: ' + str(stored) + ' of its trials stored' if exists else 'new'})"
     if not args.scheduler:  # a cluster's workers have memory of their own
         check_memory(plans)
     probes = None if args.no_probe else probe_sizes(spec, plans)
