@@ -145,6 +145,47 @@ def test_the_shipped_atlas_validates_and_its_checksum_matches(name):
     assert table["checksum"] == "sha256:" + hashlib.sha256(canonical.encode("utf-8")).hexdigest()
 
 
+#: one cell per atlas file, cheap to re-run here: (spec, family, size index, projector, predicate, tau)
+RERUN = [(SPECS[0], "lp-transport", 0, "countsketch", "bound", 0.05),
+         (SPECS[1], "points-gaussian", 0, "srht", "distortion", 0.2)]
+
+
+def _entry(table: dict, tau: float, family: str, projector: str, n_points: int) -> dict:
+    analysis = next(item for item in table["analyses"] if item["tau"] == tau)
+    return next(entry for entry in analysis["entries"]
+                if (entry["family"], entry["projector"], entry["n_points"]) == (family, projector, n_points))
+
+
+@pytest.mark.skipif(not _shipped(), reason="no atlas committed yet under results/atlas/ (`make atlas` creates it)")
+@pytest.mark.parametrize("spec_path, family, size_index, projector, preset, tau", RERUN, ids=lambda item: str(item))
+def test_one_atlas_cell_run_again_here_gives_the_committed_numbers(tmp_path, spec_path, family, size_index,
+                                                                  projector, preset, tau):
+    # Reproduction, on a sample: one cell of the committed atlas, run again from its spec alone (same
+    # root seed, instances, replicates, target and solver limits), searches the same k with the same
+    # outcomes, so its table entry carries the committed numbers. `make atlas` reruns all cells.
+    import tomllib
+
+    from calib.sweep.runner import run_campaign
+    from calib.sweep.spec import parse_spec
+
+    raw = tomllib.loads(spec_path.read_text(encoding="utf-8"))
+    cell = next(item for item in raw["families"] if item["name"] == family)
+    raw["families"] = [dict(cell, sizes=[cell["sizes"][size_index]])]
+    raw["sweep"]["projectors"] = [projector]
+    spec = parse_spec(raw, source=str(spec_path))
+    summary = run_campaign(spec, tmp_path, workers=2)
+    store = Store.open_existing(summary.store_path)
+    try:
+        table = build_table(store, make_predicate(preset), Confidence(), taus=[tau])
+    finally:
+        store.close()
+    name = atlas.ATLAS_FILES[SPECS.index(spec_path)]
+    committed = json.loads((atlas.SHIPPED / name).read_text(encoding="utf-8"))
+    n_points = get(family).n_points(cell["sizes"][size_index] | cell.get("params", {}))
+    ours, theirs = (_entry(item, tau, family, projector, n_points) for item in (table, committed))
+    assert ours == theirs
+
+
 def test_lookup_from_the_atlas_stays_light(monkeypatch):
     # `calib lookup` without a table imports no heavy library either (the rule of tests/test_cli_light.py).
     from test_cli_light import HEAVY, TABLE, imported_by

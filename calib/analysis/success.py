@@ -93,6 +93,20 @@ class Predicate:
         """Whether the predicate looks at retrieved points (then exact retrievals must save time)."""
         return any(getattr(self, key) is not None for key in ("obj", "feas", "sign"))
 
+    def describe(self) -> str:
+        """What a success must meet, in words: the verdict, the tolerances, the cost condition.
+
+        >>> PRESETS["policy"].describe()
+        'feasibility verdict matches, obj <= 0.05, feas <= 0.05, sign <= 0.05, faster end to end than the fair baseline'
+        >>> PRESETS["bound"].describe(), PRESETS["classify"].describe()
+        ('feasibility verdict matches, gap <= 0.05', 'feasibility verdict matches')
+        """
+        parts = ["feasibility verdict matches"] if self.classify else []
+        parts += [f"{key} <= {getattr(self, key):g}" for key in TOLERANCE_METRICS if getattr(self, key) is not None]
+        if self.faster:
+            parts.append("faster end to end than the fair baseline")
+        return ", ".join(parts)
+
     def error_metric(self, kind: str) -> Optional[str]:
         """The stored metric reported as "the error" of rows of ``kind`` (first checked one)."""
         checked = self.checks(kind)

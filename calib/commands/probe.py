@@ -282,7 +282,7 @@ def find_k(args: argparse.Namespace, target: Target, choice, retrievals: list[st
              f"  n and m: {counting(target.kind)}",
              f"original: {original.status}{objective}",
              f"projector {choice.label}, retrieval {retrieval}, k in [{low}, {high}], at most {args.max_trials} trials per k",
-             f"target: success rate >= {confidence.target:g} under {target_text(predicate, confidence.target)}"]
+             f"target: success rate >= {confidence.target:g} under {target_text(predicate)}"]
     lines += trace_lines(search, f"success rate >= {confidence.target:g}")
     lines += [f"trials run: {search.trials_read} (seed {args.seed}: the streams of a campaign with root_seed = {args.seed})", NOTICE]
     print("\n".join(lines))
@@ -462,13 +462,7 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
     statuses = ", ".join(f"{key} {count}" for key, count in projection["proj_status"].items() if key != "None")
     lines += ["", "summary (median / max over replicates):", f"  projection: {statuses or 'nothing to solve'}"]
     lines += _stat_lines(projection["metrics"])
-    checks = predicate.as_dict()
-    tolerances = ", ".join(f"{key} <= {value:g}" for key, value in checks.items()
-                           if key not in ("name", "classify", "faster") and value is not None)
-    if checks.get("classify"):
-        tolerances = ", ".join(filter(None, ["feasibility verdict matches", tolerances]))
-    if checks.get("faster"):
-        tolerances = ", ".join(filter(None, [tolerances, "faster end to end than the fair baseline"]))
+    tolerances = predicate.describe()
     for name, entry in summary["retrievals"].items():
         verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
         lines.append(f"  {name}: success {entry['successes']}/{entry['trials']} under '{predicate.name}' "

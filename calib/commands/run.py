@@ -94,7 +94,7 @@ def search_report(spec, cells) -> str:
     from calib.sweep.search import trace_lines
 
     target = spec.target
-    rule = target_text(target.predicate, target.rate)
+    rule = target_text(target.predicate)
     lines = [f"k search: smallest k with success rate >= {target.rate:g} under {rule}, per cell"]
     for cell in cells:
         lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
@@ -103,13 +103,9 @@ def search_report(spec, cells) -> str:
     return "\n".join(lines)
 
 
-def target_text(predicate, rate: float) -> str:
-    """``'bound' (gap <= 1e-06)``: the predicate's name and the tolerances it checks."""
-    checks = {key: value for key, value in predicate.as_dict().items() if key not in ("name", "classify") and value is not None}
-    text = ", ".join(f"{key} <= {value:g}" for key, value in checks.items())
-    if predicate.classify:
-        text = ", ".join(filter(None, ["feasibility verdict matches", text]))
-    return f"'{predicate.name}' ({text})"
+def target_text(predicate) -> str:
+    """``'bound' (feasibility verdict matches, gap <= 1e-06)``: the predicate's name and what it checks."""
+    return f"'{predicate.name}' ({predicate.describe()})"
 
 
 def count_solver_errors(store_path) -> int:
