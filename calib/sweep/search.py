@@ -30,26 +30,28 @@ pass at that k has probability <= alpha/2 + alpha/2 (a union bound; the look at 
 event whatever the sequence did before). The last look is what lets a k with, say, 79 successes in
 80 trials pass, where the anytime bound alone would need more trials than the cap.
 
-Many k, in two phases, each spending half of the error 1 - confidence:
+Many k, in two phases that share the error 1 - confidence (a fifth, :data:`BISECTION_SHARE`, on
+the bisection, the rest on the walk: the walk makes the claim, so its level stays close to the
+level a grid's table uses, 0.96 against 0.95 at confidence 0.95):
 
 1. Bracket and bisection. On the lattice low, low + step, low + 2 step, ... (and high), it tests
    at most K = 2 + ceil(log2(ceil((high - low) / step))) values of k (high, low, then halving the
    gap between the smallest passing and the largest failing k), each at alpha = (1 - confidence)
-   / (2 K) (Bonferroni: a bisection can look at several k below the true threshold, and each is a
+   / (5 K) (Bonferroni: a bisection can look at several k below the true threshold, and each is a
    chance of a false pass). Its answer k_b is the smallest tested k that passed, above a failing
    one. When high does not pass there is no claim; when low passes, low is the answer.
 2. Walk down. From k_b the lattice points below it are tested in decreasing order, each at the
-   full level (1 - confidence) / 2 by the Clopper–Pearson look on its N trials (a k clearly below
+   level 4 (1 - confidence) / 5 by the Clopper–Pearson look on its N trials (a k clearly below
    the target stops early, on the confidence sequence at the same level); the walk stops at the
    first k that does not pass, and the answer is the last k that did. This is fixed-sequence
    testing along a monotone family (Maurer, Hothorn & Lehmacher 1995; Westfall & Krishen 2001):
    for the true threshold k*, the walk can claim a k below k* only if it passes the first lattice
-   point below k*, a single fixed k whose fixed-N test has level (1 - confidence) / 2, whichever
+   point below k*, a single fixed k whose fixed-N test has level 4 (1 - confidence) / 5, whichever
    trials the bisection had already read there. The walk is the step-down a full grid applies
    (:func:`calib.analysis.saferule.safe_k_rule`), run only below k_b; it costs no new trial at a
    k the bisection already decided, and a whole cap at each new k it passes.
 
-So P(the claimed k has p(k) < t) <= (1 - confidence) / 2 + (1 - confidence) / 2. Both phases
+So P(the claimed k has p(k) < t) <= (1 - confidence) / 5 + 4 (1 - confidence) / 5. Both phases
 assume p(k) does not fall as k grows (monotone success), as the grid's rule does; k values
 between tested ones are not checked, and this assumption is stated with every verdict.
 
@@ -70,6 +72,8 @@ from calib.analysis.stats import clopper_pearson_lower
 
 #: strength a + b of the Beta prior of the mixture (centred on the target rate)
 PRIOR_STRENGTH = 5.0
+#: the share of the error 1 - confidence spent on the bisection; the walk down spends the rest
+BISECTION_SHARE = 0.2
 #: stated with every verdict
 MONOTONE = "bisection assumes the success rate does not fall as k grows; k values between tested ones were not run"
 
@@ -244,8 +248,8 @@ class KSearch:
 
     def __post_init__(self) -> None:
         error = 1.0 - self.confidence
-        self.alpha = error / 2 / max_looks(self.low, self.high, self.step)  # one bisection look
-        self.walk_alpha = error / 2  # every k of the walk down (fixed sequence)
+        self.alpha = error * BISECTION_SHARE / max_looks(self.low, self.high, self.step)  # one bisection look
+        self.walk_alpha = error * (1.0 - BISECTION_SHARE)  # every k of the walk down (fixed sequence)
         self.phase = "bisection"
         self._passing, self._failing = None, None  # smallest passing, largest failing k so far
         self.k: Optional[int] = self.high
