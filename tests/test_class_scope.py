@@ -207,6 +207,9 @@ def test_class_answer_is_in_the_table_json():
     assert entry["instances"] == 3 and entry["safe_k"] == 4 and entry["class"]["safe_k"] is None
     assert entry["class"]["reason"].startswith("3 instances cannot certify 90% at 95% confidence")
     json.dumps(entry, allow_nan=False)
+    # when no k passes even for the instances measured, more instances would not help: the data says why
+    failing = build_analysis(_rows(["optimal"] * 30, [0.5] * 30, [4] * 30), make_predicate("bound"), Confidence())
+    assert failing["entries"][0]["class"]["reason"] == "no swept k reaches the target, already for the instances measured"
 
 
 # ----- design advice before spending -----------------------------------------------------------

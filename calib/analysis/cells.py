@@ -68,7 +68,8 @@ def cell_stats(k, instance, success, target: float, confidence: float) -> CellSt
     class_safe_k, why = safe_k_rule(counts.ks, class_passes)
     return CellStats(counts, successes, trials, lower, wilson_lower(successes, trials, confidence), passes, safe_k,
                      reason, klass, class_passes, class_safe_k,
-                     class_reason(class_safe_k, why, counts.n_instances, target, confidence),
+                     class_reason(class_safe_k, why, counts.n_instances, target, confidence,
+                                  reason if safe_k is None else None),
                      fit_clustered(k, success, instance))
 
 

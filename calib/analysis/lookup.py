@@ -208,7 +208,10 @@ def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class",
         if scope == "class" and safe is None:
             from calib.analysis.scope import class_reason
 
-            reason = class_reason(safe, reason, entry["instances"], confidence.target, confidence.level)
+            pooled = _lower_bounds(entry, confidence, "instances")
+            mine, mine_reason = safe_k_rule([p["k"] for p in entry["grid"]], pooled >= confidence.target)
+            reason = class_reason(safe, reason, entry["instances"], confidence.target, confidence.level,
+                                  mine_reason if mine is None else None)
         out.append((safe, reason))
     return out
 

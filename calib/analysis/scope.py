@@ -219,10 +219,19 @@ def refusal(n_instances: int, target: float, confidence: float) -> str:
             f"confidence for the class unless they agree closely; when each instance decides alone, {needed} are needed")
 
 
-def class_reason(safe_k: Optional[int], reason: str, n_instances: int, target: float, confidence: float) -> str:
-    """The reason shown beside the class safe k: the design's limit first when it explains it."""
+def class_reason(safe_k: Optional[int], reason: str, n_instances: int, target: float, confidence: float,
+                 instances_reason: Optional[str] = None) -> str:
+    """The reason shown beside the class safe k: the data's when even the instances measured have no
+    safe k (``instances_reason``; more instances would not help), else the design's limit first when
+    it explains it.
+
+    >>> class_reason(None, "no swept k reaches the target", 7, 0.9, 0.95, "no swept k reaches the target")
+    'no swept k reaches the target, already for the instances measured'
+    """
     if safe_k is not None:
         return reason
+    if instances_reason is not None:
+        return f"{instances_reason}, already for the instances measured"
     limit = refusal(n_instances, target, confidence)
     return limit or f"{reason} for the class (instance-to-instance spread counted)"
 
