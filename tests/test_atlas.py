@@ -147,7 +147,7 @@ def test_the_shipped_atlas_validates_and_its_checksum_matches(name):
 
 #: one cell per atlas file, cheap to re-run here: (spec, family, size index, projector, predicate, tau)
 RERUN = [(SPECS[0], "lp-transport", 0, "countsketch", "bound", 0.05),
-         (SPECS[1], "points-gaussian", 0, "srht", "distortion", 0.2)]
+         (SPECS[1], "points-gaussian", 0, "srht", "distortion", 0.3)]
 
 
 def _entry(table: dict, tau: float, family: str, projector: str, n_points: int) -> dict:
