@@ -160,30 +160,32 @@ def _simulate(curve: dict, low: int, high: int, rate: float, confidence: float, 
     return search
 
 
-def test_the_stated_confidence_holds_over_many_searches():
-    # an adversarial curve: just below the target up to k = 11, then safe (p = 0.97)
-    low, high, rate, confidence, cap = 1, 40, 0.9, 0.8, 300
-    curve = {k: (0.88 if k < 12 else 0.97) for k in range(low, high + 1)}
-    rng = np.random.default_rng([20261202, 1])
-    runs = 300
+def _many_searches(curve: dict, low: int, high: int, cap: int, seed: int, runs: int = 300,
+                   rate: float = 0.9, confidence: float = 0.8) -> tuple[list, int]:
+    """(searches, wrong claims) of ``runs`` searches on ``curve``, and the check that the wrong
+    claims stay within the binomial 0.999 quantile of runs x (1 - confidence) (module text)."""
+    rng = np.random.default_rng([20261202, seed])
     searches = [_simulate(curve, low, high, rate, confidence, cap, rng, all_at_once=True) for _ in range(runs)]
     wrong = sum(s.safe_k is not None and curve[s.safe_k] < rate for s in searches)
     assert wrong <= stats.binom.ppf(0.999, runs, 1 - confidence)
+    return searches, wrong
+
+
+def test_the_stated_confidence_holds_over_many_searches():
+    # an adversarial curve: just below the target up to k = 11, then safe (p = 0.97)
+    low, high = 1, 40
+    curve = {k: (0.88 if k < 12 else 0.97) for k in range(low, high + 1)}
+    searches, _ = _many_searches(curve, low, high, cap=300, seed=1)
     found = sum(s.safe_k == 12 for s in searches)
-    assert found >= runs // 2  # the search has power: p = 0.97 passes, p = 0.88 mostly fails within 300 trials
+    assert found >= len(searches) // 2  # the search has power: p = 0.97 passes, p = 0.88 mostly fails within 300 trials
     assert all(sum(step.phase == "bisection" for step in s.steps) <= max_looks(low, high) for s in searches)
 
 
 def test_the_stated_confidence_holds_where_the_walk_down_is_tempted():
     # a long plateau just below the target (p = 0.895 for k < 25): every bisection look and every
     # walk step there is a chance of a false pass; the claim must still hold at its confidence
-    low, high, rate, confidence, cap = 1, 60, 0.9, 0.8, 200
-    curve = {k: (0.895 if k < 25 else 0.99) for k in range(low, high + 1)}
-    rng = np.random.default_rng([20261202, 4])
-    runs = 300
-    searches = [_simulate(curve, low, high, rate, confidence, cap, rng, all_at_once=True) for _ in range(runs)]
-    wrong = sum(s.safe_k is not None and curve[s.safe_k] < rate for s in searches)
-    assert wrong <= stats.binom.ppf(0.999, runs, 1 - confidence)  # P(wrong) <= 1 - confidence (module text)
+    curve = {k: (0.895 if k < 25 else 0.99) for k in range(1, 61)}
+    _many_searches(curve, 1, 60, cap=200, seed=4)
 
 
 def _fixed(successes_at: dict, cap: int, low: int, high: int, step: int = 1) -> KSearch:
