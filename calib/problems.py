@@ -9,13 +9,28 @@ A general-form LP (row bounds, column bounds, free variables) becomes standard f
 :meth:`GeneralLP.to_standard`, which adds slacks and splits free variables and keeps a linear map
 that takes a standard-form point back to the original variables. Infinities are normalised here,
 in one place: any bound with magnitude >= 1e20 counts as infinite (the HiGHS convention).
+
+Decision and completion columns
+-------------------------------
+The columns of a standard-form LP are of two sorts. The *decision* columns carry what a user takes
+from a solution (regression coefficients, food servings, flows, a signal); the *completion* columns
+(residual pairs, slacks and surpluses, the columns that occur in one row only) are fixed by the
+decision: once the decision part x_D is chosen, the best completion solves
+
+    minimise  c_C^T x_C   subject to   A_C x_C = b - A_D x_D,   x_C >= 0,
+
+which for columns that occur in one row each splits into one closed form per row
+(:mod:`calib.reduce.completion`). A :class:`DecisionMap` on the LP names the decision: the user's
+variables d = shift + M x (M of shape (p, n), sparse), its decision columns being the columns of M
+with a nonzero. Families declare it; an LP without one gets it from its structure
+(:func:`decision_of`: every column that occurs in two rows or more is a decision column).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Union
+from typing import Optional, Union
 
 import numpy as np
 import scipy.sparse as sp
@@ -46,6 +61,54 @@ def _check_finite(name: str, where: str, values) -> None:
         raise InputError(where, f"{name} contains NaN or infinite entries", "replace them with finite numbers")
 
 
+@dataclass(eq=False)
+class DecisionMap:
+    """The user's decision variables of a standard-form point x: d = shift + matrix @ x.
+
+    Attributes
+    ----------
+    matrix : scipy.sparse CSR, shape (p, n)
+        Row i combines the standard-form columns behind decision variable i (one column for a
+        nonnegative variable, +1 and -1 for the two parts of a free one).
+    shift : ndarray, shape (p,)
+        The constant part (a shifted lower bound), 0 by default.
+    names : tuple of str, optional
+        The decision variables' names (from an MPS file), length p.
+    """
+
+    matrix: sp.csr_array
+    shift: np.ndarray = None
+    names: Optional[tuple] = None
+
+    def __post_init__(self) -> None:
+        self.matrix = sp.csr_array(self.matrix, dtype=float)
+        self.shift = np.zeros(self.matrix.shape[0]) if self.shift is None else np.asarray(self.shift, dtype=float).ravel()
+
+    @classmethod
+    def select(cls, n_cols: int, columns, names: Optional[tuple] = None) -> "DecisionMap":
+        """The decision variables x[columns] themselves (a selection of the standard-form columns).
+
+        >>> DecisionMap.select(4, [0, 2]).columns.tolist()
+        [0, 2]
+        """
+        columns = np.asarray(columns, dtype=int)
+        pick = sp.csr_array((np.ones(columns.size), (np.arange(columns.size), columns)), shape=(columns.size, n_cols))
+        return cls(pick, names=names)
+
+    @property
+    def columns(self) -> np.ndarray:
+        """Indices of the decision columns (sorted): the columns of ``matrix`` with a nonzero."""
+        return np.flatnonzero(np.diff(sp.csc_array(self.matrix).indptr) > 0)
+
+    def of(self, x: np.ndarray) -> np.ndarray:
+        """The decision variables d = shift + matrix @ x of a standard-form point x (shape (n,) -> (p,)).
+
+        >>> DecisionMap(sp.csr_array(np.array([[1.0, -1.0, 0.0]]))).of(np.array([0.0, 2.5, 7.0])).tolist()
+        [-2.5]
+        """
+        return self.shift + np.asarray(self.matrix @ x).ravel()
+
+
 @dataclass
 class StandardLP:
     """min c^T x + offset s.t. A x = b, x >= 0.
@@ -58,6 +121,9 @@ class StandardLP:
     offset : float
         Constant added to the objective (kept so values compare with published optima).
     name : str
+    decision : DecisionMap, optional
+        The user's decision variables (module docstring); None: derived from the structure by
+        :func:`decision_of`.
     """
 
     c: np.ndarray
@@ -65,6 +131,7 @@ class StandardLP:
     b: np.ndarray
     offset: float = 0.0
     name: str = "lp"
+    decision: Optional[DecisionMap] = None
 
     def __post_init__(self) -> None:
         self.c = np.asarray(self.c, dtype=float).ravel()
@@ -108,7 +175,7 @@ class GeneralLP:
     """min c^T x + offset s.t. row_lo <= A x <= row_hi, col_lo <= x <= col_hi.
 
     Infinite bounds are +-inf (or magnitude >= 1e20). Shapes: A (m, n); row bounds (m,);
-    c and column bounds (n,).
+    c and column bounds (n,); ``col_names`` (n,) when the model named its columns (an MPS file).
     """
 
     c: np.ndarray
@@ -119,6 +186,7 @@ class GeneralLP:
     col_hi: np.ndarray
     offset: float = 0.0
     name: str = "lp"
+    col_names: Optional[tuple] = None
 
     def __post_init__(self) -> None:
         self.c = np.asarray(self.c, dtype=float).ravel()
@@ -143,13 +211,17 @@ class GeneralLP:
             raise InputError(self.name, "a lower bound exceeds its upper bound", "fix the crossed bounds (the model is trivially infeasible)")
         return self
 
-    def to_standard(self) -> "StandardForm":
+    def to_standard(self, decision=None) -> "StandardForm":
         """Convert to standard form with slacks and split free variables.
 
         Columns: x_j = lo_j + x'_j (lower bound finite), x_j = hi_j - x'_j (only upper finite) or
         x_j = x+_j - x-_j (free); a finite upper bound on a lower-bounded column becomes the row
         x'_j + s_j = hi_j - lo_j. Rows: equalities stay; lo <= a x adds a surplus, a x <= hi a
         slack; ranged rows become two rows; rows free on both sides are dropped.
+
+        ``decision``: indices of the general-form columns that are the user's decision (all of
+        them by default); the standard form's :class:`DecisionMap` gives those variables, so the
+        slacks, surpluses and the other columns are completion columns.
         """
         self.validate()
         m, n = self.A.shape
@@ -190,8 +262,57 @@ class GeneralLP:
         A_std = sp.hstack([A_rows, S]).tocsr()
         c_std = np.concatenate([c_var, np.zeros(with_slack.size)])
         recover = sp.hstack([M, sp.csr_array((n, with_slack.size))]).tocsr()
-        lp = StandardLP(c=c_std, A=A_std, b=b, offset=offset, name=self.name)
+        chosen = np.arange(n) if decision is None else np.asarray(decision, dtype=int)
+        names = None if self.col_names is None else tuple(self.col_names[j] for j in chosen)
+        lp = StandardLP(c=c_std, A=A_std, b=b, offset=offset, name=self.name,
+                        decision=DecisionMap(recover[chosen], shift[chosen], names))
         return StandardForm(lp=lp, recover=recover, shift=shift)
+
+    def structural_decision(self, prefix: Optional[str] = None) -> np.ndarray:
+        """Decision columns of a model that declares none: with ``prefix``, the columns whose name
+        starts with it; otherwise every column that occurs in two rows or more of the standard form:
+        in two rows of A, or in one and boxed (both bounds finite: its bound row is the second). A
+        column in a single row is determined by the others through that row.
+
+        >>> general = GeneralLP(c=[1.0, 0.0, 0.0], A=[[1.0, 1.0, 0.0], [1.0, 0.0, 1.0]], row_lo=[1.0, 0.0],
+        ...                     row_hi=[1.0, 5.0], col_lo=[0.0, 0.0, 0.0], col_hi=[np.inf, np.inf, 3.0])
+        >>> general.structural_decision().tolist()
+        [0, 2]
+        """
+        if prefix is not None:
+            names = self.col_names or ()
+            return np.asarray([j for j, name in enumerate(names) if str(name).startswith(prefix)], dtype=int)
+        rows_per_column = np.diff(sp.csc_array(self.A).indptr)
+        boxed = np.isfinite(self.col_lo) & np.isfinite(self.col_hi)
+        return np.flatnonzero(rows_per_column + boxed >= 2)
+
+
+def singleton_columns(A: Matrix) -> np.ndarray:
+    """Boolean mask (n,): the columns of A with exactly one nonzero entry.
+
+    >>> singleton_columns(np.array([[1.0, 2.0, 0.0], [0.0, 3.0, 0.0]])).tolist()
+    [True, False, False]
+    """
+    if sp.issparse(A):
+        counts = np.diff(sp.csc_array(A).indptr)
+        data = sp.csc_array(A).data
+        if data.size and np.any(data == 0):  # explicit zeros do not count
+            counts = np.diff(sp.csc_array(sp.csc_array(A) != 0).indptr)
+    else:
+        counts = np.count_nonzero(np.asarray(A), axis=0)
+    return counts == 1
+
+
+def decision_of(lp: StandardLP) -> DecisionMap:
+    """The LP's declared :class:`DecisionMap`, else the one its structure implies: every column that
+    occurs in two rows or more is a decision column, the singletons are its completion.
+
+    >>> decision_of(StandardLP(c=[1.0, 0.0], A=[[1.0, 1.0], [2.0, 0.0]], b=[1.0, 2.0])).columns.tolist()
+    [0]
+    """
+    if lp.decision is not None:
+        return lp.decision
+    return DecisionMap.select(lp.n_cols, np.flatnonzero(~singleton_columns(lp.A)))
 
 
 @dataclass
@@ -278,5 +399,6 @@ def read_mps(path: Union[str, Path]) -> GeneralLP:
         row_lo=np.asarray(lp.row_lower_), row_hi=np.asarray(lp.row_upper_),
         col_lo=np.asarray(lp.col_lower_), col_hi=np.asarray(lp.col_upper_),
         offset=sense * float(lp.offset_), name=path.name,
+        col_names=tuple(lp.col_names_) if len(lp.col_names_) == lp.num_col_ else None,
     )
     return general.validate()
