@@ -14,7 +14,14 @@ Conditions (:data:`CONDITIONS`): ``always``; ``orig optimal`` / ``proj optimal``
 (the original / projected / both solves ended ``optimal``); ``orig verdict`` / ``proj verdict`` /
 ``both verdicts`` (the solver certified feasibility or infeasibility, see
 :attr:`calib.solvers.result.SolveResult.feasible`); ``ratio defined`` (both optimal and the
-original optimum is nonzero).
+original optimum is nonzero); ``max-cut`` / ``max-cut retrieved`` (a max-cut SDP, whose problem
+carries its graph, with the original / both solves optimal: the record holds ``cut_original``).
+
+The user's decision: ``obj_error``, ``feas_error`` and ``sign_violation`` judge the whole point a
+retrieval returns; ``decision_error`` and ``cut_ratio`` judge the part a user acts on (the
+decision variables, the cut), and ``lp:completion`` returns the projected decision completed
+exactly (:mod:`calib.reduce.completion`), so its objective and feasibility errors are those of the
+decision itself.
 
 Scales (no constant 1: every error is relative to a size taken from the instance's own data, so
 multiplying the objective, or the constraints, by any positive factor leaves every error and
@@ -98,8 +105,29 @@ FIELDS: dict[str, Field] = {
                             "||X_-||_F / ||X||_F with X_- the negative part of X (sum of its negative "
                             "eigenvalues times their eigenprojectors), which reduces to the lp formula for a "
                             "diagonal X", "ratio", "lp sdp", "proj optimal"),
+    "decision_error": Field("distance of the user's decision at the retrieved point from the original optimum's, "
+                            "||d(x) - d(x*)|| / ||d(x*)||: lp the decision variables of the LP's DecisionMap "
+                            "(regression coefficients, servings, flows, the signal; calib.problems), qp the "
+                            "variables x (a portfolio's weights). An LP with several optima can have a large "
+                            "decision_error at an optimal point", "ratio", "lp qp", "both optimal"),
+    "completion_shortfall": Field("share of the original's rows A x = b that the completed point misses (by more than "
+                                  "1e-7 of the row's term size, calib.reduce.completion): rows whose decision part "
+                                  "no completion can satisfy", "ratio", "lp:completion", "proj optimal"),
+    "cut_original": Field("expected cut of random-hyperplane rounding (Goemans and Williamson 1995) of the "
+                          "original SDP optimum rescaled to unit diagonal, sum_ij w_ij arccos(X_ij) / pi "
+                          "(calib.reduce.rounding; max-cut SDPs: the problem carries its graph)", "edge weight",
+                          "sdp", "max-cut"),
+    "cut_ratio": Field("expected rounded cut of the retrieved matrix (made PSD, rescaled to unit diagonal) over "
+                       "cut_original: the cut a user gets from the reduction against the one from the original SDP",
+                       "ratio", "sdp", "max-cut retrieved"),
+    "cut_gain_kept": Field("(cut(X) - sum(W)/4) / (cut_original - sum(W)/4): the share of the original rounding's gain "
+                           "over a fair coin per node (which cuts half the edge weight, sum(W)/4 for symmetric W) that "
+                           "the retrieved matrix keeps; on dense random graphs a coin already reaches ~90% of "
+                           "cut_original, so cut_ratio alone flatters", "ratio", "sdp", "max-cut retrieved"),
     "retrieval_iterations": Field("iterations of the retrieval itself: alternating-projection rounds "
-                                  "(lp:alternating, sdp:alternating); simplex iterations summed over the "
+                                  "(lp:alternating, sdp:alternating); simplex iterations of the completion LP "
+                                  "when its columns occur in several rows (lp:completion, else missing); simplex "
+                                  "iterations summed over the "
                                   "restricted LPs (lp:restricted-repair); simplex iterations of the warm-started "
                                   "original solve (lp:warm-start)", "count", _ITERATIVE, "proj optimal"),
     "exact": Field("the retrieval returned the original's own optimum by solving the original (lp:warm-start "
@@ -155,6 +183,10 @@ CONDITIONS = {
     "both verdicts": lambda rec: rec.get("orig_feasible") is not None and rec.get("proj_feasible") is not None,
     "ratio defined": lambda rec: (rec.get("orig_status") == "optimal" and rec.get("proj_status") == "optimal"
                                   and rec.get("orig_objective") not in (None, 0.0)),
+    # a max-cut SDP carries its graph; the record shows it by its rounded original cut
+    "max-cut": lambda rec: rec.get("orig_status") == "optimal" and rec.get("cut_original") is not None,
+    "max-cut retrieved": lambda rec: (rec.get("proj_status") == "optimal" and rec.get("orig_status") == "optimal"
+                                      and rec.get("cut_original") is not None),
 }
 
 

@@ -40,7 +40,8 @@ from calib.theory import counting
 from calib.wording import counted
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
-RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "exact", "retrieval_iterations",
+RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "decision_error", "completion_shortfall",
+                    "cut_ratio", "cut_gain_kept", "exact", "retrieval_iterations",
                     "widening_rounds", "columns_share", "iterations_saved", "warm_seconds_saved", "t_retrieve", "t_factor", "t_total",
                     "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
 #: fields that describe the projection and its solve (shared by the retrievals of one replicate)

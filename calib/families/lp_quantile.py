@@ -44,7 +44,8 @@ def _check_data(X, y, tau):
 def quantile_regression_lp(X, y, tau: float, name: str = "quantile") -> StandardForm:
     """The standard-form LP of tau-quantile regression of y on the columns of X (no intercept added).
 
-    ``form.original_point(z)[:p]`` are the coefficients of a standard-form point z.
+    ``form.original_point(z)[:p]`` are the coefficients of a standard-form point z, and the LP's
+    decision is those p coefficients: the residual parts u, v are its completion (``u - v = y - X beta``).
     """
     X, y, tau = _check_data(X, y, tau)
     n, p = X.shape
@@ -56,7 +57,7 @@ def quantile_regression_lp(X, y, tau: float, name: str = "quantile") -> Standard
         col_lo=np.concatenate([np.full(p, -np.inf), np.zeros(2 * n)]), col_hi=np.full(p + 2 * n, np.inf),
         name=name,
     )
-    return general.to_standard()
+    return general.to_standard(decision=np.arange(p))
 
 
 def quantile_regression(X, y, tau: float, time_limit: float = 60.0) -> np.ndarray:

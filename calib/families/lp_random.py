@@ -8,6 +8,8 @@ projection bounded too (0 is dual feasible for TA).
 ``lp-farkas``: an infeasible LP with a Farkas certificate y0: A^T y0 >= margin > 0 and
 b^T y0 <= -margin, so no x >= 0 solves A x = b (Farkas' lemma). A row projection is a relaxation
 and may turn it feasible: the one-sided error calib counts.
+
+Both declare every column a decision column (an abstract LP has no slacks to complete).
 """
 
 from __future__ import annotations
@@ -18,7 +20,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.families.base import Family, fraction, positive_int, register, require
-from calib.problems import StandardLP
+from calib.problems import DecisionMap, StandardLP
 from calib.theory import lp_points
 
 
@@ -76,7 +78,7 @@ def _build_planted(params: dict, rng: np.random.Generator):
     else:
         y0 = rng.standard_normal(rows) / np.sqrt(rows)
         c = np.asarray(A.T @ y0).ravel() + rng.uniform(0.1, 1.0, size=cols)
-    lp = StandardLP(c=c, A=A, b=b, name=f"lp-planted-{rows}x{cols}")
+    lp = StandardLP(c=c, A=A, b=b, name=f"lp-planted-{rows}x{cols}", decision=DecisionMap.select(cols, np.arange(cols)))
     return lp, {"feasible": True, "planted_x": x0, "dual_certificate": y0}
 
 
@@ -91,7 +93,7 @@ def _build_farkas(params: dict, rng: np.random.Generator):
     b = rng.standard_normal(rows)
     b -= (b @ y0 + margin * np.linalg.norm(b)) * y0
     c = rng.uniform(0.1, 1.0, size=cols)
-    lp = StandardLP(c=c, A=A, b=b, name=f"lp-farkas-{rows}x{cols}")
+    lp = StandardLP(c=c, A=A, b=b, name=f"lp-farkas-{rows}x{cols}", decision=DecisionMap.select(cols, np.arange(cols)))
     return lp, {"feasible": False, "farkas_certificate": y0}
 
 

@@ -15,6 +15,10 @@ used: every instance index gives the same problem.
   size key, so the folder is one class whose files are its instances (of different sizes: a class
   claim is made for a policy rule such as k = f m, see :mod:`calib.analysis.classrule`).
 
+Decision columns: the columns that occur in two rows or more of the standard form (a column in a
+single row, a slack or surplus, is completed exactly from the others: :mod:`calib.reduce.completion`),
+or, with ``decision_prefix``, the columns whose MPS names start with that text.
+
 Both families are ``fixed``: every instance index of a file is the same problem, so the file, not
 the instance index, is the unit of a class claim.
 """
@@ -63,11 +67,33 @@ def _shape(path: Path) -> tuple:
     return _standard_shape(str(path), (status.st_mtime_ns, status.st_size))
 
 
-def _read_standard(path: Path, name: str):
-    lp = read_mps(path).to_standard().lp
+def _read_standard(path: Path, name: str, prefix=None):
+    """The file's standard form; its decision columns from the structure, or by ``prefix`` of their names."""
+    general = read_mps(path)
+    lp = general.to_standard(decision=general.structural_decision(prefix)).lp
     lp.name = name
     return lp
 
+
+@functools.lru_cache(maxsize=64)
+def _prefix_matches(path: str, stamp: tuple, prefix: str) -> int:
+    return int(read_mps(path).structural_decision(prefix).size)
+
+
+def _check_prefix(params: dict, path: Path) -> None:
+    """``decision_prefix``: None, or a text that starts the name of at least one column of the file."""
+    prefix = params["decision_prefix"]
+    if prefix is None:
+        return
+    require(isinstance(prefix, str) and prefix != "", "decision_prefix", "must be a nonempty text",
+            "give the start of your decision columns' names, or drop it to derive them from the structure")
+    status = path.stat()
+    require(_prefix_matches(str(path), (status.st_mtime_ns, status.st_size), prefix) > 0, "decision_prefix",
+            f"no column of {path.name} has a name starting with {prefix!r}", "check the column names in the COLUMNS section")
+
+
+_PREFIX_DOC = ("the decision columns are those whose MPS name starts with this text (the others are completed "
+               "exactly from them); default: every column in two rows or more of the standard form")
 
 # --- netlib ----------------------------------------------------------------------------------
 
@@ -81,13 +107,14 @@ def _build_netlib(params: dict, rng: np.random.Generator):
     info = {"feasible": feasible, "source": "netlib"}
     if feasible:
         info["optimal_value"] = netlib_optima()[name]
-    return _read_standard(path, f"netlib-{name}"), info
+    return _read_standard(path, f"netlib-{name}", params["decision_prefix"]), info
 
 
 def _check_netlib(params: dict) -> None:
     names = netlib_files()
     require(params["name"] in names, "name", f"no vendored Netlib problem {params['name']!r}",
             f"choose one of {', '.join(names)}")
+    _check_prefix(params, names[params["name"]][0])
 
 
 register(Family(
@@ -97,8 +124,9 @@ register(Family(
                 "5 infeasible ones), in standard form; size fixed by the problem. All standard-form "
                 "rows are projected.",
     size_keys=("name",),
-    defaults={"name": None},
-    param_doc={"name": "problem name, one of: " + ", ".join(netlib_files())},
+    defaults={"name": None, "decision_prefix": None},
+    param_doc={"name": "problem name, one of: " + ", ".join(netlib_files()),
+               "decision_prefix": _PREFIX_DOC},
     build=_build_netlib,
     projected_dim=lambda p: _shape(_netlib_path(p))[0],
     n_points=lambda p: lp_points(_shape(_netlib_path(p))[1]),
@@ -123,7 +151,7 @@ def _user_path(params: dict) -> Path:
 
 def _build_user(params: dict, rng: np.random.Generator):
     path = _user_path(params)
-    return _read_standard(path, path.name), {"source": str(path)}
+    return _read_standard(path, path.name, params["decision_prefix"]), {"source": str(path)}
 
 
 def _folder_sizes(params: dict) -> list:
@@ -142,6 +170,7 @@ def _check_user(params: dict) -> None:
     for key in ("dir", "name"):
         require(isinstance(params[key], str) and params[key] != "", key, "must be a nonempty text", f"set {key}")
     _shape(_user_path(params))  # reads the file once: a malformed file fails here, naming itself
+    _check_prefix(params, _user_path(params))
 
 
 register(Family(
@@ -151,9 +180,10 @@ register(Family(
                 "fixed by the file. DIR alone makes every MPS file of the folder an instance of one class. "
                 "All standard-form rows are projected.",
     size_keys=("name",),
-    defaults={"dir": None, "name": None},
+    defaults={"dir": None, "name": None, "decision_prefix": None},
     param_doc={"dir": "folder holding the MPS files (the class)",
-               "name": "file name in that folder (.mps / .mps.gz may be left out); omit it for every file"},
+               "name": "file name in that folder (.mps / .mps.gz may be left out); omit it for every file",
+               "decision_prefix": _PREFIX_DOC},
     build=_build_user,
     projected_dim=lambda p: _shape(_user_path(p))[0],
     n_points=lambda p: lp_points(_shape(_user_path(p))[1]),

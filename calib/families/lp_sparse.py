@@ -16,17 +16,19 @@ Standard forms (:func:`basis_pursuit_lp`):
   (2N columns); nonzeros of x0 have random signs.
 - ``signs = "nonnegative"``: x0 >= 0 and the LP is min 1^T x s.t. A x = b, x >= 0 (N columns).
 
-The k measurement rows are the rows projections act on; a row projection of a basis pursuit LP is a
+The LP's decision is the signal x itself (every column; nothing to complete). The k measurement
+rows are the rows projections act on; a row projection of a basis pursuit LP is a
 basis pursuit LP with fewer (combined) measurements. Nonzero magnitudes are uniform in [1, 2].
 """
 
 from __future__ import annotations
 
 import numpy as np
+import scipy.sparse as sp
 
 from calib.errors import InputError
 from calib.families.base import Family, one_of, positive_int, register, require
-from calib.problems import StandardLP
+from calib.problems import DecisionMap, StandardLP
 from calib.theory import lp_points
 
 SIGNS = ("signed", "nonnegative")
@@ -41,7 +43,9 @@ def basis_pursuit_lp(A, b, signs: str = "signed", name: str = "basis-pursuit") -
         raise InputError("signs", f"must be one of {', '.join(SIGNS)}, got {signs!r}", "pick 'signed' or 'nonnegative'")
     A = np.asarray(A, dtype=float)
     matrix = np.hstack([A, -A]) if signs == "signed" else A
-    return StandardLP(c=np.ones(matrix.shape[1]), A=matrix, b=b, name=name).validate()
+    length = A.shape[1]
+    signal = sp.hstack([sp.eye_array(length), -sp.eye_array(length)]) if signs == "signed" else sp.eye_array(length)
+    return StandardLP(c=np.ones(matrix.shape[1]), A=matrix, b=b, name=name, decision=DecisionMap(signal)).validate()
 
 
 def signal_from_solution(z: np.ndarray, signs: str = "signed") -> np.ndarray:

@@ -66,7 +66,9 @@ class Handler:
     ``reduced_problem(reduced)`` (the solvable problem inside it), ``objective_size(problem, x)``
     (the objective's size at x without cancellation, see :mod:`calib.metrics`) and
     ``point_metrics(problem, x, x_ref) -> dict`` (feas_error and, where the class has a cone,
-    sign_violation; ``x_ref`` is the reference point of the feasibility scale). ``solver`` is the
+    sign_violation; ``x_ref`` is the reference point of the feasibility scale), and optionally
+    ``decision_metrics(problem, x, x_orig) -> dict`` (how the user's decision at x compares with
+    the original optimum's: ``decision_error``, ``cut_ratio``). ``solver`` is the
     spec's solver table (``time_limit_s`` in seconds, optional ``highs``/``scs`` option tables,
     ``methods`` and ``projected``, see :mod:`calib.solvers.methods`).
     """
@@ -162,6 +164,11 @@ class Handler:
             return None
         return scale(original.objective, cls.objective_size(problem, original.x))
 
+    @staticmethod
+    def decision_metrics(problem, x: np.ndarray, x_orig: np.ndarray) -> dict:
+        """Metrics of the user's decision at x against the original optimum x_orig (none by default)."""
+        return {}
+
     @classmethod
     def _retrieve(cls, context: Context, name: str, obj_scale: Optional[float]) -> dict:
         start = time.perf_counter()
@@ -170,6 +177,8 @@ class Handler:
         values = {"t_retrieve": time.perf_counter() - start - got.untimed,
                   **cls.point_metrics(context.problem, got.x, reference), **got.extra}
         if context.original.ok:
+            if context.original.x is not None:
+                values.update(cls.decision_metrics(context.problem, got.x, context.original.x))
             value = context.problem.objective(got.x)
             if obj_scale is not None:
                 values["obj_error"] = relative(value - context.original.objective,
@@ -234,6 +243,15 @@ def linear_size(c: np.ndarray, x: np.ndarray, offset: float) -> float:
     6.0
     """
     return float(np.abs(c) @ np.abs(x)) + abs(float(offset))
+
+
+def relative_distance(point: np.ndarray, reference: np.ndarray) -> Optional[float]:
+    """||point - reference|| / ||reference|| (2-norms; see :func:`calib.metrics.relative` at a zero reference).
+
+    >>> relative_distance(np.array([3.0, 5.0]), np.array([3.0, 4.0])) == 1 / 5
+    True
+    """
+    return relative(np.linalg.norm(point - reference), np.linalg.norm(reference))
 
 
 def relative_residual(problem, x: np.ndarray, x_ref: np.ndarray) -> Optional[float]:

@@ -27,6 +27,13 @@ Retrieval maps the projected solution x' (with its basis B and duals y') back to
     cold simplex solve of the fair baseline. Its point is the original optimum (marked ``exact``);
     if the warm solve fails, x' itself.
 
+``completion``
+    Keep the decision columns of x' (the user's variables, :class:`calib.problems.DecisionMap`) and
+    solve for the completion columns exactly (:mod:`calib.reduce.completion`: a closed form per row
+    when each occurs in one row, else the restricted LP). The point a user would take from the
+    projected solve, judged in the original; a row it cannot satisfy keeps its residual
+    (``completion_shortfall``), never repaired by solving the original.
+
 ``exact`` retrievals return the original's own optimum: their errors are zero by construction, so
 the analysis judges them on time saved alone (:mod:`calib.analysis.success`).
 
@@ -47,10 +54,11 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse as sp
 
-from calib.problems import StandardLP
+from calib.problems import StandardLP, decision_of
 from calib.projectors.base import Projector
 from calib.reduce.affine import affine_set, alternate, least_squares
-from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size
+from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size, relative_distance
+from calib.reduce.completion import complete, unmet_share
 from calib.solvers.result import SolveResult
 
 
@@ -100,6 +108,16 @@ def _retrieve_alternating(context: Context) -> Retrieved:
     out = alternate(context.projected.x, affine, lambda x: np.maximum(x, 0.0), sign_violation,
                     max_seconds=context.time_limit)
     return Retrieved(out.x, {"retrieval_iterations": out.rounds, "t_factor": affine.seconds}, building)
+
+
+def _retrieve_completion(context: Context) -> Retrieved:
+    lp = context.problem
+    done = complete(lp, context.projected.x, decision_of(lp), time_limit=context.time_limit,
+                    options=_highs_options(context))
+    extra = {"completion_shortfall": unmet_share(lp, done.x)}
+    if done.method == "lp":
+        extra["retrieval_iterations"] = done.iterations
+    return Retrieved(done.x, extra)
 
 
 def widening_order(reduced: StandardLP, projected: SolveResult) -> np.ndarray:
@@ -180,6 +198,7 @@ def _retrieve_warm(context: Context) -> Retrieved:
 
 #: retrieval name -> function(Context) -> Retrieved (the point and its own metric fields)
 RETRIEVALS = {
+    "completion": _retrieve_completion,
     "basis-lstsq": _retrieve_lstsq,
     "alternating": _retrieve_alternating,
     "restricted-repair": _retrieve_restricted,
@@ -188,11 +207,11 @@ RETRIEVALS = {
 
 
 class LPHandler(RowProjectionHandler):
-    """Rows projected (a relaxation); retrievals of :data:`RETRIEVALS`, default ``basis-lstsq``."""
+    """Rows projected (a relaxation); retrievals of :data:`RETRIEVALS`, default ``completion``."""
 
     kind = "lp"
     retrievals = RETRIEVALS
-    default_retrieval = "basis-lstsq"
+    default_retrieval = "completion"
     cone_violation = staticmethod(sign_violation)
     basis_retrievals = frozenset({"basis-lstsq", "restricted-repair", "warm-start"})
 
@@ -212,3 +231,9 @@ class LPHandler(RowProjectionHandler):
     @staticmethod
     def objective_size(lp: StandardLP, x: np.ndarray) -> float:
         return linear_size(lp.c, x, lp.offset)
+
+    @staticmethod
+    def decision_metrics(lp: StandardLP, x: np.ndarray, x_orig: np.ndarray) -> dict:
+        """``decision_error``: ||d(x) - d(x*)|| / ||d(x*)|| of the user's variables d (the DecisionMap)."""
+        decision = decision_of(lp)
+        return {"decision_error": relative_distance(decision.of(x), decision.of(x_orig))}

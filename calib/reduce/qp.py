@@ -31,7 +31,7 @@ from calib.conic import QP
 from calib.metrics import relative, scale
 from calib.problems import Matrix
 from calib.projectors.base import Projector
-from calib.reduce.base import Context, Handler, Retrieved, linear_size
+from calib.reduce.base import Context, Handler, Retrieved, linear_size, relative_distance
 from calib.solvers.result import SolveResult
 
 
@@ -124,3 +124,8 @@ class QPHandler(Handler):
     @staticmethod
     def point_metrics(qp: QP, x: np.ndarray, x_ref: np.ndarray) -> dict:
         return {"feas_error": feas_error(qp, x, x_ref)}
+
+    @staticmethod
+    def decision_metrics(qp: QP, x: np.ndarray, x_orig: np.ndarray) -> dict:
+        """``decision_error``: ||x - x*|| / ||x*|| (a portfolio's weights against the optimal ones)."""
+        return {"decision_error": relative_distance(x, x_orig)}
