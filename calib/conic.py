@@ -182,6 +182,9 @@ class StandardSDP:
     offset : float
         Constant added to the objective.
     name : str
+    cut_graph : ndarray, shape (n, n), optional
+        For a max-cut relaxation, the graph's symmetric weights W: the decision a user takes from
+        X is the cut its rounding gives (:mod:`calib.reduce.rounding`).
     """
 
     C: np.ndarray
@@ -189,6 +192,7 @@ class StandardSDP:
     b: np.ndarray
     offset: float = 0.0
     name: str = "sdp"
+    cut_graph: Optional[np.ndarray] = None
 
     def __post_init__(self) -> None:
         self.C = np.atleast_2d(np.asarray(self.C.toarray() if sp.issparse(self.C) else self.C, dtype=float))

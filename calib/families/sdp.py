@@ -80,8 +80,9 @@ def _diagonal_rows(order: int) -> sp.csr_array:
 def _build_maxcut(params: dict, rng: np.random.Generator):
     nodes = params["nodes"]
     pairs = graphs.edges(params, rng)
-    sdp = StandardSDP(C=-graphs.laplacian(nodes, pairs) / 4.0, A=_diagonal_rows(nodes), b=np.ones(nodes),
-                      name=f"sdp-maxcut-{params['graph']}-{nodes}")
+    laplacian = graphs.laplacian(nodes, pairs)
+    sdp = StandardSDP(C=-laplacian / 4.0, A=_diagonal_rows(nodes), b=np.ones(nodes),
+                      name=f"sdp-maxcut-{params['graph']}-{nodes}", cut_graph=np.diag(np.diag(laplacian)) - laplacian)
     return sdp, {"feasible": True, "edges": pairs, "planted_X": np.eye(nodes)}
 
 

@@ -109,3 +109,18 @@ class SDPHandler(RowProjectionHandler):
     @staticmethod
     def objective_size(sdp: StandardSDP, x: np.ndarray) -> float:
         return linear_size(sdp.c_vec, x, sdp.offset)
+
+    @staticmethod
+    def decision_metrics(sdp: StandardSDP, x: np.ndarray, x_orig: np.ndarray) -> dict:
+        """Max-cut SDPs: the expected cut of hyperplane rounding of the original optimum and of x (each
+        rescaled to unit diagonal), ``cut_original``, ``cut_ratio`` and ``cut_gain_kept`` (the share of the
+        original rounding's gain over a coin flip per node, sum(W)/4, that x keeps; :mod:`calib.reduce.rounding`)."""
+        if sdp.cut_graph is None:
+            return {}
+        from calib.reduce.rounding import expected_cut  # lazy: only max-cut problems need it
+
+        original = expected_cut(sdp.cut_graph, smat(x_orig))
+        retrieved = expected_cut(sdp.cut_graph, smat(x))
+        coin = float(np.sum(sdp.cut_graph)) / 4.0  # a fair coin per node cuts each edge with probability 1/2
+        return {"cut_original": original, "cut_ratio": retrieved / original if original > 0 else None,
+                "cut_gain_kept": (retrieved - coin) / (original - coin) if original > coin else None}
