@@ -23,10 +23,10 @@ def test_family_probe_prints_replicates_and_summary_and_matches_a_campaign_trial
     assert main(argv) == 0
     text = capsys.readouterr().out
     assert "replicate 2:" in text and "summary (median / max over replicates):" in text
-    for name in ("basis-lstsq", "alternating", "restricted-repair", "warm-start"):
+    for name in ("completion", "basis-lstsq", "alternating", "restricted-repair", "warm-start"):
         assert f"  {name}: success " in text
     payload = json.loads(out.read_text())
-    assert payload["k"] == 18 and payload["kind"] == "lp" and len(payload["records"]) == 3 * 4
+    assert payload["k"] == 18 and payload["kind"] == "lp" and len(payload["records"]) == 3 * 5
     # The probe's streams are a campaign's with root_seed = --seed (instance 0): same numbers.
     params = get("lp-planted").resolve({"rows": 20, "cols": 40, "cost": "nonnegative"}, "test")
     ref = InstanceRef("lp-planted", params, 0, 7)

@@ -310,12 +310,13 @@ def test_a_change_that_alters_stored_trials_is_refused(tmp_path, capsys):
 def test_added_retrieval_runs_only_for_the_missing_rows(tmp_path):
     base = _spec(tmp_path, replicates=2, k="[3]", target="")
     first = run_campaign(load_spec(base), tmp_path / "out", inline=True)
-    grown_text = base.read_text().replace('k = [3]', 'k = [3]\nretrievals = ["basis-lstsq", "alternating"]')
+    # the spec names no retrieval: its trials ran the LP default, completion
+    grown_text = base.read_text().replace('k = [3]', 'k = [3]\nretrievals = ["completion", "alternating"]')
     base.write_text(grown_text)
     grown = run_campaign(load_spec(base), tmp_path / "out", inline=True)
     with sqlite3.connect(grown.store_path) as db:
         rows = db.execute("SELECT retrieval, COUNT(*) FROM trials GROUP BY retrieval").fetchall()
-    assert dict(rows) == {"basis-lstsq": first.ran, "alternating": first.ran} and grown.ran == first.ran
+    assert dict(rows) == {"completion": first.ran, "alternating": first.ran} and grown.ran == first.ran
 
 
 def test_search_target_predicate_is_the_table_predicate():
