@@ -252,3 +252,26 @@ def test_a_decision_prefix_that_names_no_column_is_refused_with_the_field():
     with pytest.raises(InputError) as error:
         get("netlib").resolve({"name": "afiro", "decision_prefix": "zz"}, "families[0].sizes[0]")
     assert error.value.where == "families[0].sizes[0].decision_prefix" and "zz" in error.value.problem
+
+
+def test_a_max_cut_record_judges_the_cut_and_a_square_orthogonal_sketch_keeps_it():
+    # With k = m and T orthogonal the projected SDP is the original (common practice), so the
+    # retrieved matrix rounds to the original's expected cut: cut_ratio 1 and the whole gain kept.
+    # Reference values: the expected cut of the original optimum is sum_ij w_ij arccos(X_ij) / pi
+    # (Goemans and Williamson 1995), computed here with numpy from the graph's edges.
+    from calib.conic import smat
+    from calib.reduce.sdp import SDPHandler
+    from reduce_helpers import OrthogonalProjector
+
+    built = instance("sdp-maxcut", {"nodes": 12})
+    sdp = built.problem
+    original = SDPHandler.solve_original(sdp, SOLVER)
+    T = OrthogonalProjector(sdp.n_rows, sdp.n_rows, np.random.default_rng(3))
+    record = SDPHandler.trial_records(sdp, original, T, ["affine-psd"], SOLVER)[0]
+    X = smat(original.x)
+    d = np.sqrt(np.clip(np.diag(X), 1e-300, None))
+    unit = np.clip(X / np.outer(d, d), -1, 1)
+    edges = built.info["edges"]
+    expected = float(np.sum(np.arccos(unit[edges[:, 0], edges[:, 1]])) / np.pi)
+    assert record["cut_original"] == pytest.approx(expected, rel=1e-6)
+    assert record["cut_ratio"] == pytest.approx(1.0, abs=1e-4) and record["cut_gain_kept"] == pytest.approx(1.0, abs=1e-3)
