@@ -49,7 +49,7 @@ from calib.analysis import policy as policy_answer
 # safe_k_rule and load_rows are also imported from here by lookup, export and older callers
 from calib.analysis.cells import CellStats, cell_stats, instances_needed
 from calib.analysis.saferule import ALL_PASS, Confidence, censored_law, censoring, class_namer, safe_k_rule  # noqa: F401  (re-exported)
-from calib.analysis.classrule import fraction_rule
+from calib.analysis.classrule import folder_rules, fraction_rule
 from calib.analysis.law import Law, fit_law
 from calib.features import NUMERIC, median_features
 from calib.analysis.logistic import LogisticFit
@@ -239,10 +239,11 @@ def _law_of(entries: list[dict], values: list, reasons: list[str], name: str) ->
     return law, law_json(law, sizes, n, values, name, censored)
 
 
-def class_law(entries: list[dict], rule: Optional[dict] = None) -> dict:
+def class_law(entries: list[dict], rule: Optional[dict] = None, rules: Optional[list] = None) -> dict:
     """The laws of one class (its entries across sizes, sorted by n) beside the published constants:
     for the safe k of both scopes and for k50, each fitted on its uncensored sizes only; with the
-    class's policy rule (:func:`policy_rule`) when given."""
+    class's policy rule (:func:`policy_rule`) when given, and the swept rule at both scopes
+    (:func:`calib.analysis.classrule.folder_rules`, key ``rules``) when the k grid is a rule's."""
     entries = sorted(entries, key=lambda entry: (entry["n_points"], entry["size"]))
     first = entries[0]
     safe_law, safe_json = _law_of(entries, [e["safe_k"] for e in entries], [e["safe_k_reason"] for e in entries], "safe_k")
@@ -250,14 +251,15 @@ def class_law(entries: list[dict], rule: Optional[dict] = None) -> dict:
     k50 = [entry["transition"]["k50"] for entry in entries]
     _, k50_json = _law_of(entries, k50, [entry["transition"]["reason"] for entry in entries], "k50")
     eps, source = first["theory"]["eps"], first["theory"]["eps_source"]
-    rules = {}
+    swept, rules = rules, {}
     if eps is not None:
         rules = {name: {"C": num(constant), "ratio": num(bounds.ratio(constant, safe_law.C))}
                  for name, constant in bounds.rule_constants(eps, first["theory"]["failure"]).items()}
-    return {key: first[key] for key in ("family", "class_params", "projector", "retrieval", "kind")} | {
+    law = {key: first[key] for key in ("family", "class_params", "projector", "retrieval", "kind")} | {
         "safe_k_law": safe_json, "class_safe_k_law": class_json, "k50_law": k50_json,
         "theory": {"eps": eps, "eps_source": source, "rules": rules}, "policy_rule": rule,
     }
+    return law | ({"rules": swept} if swept else {})
 
 
 def policy_rule(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) -> dict:
@@ -266,6 +268,21 @@ def policy_rule(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) 
     The unit is the size for families whose sizes are files (every instance index the same
     problem), else the instance.
     """
+    rows, unit, names, word = _rule_units(rows, solver_errors)
+    return fraction_rule(rows["k_label"].fillna(""), unit.to_numpy(), rows["success"].to_numpy(), names,
+                         confidence.target, confidence.level, word)
+
+
+def swept_rules(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) -> list:
+    """The rule of the swept grid (k = f m, k = C ln n) at both scopes for one class, [] for another grid."""
+    rows, unit, names, word = _rule_units(rows, solver_errors)
+    return folder_rules(rows["k_label"].fillna(""), unit.to_numpy(), rows["success"].to_numpy(), names,
+                        confidence.target, confidence.level, word)
+
+
+def _rule_units(rows: pd.DataFrame, solver_errors: str):
+    """(rows kept, unit per row, unit id -> name, unit word) of a class rule: the size for families whose
+    sizes are files (every instance index the same problem), else the instance."""
     from calib.families import REGISTRY
 
     if solver_errors == "exclude":
@@ -278,8 +295,7 @@ def policy_rule(rows: pd.DataFrame, confidence: Confidence, solver_errors: str) 
         names = {iid: f"{size} instance {iid[:12]}" for iid, size in zip(rows["instance_id"], rows["size"])}
         word = "instance"
     names = names or {size: size.split("=", 1)[-1] for size in rows["size"]}
-    return fraction_rule(rows["k_label"].fillna(""), unit.to_numpy(), rows["success"].to_numpy(), names,
-                         confidence.target, confidence.level, word)
+    return rows, unit, names, word
 
 
 def class_labels(analysis: dict):
@@ -344,12 +360,13 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
     classes: dict[tuple, list] = {}
     for entry in entries:
         classes.setdefault(_class_key(entry), []).append(entry)
-    rules = {}
+    rules, swept = {}, {}
     if entries:
         for key, class_rows in rows.groupby(CLASS_KEYS, sort=True):
-            rules[(key[0], json.dumps(json.loads(key[1]), sort_keys=True), key[2], key[3])] = \
-                policy_rule(class_rows, confidence, solver_errors)
-    laws = [class_law(members, rules.get(key)) for key, members in sorted(classes.items())]
+            named = (key[0], json.dumps(json.loads(key[1]), sort_keys=True), key[2], key[3])
+            rules[named] = policy_rule(class_rows, confidence, solver_errors)
+            swept[named] = swept_rules(class_rows, confidence, solver_errors)
+    laws = [class_law(members, rules.get(key), swept.get(key)) for key, members in sorted(classes.items())]
     return {"tau": primary_tau(predicate), "predicate": predicate.as_dict(), "excluded": excluded,
             "entries": entries, "laws": laws}
 

@@ -166,11 +166,26 @@ def _law_text(law: dict) -> str:
     lines = [_fit_text("class safe k", law["class_safe_k_law"]),
              _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])]
     rule = law.get("policy_rule")
-    if rule and rule["grid"]:
+    if rule and rule["grid"] and not law.get("rules"):  # else said at both scopes below
         lines.append(f"  policy rule {rule['rule']}: {rule['statement']}")
         if rule["failing"]:
             lines.append(f"    {rule['unit']}s below the target at f = {rule['failing_at']:g}: {', '.join(rule['failing'])}")
+    for swept in law.get("rules", []):
+        lines += swept_rule_lines(swept)
     return "\n".join(lines)
+
+
+def swept_rule_lines(swept: dict) -> list[str]:
+    """The rule of the swept grid at both scopes: these units, then the class."""
+    mine, klass = swept["instances"], swept["class"]
+    lines = [f"  rule {swept['rule']}, these {mine['units']} {swept['unit']}s: {mine['statement']}",
+             f"    {mine['trials_per_unit']} trials per {swept['unit']} at each value; "
+             f"{mine['trials_per_unit_needed']} needed when all succeed (set replicates)"]
+    if mine["value"] is None and mine["failing"]:
+        lines.append(f"    {swept['unit']}s below the target at {swept['coefficient']} = {mine['failing_at']:g}: "
+                     f"{', '.join(mine['failing'])}")
+    lines.append(f"  rule {swept['rule']}, the class: {klass['statement'] or klass['reason']}")
+    return lines
 
 
 def scope_lines(entry: dict) -> list[str]:

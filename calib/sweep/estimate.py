@@ -183,42 +183,78 @@ ADVICE_TARGET, ADVICE_CONFIDENCE = 0.9, 0.95
 
 
 def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
-    """Per size: what the design can certify under each scope, and the smallest change that would."""
+    """Per size: what the design can certify under each scope, and the smallest change that would.
+
+    A size of a fixed family is one problem (a file): its trials at a k are its instances x
+    replicates draws of the projection, so the advice speaks of replicates, and the class is the
+    folder, with the files as its units (:func:`file_advice`)."""
     from calib.analysis.scope import advice_text, design_advice
 
     lines = [f"design (target {ADVICE_TARGET:.0%} success at {ADVICE_CONFIDENCE:.0%} confidence, the defaults of "
              f"`calib tables`):"]
     for plan in plans:
+        if get_family(plan.family).fixed:
+            lines.append(f"  {plan.label}: {_file_text(plan.instances, spec.replicates, 1)}")
+            continue
         advice = design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)
         lines.append(f"  {plan.label}: {advice_text(advice, ADVICE_TARGET, ADVICE_CONFIDENCE)}")
-    for label, files in _file_classes(plans).items():
-        advice = design_advice(files, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)
-        verdict = ("can certify a rule k = f m" if advice["class_sure"] else
-                   f"cannot certify a rule k = f m for the class; use {advice['needed']} files (add {advice['instances_to_add']})")
-        lines.append(f"  {label}: {counted(files, 'file')}, the units of the class: {verdict} (each file may decide alone)")
+    for label, (files, instances) in _file_classes(plans).items():
+        lines.append(f"  {label}: {file_advice(files, instances, spec.replicates)}")
     return lines
 
 
-def _file_classes(plans: list[SizePlan]) -> dict[str, int]:
-    """Classes whose sizes are files (a folder alone): class label -> number of files."""
+def _file_text(instances: int, replicates: int, files: int) -> str:
+    """Whether instances x replicates trials per k of each of ``files`` files can certify the target on
+    every file (a file is one problem: more trials are more replicates)."""
+    import math
+
+    from calib.analysis.classrule import trials_per_unit_needed
+
+    needed = trials_per_unit_needed(files, ADVICE_TARGET, ADVICE_CONFIDENCE)
+    draws = instances * replicates
+    whom = "this file" if files == 1 else f"each of these {files} files (Bonferroni)"
+    if draws >= needed:
+        return f"{whom}: can certify {ADVICE_TARGET:.0%} at {ADVICE_CONFIDENCE:.0%} ({draws} trials per k)"
+    return (f"{whom}: cannot certify {ADVICE_TARGET:.0%} at {ADVICE_CONFIDENCE:.0%} ({draws} trials per k, {needed} needed): "
+            f"use replicates = {math.ceil(needed / instances)}")
+
+
+def file_advice(files: int, instances: int, replicates: int) -> str:
+    """The two scopes of a folder's rule k = f m (or k = C ln n): these files, in replicates; the class, in files.
+
+    >>> file_advice(3, 1, 3)
+    '3 files: the rule for these files: each of these 3 files (Bonferroni): cannot certify 90% at 95% (3 trials per k, 39 needed): use replicates = 39; the rule for the class (files as the unit): use 29 files (add 26)'
+    """
+    from calib.analysis.scope import instances_needed
+
+    needed = instances_needed(ADVICE_TARGET, ADVICE_CONFIDENCE)
+    klass = ("can certify it" if files >= needed else f"use {needed} files (add {needed - files})")
+    return (f"{counted(files, 'file')}: the rule for these files: {_file_text(instances, replicates, files)}; "
+            f"the rule for the class (files as the unit): {klass}")
+
+
+def _file_classes(plans: list[SizePlan]) -> dict[str, tuple[int, int]]:
+    """Classes whose sizes are files (a folder alone): class label -> (files, fewest instances of a file)."""
     from calib.families import get
 
-    classes: dict[str, int] = {}
+    classes: dict[str, tuple[int, int]] = {}
     for plan in plans:
         family = get(plan.family)
         if family.fixed and family.expand is not None:
             rest = {key: value for key, value in plan.params.items() if key not in family.size_keys}
             label = f"{plan.family} " + ",".join(f"{key}={value}" for key, value in sorted(rest.items()))
-            classes[label] = classes.get(label, 0) + 1
+            files, instances = classes.get(label, (0, plan.instances))
+            classes[label] = (files + 1, min(instances, plan.instances))
     return classes
 
 
 def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
-    """One line when some size cannot surely certify the target for the class, else None."""
+    """One line when some size cannot surely certify the target for the class, else None (sizes that
+    are files are left out: their class is the folder, see :func:`advice_lines`)."""
     from calib.analysis.scope import design_advice
 
-    short = [plan for plan in plans
-             if not design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)["class_sure"]]
+    short = [plan for plan in plans if not get_family(plan.family).fixed
+             and not design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)["class_sure"]]
     if not short:
         return None
     needed = design_advice(1, 1, ADVICE_TARGET, ADVICE_CONFIDENCE)["needed"]

@@ -17,6 +17,7 @@ In short::
     [sweep]
     projectors = ["gaussian"]  # names, or tables {name = "...", option = value}
     k = [8, 16, 32]            # or {fractions = [0.1, 0.2]} of the projected dimension,
+                               # or {log_multiples = [4, 8]}: k = ceil(C ln n) per size,
                                # or {eps = [0.5, 0.3], rule = "dasgupta-gupta"},
                                # or {search = {low = 8, high = 64}} (also low_fraction/high_fraction)
     retrievals = ["basis-lstsq"]
@@ -79,10 +80,10 @@ class ProjectorChoice:
 
 @dataclass(frozen=True)
 class KGrid:
-    """How k is chosen: absolute values, fractions of the projected dimension, eps with a rule, or a
-    search range ``values = (low, high)`` in k ("search") or in fractions of m ("search-fractions")."""
+    """How k is chosen: absolute values, fractions of the projected dimension, multiples C of ln n
+    (k = ceil(C ln n), n the family's JL point count), eps with a rule, or a search range ``values = (low, high)`` in k ("search") or in fractions of m ("search-fractions")."""
 
-    mode: str  # "absolute" | "fractions" | "eps" | "search" | "search-fractions"
+    mode: str  # "absolute" | "fractions" | "log-multiples" | "eps" | "search" | "search-fractions"
     values: tuple
     rule: Optional[str] = None
     step: int = 1  # a search's lattice of k: low, low + step, ... (the resolution of its answer)
@@ -351,6 +352,10 @@ def _parse_k(value, errors: _Collector) -> KGrid:
         if set(value) == {"fractions"}:
             fr = _number_list(value["fractions"], "sweep.k.fractions", errors, lambda v: 0 < v <= 1, "fractions lie in (0, 1]")
             return KGrid("fractions", tuple(sorted(fr)))
+        if set(value) == {"log_multiples"}:
+            cs = _number_list(value["log_multiples"], "sweep.k.log_multiples", errors, lambda v: v > 0,
+                              "multiples C of ln n are numbers > 0 (k = ceil(C ln n))")
+            return KGrid("log-multiples", tuple(sorted(cs)))
         if "eps" in value and set(value) <= {"eps", "rule"}:
             rule = value.get("rule", "dasgupta-gupta")
             if not isinstance(rule, str) or rule not in RULES:
@@ -360,6 +365,7 @@ def _parse_k(value, errors: _Collector) -> KGrid:
         if set(value) == {"search"}:
             return _parse_search(value["search"], errors)
     errors.add("sweep.k", f"cannot read {value!r}", "use k = [8, 16], k = {fractions = [0.1, 0.2]}, "
+               "k = {log_multiples = [4, 8]}, "
                "k = {eps = [0.3], rule = \"dasgupta-gupta\"} or k = {search = {low = 8, high = 64}}")
     return KGrid("absolute", ())
 
@@ -611,8 +617,9 @@ def k_values(k_grid: KGrid, family, params: dict) -> tuple[list[int], list[str]]
     """The k values of the grid for one size, each with its provenance label.
 
     Values above the projected dimension m are dropped (no reduction); fractions round up and are
-    at least 1; eps values go through the named rule with the family's point count. A search gives
-    the ends of its range (see :func:`search_range`).
+    at least 1; a multiple C of ln n gives k = ceil(C ln n) with n the family's point count (at least
+    1); eps values go through the named rule with the family's point count. A search gives the ends
+    of its range (see :func:`search_range`).
     """
     from calib.theory import k_from_eps
 
@@ -629,6 +636,8 @@ def k_values(k_grid: KGrid, family, params: dict) -> tuple[list[int], list[str]]
             k, label = int(value), ""
         elif k_grid.mode == "fractions":
             k, label = max(1, math.ceil(value * m - 1e-9)), f"fraction={value}"
+        elif k_grid.mode == "log-multiples":
+            k, label = log_multiple_k(value, family.n_points(params)), f"log_multiple={value}"
         else:
             k, label = k_from_eps(k_grid.rule, family.n_points(params), value), f"eps={value} ({k_grid.rule})"
         if k <= m and k not in pairs:
@@ -649,9 +658,20 @@ def skipped_ks(k_grid: KGrid, family, params: dict) -> list[int]:
     m = family.projected_dim(params)
     if k_grid.mode == "absolute":
         ks = [int(value) for value in k_grid.values]
+    elif k_grid.mode == "log-multiples":
+        ks = [log_multiple_k(value, family.n_points(params)) for value in k_grid.values]
     else:
         ks = [k_from_eps(k_grid.rule, family.n_points(params), value) for value in k_grid.values]
     return sorted({k for k in ks if k > m})
+
+
+def log_multiple_k(multiple: float, n_points: int) -> int:
+    """k = ceil(C ln n) for the multiple C of ln n and the point count n, at least 1.
+
+    >>> log_multiple_k(4, 1000), log_multiple_k(0.1, 2)
+    (28, 1)
+    """
+    return max(1, math.ceil(multiple * math.log(n_points) - 1e-9))
 
 
 def search_range(k_grid: KGrid, m: int) -> Optional[tuple[int, int]]:
