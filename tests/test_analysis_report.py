@@ -55,6 +55,7 @@ def test_report_is_self_contained_and_carries_tables_spec_and_notice(report):
     assert NOTICE.replace("`", "") in html.replace("`", "") and "calib probe" in html
     assert html.count("<h2>Detailed table: ") == 2  # one section per tolerance of the ladder
     assert "Scaling law across sizes" in html and "Speed-up at the safe k" in html
+    assert "<h2>A k predicted from features</h2>" in html  # the predictor's errors on this table's cells
     assert "&quot;root_seed&quot;: 7" in html  # the sweep spec
 
 

@@ -17,6 +17,7 @@ from typing import Optional
 import pandas as pd
 
 from calib.analysis.plots import Plot, all_plots
+from calib.analysis.predict import report_section
 from calib.analysis.timing import nothing_saved, speedup_at_safe_k
 
 _STYLE = """
@@ -277,6 +278,7 @@ def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
               "<h3>Policy k per cell</h3>", policy_table(first),
               "<h3>Speed-up at the safe k</h3>", _frame_table(speedup_at_safe_k(timings)),
               "<details><summary>Every k</summary>", _frame_table(timings), "</details>"]
+    parts.append(report_section([table]))
     for analysis in table["analyses"]:
         parts += [f"<h2>Detailed table: {escape(predicate_text(analysis['predicate']))}</h2>",
                   entries_table(analysis), "<h3>Scaling law across sizes</h3>", laws_table(analysis),
