@@ -20,6 +20,11 @@ measured size, else the law k = a + C ln n over the uncensored sizes, never abov
 dimension m. Safe-k tables are empirical evidence on the instances measured, not proofs: check a
 policy on your own instances with ``calib probe``.
 
+A rule file (``calib tables STORE --rule FILE``, :mod:`calib.analysis.rulefile`) answers a new
+model of a class in one call, :func:`rule_k`: k = max(ceil(f m), ceil(a + C ln n)) with the scope
+and confidence the rule holds at, withheld when the model's structure lies outside the ranges the
+rule was measured on (:mod:`calib.analysis.fitcheck`).
+
 Cost: reading a table is a JSON parse and one schema validation (milliseconds for the atlas);
 nothing heavy (no solver, no pandas) is imported.
 """
@@ -112,3 +117,62 @@ def safe_k(family: str, size: dict, projector: str, retrieval: Optional[str] = N
     n, m, label = size_of(family, size, texts)
     query = Query(family, n, projector, retrieval, texts, tau, m, scope, label)
     return answer(load_table(family, table), query, delta=delta, confidence=confidence)
+
+
+def rule_k(rules: Union[str, Path], projector: str, mps: Union[str, Path, None] = None, features: Optional[dict] = None,
+           n: Optional[int] = None, m: Optional[int] = None, family: Optional[str] = None, retrieval: Optional[str] = None,
+           tau: Optional[float] = None, params: Optional[dict] = None, force: bool = False) -> dict:
+    """The k for a new model from a rule file (``calib tables --rule FILE``), in one call.
+
+    The model is an MPS file (``mps``: its standard form's features, n = its columns + 1, m = its
+    rows), or its ``features`` (a record of :mod:`calib.features`) with ``n`` and ``m``. The class
+    is the file's only one with ``projector`` (narrowed by ``family``, class ``params`` such as
+    ``{"rank": 10}``, ``retrieval`` and ``tau`` when several match). Its structure is checked against the feature ranges the rule holds for
+    (:mod:`calib.analysis.fitcheck`): outside them the k is withheld (None) unless ``force``.
+
+    Returns a dict: ``k`` (None when withheld, when the class has no rule, or when the rule's k
+    exceeds m), ``k_fraction_rule`` and ``k_log_rule`` (each rule's k), ``scope``, ``confidence``,
+    ``target``, ``statement``, ``fit`` (the fit check), ``extrapolated`` (n outside the measured
+    range), ``withheld`` and ``reason``.
+    """
+    import json
+
+    from calib.analysis.fitcheck import compare
+    from calib.analysis.rulefile import read_rules, rule_k as k_of
+
+    document = read_rules(rules)
+    if mps is not None:
+        from calib.features import instance_features
+        from calib.problems import read_mps
+        from calib.theory import lp_points
+
+        lp = read_mps(mps).to_standard().lp
+        features, n, m = instance_features("lp", lp), lp_points(lp.n_cols), int(lp.n_rows)
+    if features is None or n is None or m is None:
+        raise InputError("rule_k", "no model given", "give mps=FILE, or features with n and m")
+    found = [item for item in document["classes"] if item["projector"] == projector
+             and (family is None or item["family"] == family) and (retrieval is None or item["retrieval"] == retrieval)
+             and (tau is None or item["tau"] == tau)
+             and all(item["class_params"].get(key) == value for key, value in (params or {}).items())]
+    if len(found) != 1:
+        shown = found or document["classes"]
+        offered = sorted({f"{item['family']} {json.dumps(item['class_params'], sort_keys=True)} / {item['projector']} / "
+                          f"{item['retrieval']} / tau {item['tau']}" for item in shown})
+        raise InputError(str(rules), f"{len(found)} classes match projector {projector!r}" +
+                         (f" and family {family!r}" if family else ""),
+                         "narrow with family, params, retrieval, tau; " + ("matching: " if found else "the file has: ")
+                         + "; ".join(offered[:12]) + (f"; ... ({len(offered)} in all)" if len(offered) > 12 else ""))
+    rule = found[0]
+    fit = compare(features, rule["feature_ranges"])
+    answer = k_of(rule, n, m) if rule["scope"] is not None else {"k": None, "k_fraction_rule": None, "k_log_rule": None,
+                                                                    "no_reduction": False, "extrapolated": False}
+    withheld = fit["verdict"] == "outside" and not force and answer["k"] is not None
+    reason = (rule["reason"] if rule["scope"] is None else
+              f"withheld: the model lies outside the structure this rule was measured on ({fit['reason']}); measure it: "
+              f"`calib probe FILE --find-k` (force=True shows the rule's k)" if withheld else
+              "no reduction: the rule's k reaches m" if answer["no_reduction"] else "")
+    return {"family": rule["family"], "class_params": rule["class_params"], "projector": projector,
+            "retrieval": rule["retrieval"], "tau": rule["tau"], "n": n, "m": m, "scope": rule["scope"],
+            "confidence": document["target"]["confidence"], "target": document["target"]["success_rate"],
+            "statement": rule["statement"], "fit": fit, **answer, "k": None if withheld else answer["k"],
+            "withheld": withheld, "reason": reason}

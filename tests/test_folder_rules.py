@@ -15,7 +15,11 @@ import numpy as np
 import pytest
 from scipy import stats
 
+import jsonschema
+
+from calib import atlas
 from calib.analysis.classrule import trials_per_unit_needed, units_rule
+from calib.analysis.tablefile import schema
 from calib.cli import main
 from calib.families import get
 from calib.families.lp_real import NETLIB_DIR
@@ -115,8 +119,9 @@ def test_a_folder_of_netlib_sc_models_at_three_sizes_gets_an_instances_scope_rul
     spec = _spec(tmp_path, folder, "{fractions = [0.5, 1.0]}", replicates=16)
     assert main(["run", str(spec), "--out", str(tmp_path / "out"), "--in-process", "--quiet"]) == 0
     table = tmp_path / "t.json"
+    rules = tmp_path / "rules.json"
     assert main(["tables", str(tmp_path / "out" / "sc-models.sqlite"), "--json", str(table), "--preset", "bound",
-                 "--delta", "0.2", "--confidence", "0.9"]) == 0
+                 "--delta", "0.2", "--confidence", "0.9", "--rule", str(rules)]) == 0
     out = capsys.readouterr().out
     (law,) = json.loads(table.read_text())["analyses"][0]["laws"]
     (rule,) = law["rules"]
@@ -132,3 +137,11 @@ def test_a_folder_of_netlib_sc_models_at_three_sizes_gets_an_instances_scope_rul
     # the class: 3 files are below the 11 that certify 0.8 at 90% when each decides alone (0.1^(1/11) = 0.811)
     assert klass["value"] is None and klass["units_needed"] == 11 and "11 are needed" in klass["reason"]
     assert "rule k = f m, these 3 files: k = 1 m meets the target 80% at 90% confidence on each of these 3 files" in out
+
+    # the rule file answers a new model of the same family (sc50b, not in the folder) in one call
+    answer = atlas.rule_k(rules, "gaussian", mps=NETLIB_DIR / "feasible" / "sc50b.mps")
+    jsonschema.validate(json.loads(rules.read_text()), schema("k-rule.v1.json"))  # the reference validator
+    assert answer["scope"] == "instances" and answer["k"] == answer["m"] == 50 and answer["no_reduction"]
+    # sc50b lies inside the measured structure but for a stable rank 0.03% below the smallest measured: "near", shown
+    assert answer["fit"]["near"] == ["stable_rank"] and answer["fit"]["features"]["stable_rank"]["distance"] < 0.01
+    assert not answer["withheld"] and answer["confidence"] == 0.9 and answer["target"] == 0.8

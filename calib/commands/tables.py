@@ -94,6 +94,10 @@ def register(subparsers) -> None:
     parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v3.json)")
     parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
     parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
+    parser.add_argument("--rule", type=Path, metavar="FILE",
+                        help="write the certified rule per class (k = f m, k = a + C ln n, scope, confidence, the size and "
+                             "feature ranges it holds for) as JSON for pipelines (schema: calib/schemas/k-rule.v1.json); "
+                             "`calib.atlas.rule_k(FILE, ...)` answers a new model from it")
     add_analysis_options(parser)
     parser.set_defaults(func=run)
 
@@ -103,17 +107,22 @@ def run(args: argparse.Namespace) -> int:
     from calib.analysis.timing import timing_frame, write_timings
     from calib.outputs import check_target
 
-    for path, option in ((args.json, "--json"), (args.csv, "--csv"), (args.timings, "--timings")):
+    rule = getattr(args, "rule", None)
+    for path, option in ((args.json, "--json"), (args.csv, "--csv"), (args.timings, "--timings"), (rule, "--rule")):
         check_target(path, option)
     table, rows, spec = analyse(args)
     write_table(table, args.json, args.csv)
     if args.timings is not None:
         write_timings(timing_frame(rows, table["analyses"][0]), args.timings)
+    if rule is not None:
+        from calib.analysis.rulefile import write_rules
+
+        write_rules(table, rule)
     print(render_summary(table))
     searched = search_summary(args.store, spec)
     if searched:
         print(searched)
-    for path in (args.json, args.csv, args.timings):
+    for path in (args.json, args.csv, args.timings, rule):
         if path is not None:
             print(f"wrote {path}")
     return 0
