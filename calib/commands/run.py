@@ -48,13 +48,16 @@ def run(args: argparse.Namespace) -> int:
     if args.dry_run:
         print(dry_run(spec, args))
         return 0
-    from calib.sweep.estimate import check_memory, design_warning, size_plans, skipped_lines
+    from calib.sweep.estimate import check_memory, design_warning, search_warning, size_plans, skipped_lines
     from calib.sweep.runner import run_campaign
     from calib.wording import counted
 
     plans = size_plans(spec)
     if not args.scheduler:  # a cluster's workers have memory of their own
         check_memory(plans)
+    short_cap = search_warning(spec, plans)
+    if short_cap:
+        print(short_cap, file=sys.stderr)
 
     previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
     bar = None if args.quiet else _ProgressBar(spec.name)
