@@ -14,7 +14,8 @@ def register(subparsers) -> None:
         description="Analyse the store as `calib tables` does and write one HTML page (figures embedded) with the "
                     "safe-k tables, the laws beside the published bounds, success-against-k, safe-k-against-n and "
                     "error-against-speed-up figures, the policy answer per cell and the times against the fair "
-                    "baseline, and the sweep spec.")
+                    "baseline, and the sweep spec. `calib tables STORE --json ... --html FILE` writes the report and "
+                    "the table from one analysis.")
     parser.add_argument("store", help="campaign store (.sqlite) written by `calib run`")
     parser.add_argument("--html", type=Path, required=True, metavar="FILE", help="the HTML file to write")
     add_analysis_options(parser)
@@ -28,7 +29,7 @@ def run(args: argparse.Namespace) -> int:
     from calib.outputs import check_target, write_file
 
     check_target(args.html, "--html")
-    table, rows, spec = analyse(args, policy=True)
+    table, rows, spec, _ = analyse(args, policy=True)
     timings = timing_frame(rows, table["analyses"][0])
     html = build_report(table, timings, spec)
     write_file(args.html, html, "--html")
