@@ -63,7 +63,7 @@ def _timing_index(timings: Optional[pd.DataFrame]) -> dict:
 def _verdict(entry: dict, k: Optional[int], speedup: Optional[float]) -> str:
     if k is None:
         klass = entry["class"]
-        if entry["safe_k"] is not None and klass["instances_needed"] > entry["instances"]:
+        if "already for the instances measured" not in klass["reason"] and klass["instances_needed"] > entry["instances"]:
             return f"no class answer ({entry['instances']} of {klass['instances_needed']} instances)"
         return NO_K
     if k >= entry["projected_dim"]:

@@ -518,12 +518,9 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
 
 
 def fold(lines: list[str]) -> str:
-    """The lines joined, each longer than the text width wrapped under its own indent."""
-    out = []
-    for line in lines:
-        indent = line[:len(line) - len(line.lstrip())]
-        out += _wrap(line.strip(), indent) if line.strip() else [line]
-    return "\n".join(out)
+    from calib.commands.tables import fold
+
+    return fold(lines)
 
 
 def _wrap(text: str, indent: str) -> list[str]:

@@ -103,7 +103,9 @@ def search_report(spec, cells) -> str:
         lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
         lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
     lines.append(NOTICE)
-    return "\n".join(lines)
+    from calib.commands.tables import fold
+
+    return fold(lines)
 
 
 def target_text(predicate) -> str:

@@ -191,8 +191,9 @@ def search_summary(spec, cells) -> str:
     verdicts (replayed from the stored trials under the spec's [target]) follow."""
     from calib.commands.run import search_report
 
-    return ("\nthe k values above are those a k search tested (counts per tested k); the table states the search's own "
-            "claims under its [target]; the search itself, replayed from the stored trials:\n" + search_report(spec, cells))
+    return "\n" + fold(["the k values above are those a k search tested (counts per tested k); the table states the "
+                        "search's own claims under its [target]; the search itself, replayed from the stored trials:"]
+                       + search_report(spec, cells).splitlines())
 
 
 #: the widest line of the text views (longer texts wrap, indented under their first line)
@@ -212,6 +213,15 @@ def wrapped(text: str, indent: str = "   ", hanging: str = "    ") -> list[str]:
                          break_long_words=False, break_on_hyphens=False) or [indent]
 
 
+def fold(lines: list[str]) -> str:
+    """The lines joined, each longer than :data:`WIDTH` wrapped under its own indent (plus six spaces)."""
+    out = []
+    for line in lines:
+        indent = line[:len(line) - len(line.lstrip())]
+        out += wrapped(line.strip(), indent, "      ") if line.strip() else [line]
+    return "\n".join(out)
+
+
 def _transition_text(transition: dict, rate: float) -> str:
     if transition["k50"] is None:
         return f"no logistic fit: {transition['reason']}"
@@ -221,20 +231,9 @@ def _transition_text(transition: dict, rate: float) -> str:
             f"certified answer); intervals for {transition['interval_scope']}")
 
 
-def law_formula(a: float, C: float, C_se) -> str:
-    """``k = a + C ln n``, or the constant when every fitted size has the same k (C = 0 exactly).
-
-    >>> law_formula(60.0, 0.0, 0.0), law_formula(5.47, 7.22, 4.17)
-    ('k = 60 at every fitted n (no growth with ln n)', 'k = 5.47 + 7.22 ± 4.17 ln n')
-    """
-    if C == 0 and not C_se:
-        return f"k = {a:.3g} at every fitted n (no growth with ln n)"
-    se = f" ± {C_se:.3g}" if C_se is not None else ""
-    sign = "-" if C < 0 else "+"
-    return f"k = {a:.3g} {sign} {abs(C):.3g}{se} ln n"
-
-
 def _fit_text(name: str, fit: dict, eps: str = "") -> str:
+    from calib.analysis.law import law_formula
+
     censored = f"; {fit['censored']} censored size(s) not fitted" if fit["censored"] else ""
     if fit["a"] is None:
         return f"{name} law: {fit['reason']}"
