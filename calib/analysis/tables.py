@@ -236,9 +236,12 @@ class SearchVerdicts:
 
 def apply_search(entry: dict, verdict: tuple) -> dict:
     """``entry`` with the search's claim as its instances-scope safe k; the class scope never claims
-    less than the search does (none when the search found none)."""
+    less than the search does (none when the search found none). An entry whose grid rule already
+    gives the search's k is returned unchanged (the same bytes as a table made without the searches)."""
     safe_k, reason = verdict
     m = entry["projected_dim"]
+    if safe_k == entry["safe_k"]:
+        return entry
     entry |= {"safe_k": safe_k, "safe_fraction": None if safe_k is None else num(safe_k / m), "safe_k_reason": reason,
               "safe_k_scope": INSTANCES_SCOPE + SEARCH_SCOPE}
     klass = entry["class"]
