@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: venv demo atlas atlas-check test bench clean
+.PHONY: venv demo atlas atlas-points-report atlas-check test bench clean
 
 venv: $(STAMP)
 
@@ -36,6 +36,11 @@ atlas: venv
 	$(BIN)/calib tables $(ATLAS)/atlas-points.sqlite --preset distortion --tau 0.3 \
 	    --json $(ATLAS)/safe_k-points.json --csv $(ATLAS)/safe_k-points.csv --timings $(ATLAS)/timings-points.csv \
 	    --html $(ATLAS)/report-points.html
+
+# The point-set report drawn again from the committed table and timings alone (no store needed):
+# `calib report TABLE --spec SPEC` checks the spec's fingerprint against the table's.
+atlas-points-report: venv
+	$(BIN)/calib report $(ATLAS)/safe_k-points.json --spec instances/atlas-points.toml --html $(ATLAS)/report-points.html
 
 # Reproduction: the atlas run again into a scratch folder; its tables must equal the committed ones
 # byte for byte (timings and reports rest on wall times and are not compared).

@@ -247,3 +247,21 @@ def test_a_none_answer_has_a_flag_saying_why(capsys):
     assert answer["answer"] == "don't sketch with countsketch: no reduction meets the target"
     assert main(["lookup", "--family", "lp-quantile", "--size", "rows=2000,features=5", "--k-only"]) == 0
     assert capsys.readouterr().out.strip() == "none"
+
+
+def test_a_report_drawn_from_a_table_file_shows_that_table(points, tmp_path, capsys):
+    table, timings, spec = tmp_path / "safe_k.json", tmp_path / "timings.csv", tmp_path / "spec.toml"
+    assert main(["tables", str(points), "--json", str(table), "--timings", str(timings)]) == 0
+    spec.write_text(POINTS, encoding="utf-8")
+    html = tmp_path / "r.html"
+    assert main(["report", str(table), "--spec", str(spec), "--html", str(html)]) == 0  # timings.csv found beside it
+    text = html.read_text()
+    for entry in json.loads(table.read_text())["analyses"][0]["entries"]:
+        assert f"<td>{entry['projector']}</td>" in text
+    assert "&quot;root_seed&quot;: 3" in text  # the spec, once its fingerprint matched
+    capsys.readouterr()
+    spec.write_text(POINTS.replace("root_seed = 3", "root_seed = 4"), encoding="utf-8")
+    assert main(["report", str(table), "--spec", str(spec), "--html", str(html)]) == 2
+    assert "fingerprint differs" in capsys.readouterr().err
+    assert main(["report", str(table), "--tau", "0.1", "--html", str(html)]) == 2
+    assert "carries its own analysis" in capsys.readouterr().err
