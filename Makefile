@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: venv demo atlas atlas-points-report atlas-check test bench clean
+.PHONY: venv demo demo-reference atlas atlas-points-report atlas-check test bench clean
 
 venv: $(STAMP)
 
@@ -14,12 +14,28 @@ $(STAMP): pyproject.toml
 	$(BIN)/python -m pip install --quiet -e '.[test]'
 	touch $(STAMP)
 
-# The quickstart: its store, then its table, timings and report from one analysis (`calib tables --html`).
+SHELL       := /bin/bash
+.SHELLFLAGS := -o pipefail -c
+
+# The quickstart: its store, then its table, timings and report from one analysis (`calib tables --html`);
+# what both commands print is kept beside them (run.txt, tables.txt), with the wall time of the whole.
+DEMO := results/quickstart
 demo: venv
-	$(BIN)/calib run instances/quickstart.toml --out results/quickstart
-	$(BIN)/calib tables results/quickstart/quickstart.sqlite --tau 0.01 0.05 0.1 \
-	    --json results/quickstart/safe_k.json --csv results/quickstart/safe_k.csv \
-	    --timings results/quickstart/timings.csv --html results/quickstart/report.html
+	@mkdir -p $(DEMO); start=$$(date +%s); \
+	$(BIN)/calib run instances/quickstart.toml --out $(DEMO) | tee $(DEMO)/run.txt && \
+	$(BIN)/calib tables $(DEMO)/quickstart.sqlite --tau 0.01 0.05 0.1 \
+	    --json $(DEMO)/safe_k.json --csv $(DEMO)/safe_k.csv \
+	    --timings $(DEMO)/timings.csv --html $(DEMO)/report.html | tee $(DEMO)/tables.txt && \
+	echo "make demo: $$(( $$(date +%s) - start )) s after the install" | tee -a $(DEMO)/run.txt
+
+# The demo run the README quotes, shipped in results/demo/ (your own `make demo` writes results/quickstart/):
+# after a new demo run, copy it there and write the README's generated sections from it (they are
+# checked against these files by tests/test_readme_numbers.py).
+demo-reference:
+	mkdir -p results/demo
+	cp $(DEMO)/safe_k.json $(DEMO)/safe_k.csv $(DEMO)/timings.csv $(DEMO)/report.html \
+	    $(DEMO)/run.txt $(DEMO)/tables.txt results/demo/
+	$(BIN)/python tests/readme_numbers.py --write
 
 # The atlas (instances/atlas*.toml): about 40 minutes on 2 cores (README, "The atlas"); resumable (run it
 # again after a stop). Each table and its report come from one analysis (`calib tables --html`), at the
