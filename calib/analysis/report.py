@@ -20,7 +20,7 @@ from typing import Optional
 import pandas as pd
 
 from calib.analysis.plots import Plot, figure_plan
-from calib.analysis.summary import entry_order
+from calib.analysis.summary import entry_order, predicate_text
 from calib.analysis.timing import nothing_saved, speedup_at_safe_k
 
 _STYLE = """
@@ -95,21 +95,6 @@ def _size_text(analysis: dict):
 
     label = class_labels(analysis)
     return lambda entry: " ".join(filter(None, [entry["size"], label(entry)]))
-
-
-TOLERANCE_WORDS = {"gap": "projected optimum's gap", "obj": "objective error", "feas": "infeasibility",
-                   "sign": "sign/cone violation", "distortion": "worst pairwise distortion"}
-
-
-def predicate_text(predicate: dict) -> str:
-    """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
-    checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
-              if key in TOLERANCE_WORDS and isinstance(value, (int, float)) and not isinstance(value, bool)]
-    if predicate.get("classify"):
-        checks.append("the feasibility verdict matches the original's")
-    extras = [f"{key.replace('_', ' ')}" for key, value in sorted(predicate.items())
-              if key not in TOLERANCE_WORDS and key not in ("name", "classify") and value is True]
-    return f"{predicate['name']}: " + "; ".join(checks + extras) if checks or extras else predicate["name"]
 
 
 def _k_text(k, fraction) -> str:

@@ -113,10 +113,24 @@ def cells(line: dict) -> list[str]:
 HEADER = ["class", "size", "m", "projector", "safe k", "k/m", "speed-up", "answer"]
 
 
+#: words for the tolerances of a predicate (the report's and the summary's headings)
+TOLERANCE_WORDS = {"gap": "projected optimum's gap", "obj": "objective error", "feas": "infeasibility",
+                   "sign": "sign/cone violation", "distortion": "worst pairwise distortion"}
+
+
+def predicate_text(predicate: dict) -> str:
+    """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
+    checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
+              if key in TOLERANCE_WORDS and isinstance(value, (int, float)) and not isinstance(value, bool)]
+    if predicate.get("classify"):
+        checks.append("the feasibility verdict matches the original's")
+    extras = [f"{key.replace('_', ' ')}" for key, value in sorted(predicate.items())
+              if key not in TOLERANCE_WORDS and key not in ("name", "classify") and value is True]
+    return f"{predicate['name']}: " + "; ".join(checks + extras) if checks or extras else predicate["name"]
+
+
 def heading(table: dict, analysis: dict) -> list[str]:
     """What the summary answers: the predicate and tolerance, the target and scope, the time measure."""
-    from calib.analysis.report import predicate_text
-
     target = table["target"]
     tau = "" if analysis["tau"] is None else f" at tau = {analysis['tau']:g}"
     return [f"The answer{tau} ({predicate_text(analysis['predicate'])})",

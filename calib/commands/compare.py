@@ -68,8 +68,9 @@ def run(args: argparse.Namespace) -> int:
     if not document["groups"]:
         raise InputError(str(args.store), "no group holds two of the chosen projectors on shared instances",
                          "sweep at least two projectors over the same instances")
-    print("\n".join(verdict_lines(document)))
-    print(document["notice"])
+    from calib.wording import fold
+
+    print(fold(verdict_lines(document) + [document["notice"]]))
     if args.json is not None:
         write_file(args.json, dumps(document), "--json")
         print(f"wrote {args.json}")

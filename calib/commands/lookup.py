@@ -127,7 +127,7 @@ def _projector_note(answer: dict) -> str:
 
 def render(answer: dict) -> str:
     """Human-readable answer of either direction: the answer on the first line, then how it was found."""
-    from calib.commands.tables import wrapped
+    from calib.wording import wrapped
 
     size = f" {answer['size']}" if answer.get("size") else ""
     m = f" m={answer['m']}" if answer.get("m") is not None else ""

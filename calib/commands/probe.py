@@ -37,7 +37,7 @@ import numpy as np
 
 from calib.errors import InputError
 from calib.theory import counting
-from calib.wording import counted
+from calib.wording import counted, fold, wrapped
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "exact", "retrieval_iterations",
@@ -517,15 +517,7 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
     return fold(lines)
 
 
-def fold(lines: list[str]) -> str:
-    from calib.commands.tables import fold
-
-    return fold(lines)
-
-
 def _wrap(text: str, indent: str) -> list[str]:
-    from calib.commands.tables import wrapped
-
     return wrapped(text, indent, "      ")
 
 

@@ -95,6 +95,7 @@ def search_report(spec, cells) -> str:
     """The trace and verdict of every k search of a run, then the evidence notice."""
     from calib.analysis.tables import NOTICE
     from calib.sweep.search import trace_lines
+    from calib.wording import fold
 
     target = spec.target
     rule = target_text(target.predicate)
@@ -103,8 +104,6 @@ def search_report(spec, cells) -> str:
         lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
         lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
     lines.append(NOTICE)
-    from calib.commands.tables import fold
-
     return fold(lines)
 
 

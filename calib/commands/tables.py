@@ -6,6 +6,8 @@ import argparse
 import json
 from pathlib import Path
 
+from calib.wording import fold, wrapped
+
 
 def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     """Options that choose the success predicate and the confidence target (shared with `probe`)."""
@@ -194,32 +196,6 @@ def search_summary(spec, cells) -> str:
     return "\n" + fold(["the k values above are those a k search tested (counts per tested k); the table states the "
                         "search's own claims under its [target]; the search itself, replayed from the stored trials:"]
                        + search_report(spec, cells).splitlines())
-
-
-#: the widest line of the text views (longer texts wrap, indented under their first line)
-WIDTH = 120
-
-
-def wrapped(text: str, indent: str = "   ", hanging: str = "    ") -> list[str]:
-    """``text`` as lines of at most :data:`WIDTH` characters, the first indented by ``indent``, the rest
-    by ``hanging`` more (a word longer than the width is kept whole).
-
-    >>> wrapped("a " * 70, "  ")[1].startswith("      a")
-    True
-    """
-    import textwrap
-
-    return textwrap.wrap(text, WIDTH, initial_indent=indent, subsequent_indent=indent + hanging,
-                         break_long_words=False, break_on_hyphens=False) or [indent]
-
-
-def fold(lines: list[str]) -> str:
-    """The lines joined, each longer than :data:`WIDTH` wrapped under its own indent (plus six spaces)."""
-    out = []
-    for line in lines:
-        indent = line[:len(line) - len(line.lstrip())]
-        out += wrapped(line.strip(), indent, "      ") if line.strip() else [line]
-    return "\n".join(out)
 
 
 def _transition_text(transition: dict, rate: float) -> str:
