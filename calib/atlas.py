@@ -60,6 +60,21 @@ def _holds(table: dict, family: str) -> bool:
     return any(entry["family"] == family for analysis in table["analyses"] for entry in analysis["entries"])
 
 
+def table_path(family: str, table: Union[str, Path, None] = None) -> Path:
+    """The file of the table answering for ``family``: ``table``, else the atlas file holding the family
+    (the first atlas file when none does). Raises :class:`InputError` when no atlas exists (``make
+    atlas`` creates it) or a file is invalid."""
+    from calib.analysis.tablefile import read_table
+
+    if table is not None:
+        return Path(table)
+    paths, where = atlas_paths()
+    if not paths:
+        raise InputError(where, "no atlas is shipped yet",
+                         f"`make atlas` creates it; or give a table file (`calib tables STORE --json FILE`) or set {ENV}")
+    return next((path for path in paths if _holds(read_table(path), family)), paths[0])
+
+
 def load_table(family: str, table: Union[str, Path, None] = None) -> dict:
     """The table answering for ``family``: the file ``table``, else the atlas (module text).
 
@@ -67,17 +82,10 @@ def load_table(family: str, table: Union[str, Path, None] = None) -> dict:
     """
     from calib.analysis.tablefile import read_table
 
-    if table is not None:
-        return read_table(table)
-    paths, where = atlas_paths()
-    if not paths:
-        raise InputError(where, "no atlas is shipped yet",
-                         f"`make atlas` creates it; or give a table file (`calib tables STORE --json FILE`) or set {ENV}")
-    tables = [read_table(path) for path in paths]
-    return next((found for found in tables if _holds(found, family)), tables[0])
+    return read_table(table_path(family, table))
 
 
-def safe_k(family: str, size: dict, projector: str, retrieval: Optional[str] = None, scope: str = "class",
+def safe_k(family: str, size: dict, projector: Optional[str] = None, retrieval: Optional[str] = None, scope: str = "class",
            table: Union[str, Path, None] = None, params: Optional[dict] = None, tau: Optional[float] = None,
            delta: Optional[float] = None, confidence: Optional[float] = None) -> dict:
     """The safe k for a problem of ``family`` at ``size`` sketched by ``projector``, as ``calib lookup`` answers it.
@@ -89,8 +97,10 @@ def safe_k(family: str, size: dict, projector: str, retrieval: Optional[str] = N
     size : dict
         the size in the family's own keys, e.g. ``{"rows": 2000, "features": 5}``; n (the JL point
         count) and the projected dimension m follow from the family's rules.
-    projector : str
-        projector label as in the table, e.g. ``"countsketch"``.
+    projector : str, optional
+        projector label as in the table, e.g. ``"countsketch"``; default: the table's best projector for
+        the class (the smallest safe k, then the largest measured speed-up), the others' safe k in
+        ``other_projectors``.
     retrieval : str, optional
         retrieval method, needed when the table has several for the class.
     scope : {"class", "instances"}
@@ -106,17 +116,23 @@ def safe_k(family: str, size: dict, projector: str, retrieval: Optional[str] = N
     Returns
     -------
     dict
-        the answer of ``calib lookup --json``: ``safe_k`` (None when no reduction meets the target),
-        ``method``, ``flag``, ``extrapolated``, ``law``, ``measured_n``, ``k_model`` and the rest.
+        the answer of ``calib lookup --json``: ``answer`` (the one-line answer), ``safe_k`` (None when no
+        reduction meets the target, with the reason in ``flag``, never empty then), ``method``,
+        ``extrapolated``, ``law``, ``measured_n``, ``speedup`` (the measured speed-up at the answered k
+        from the timings file beside the table, or None), ``k_model`` and the rest.
     """
-    from calib.analysis.lookup import Query, answer, size_of
+    from calib.analysis.lookup import Query, answer, read_timings, size_of, timings_beside
+    from calib.analysis.tablefile import read_table
 
     import json
 
     texts = {key: value if isinstance(value, str) else json.dumps(value) for key, value in (params or {}).items()}
     n, m, label = size_of(family, size, texts)
     query = Query(family, n, projector, retrieval, texts, tau, m, scope, label)
-    return answer(load_table(family, table), query, delta=delta, confidence=confidence)
+    path = table_path(family, table)
+    beside = timings_beside(path)
+    return answer(read_table(path), query, delta=delta, confidence=confidence,
+                  timings=read_timings(beside) if beside else [])
 
 
 def rule_k(rules: Union[str, Path], projector: str, mps: Union[str, Path, None] = None, features: Optional[dict] = None,

@@ -17,10 +17,12 @@ from calib.errors import InputError
 
 
 class _Parser(argparse.ArgumentParser):
-    """argparse with one-line errors (exit code 2)."""
+    """argparse with one-line errors (exit code 2): ``calib: error: COMMAND: problem (see `calib COMMAND --help`)``."""
 
     def error(self, message: str):  # noqa: D401 - argparse hook
-        self.exit(2, f"calib: error: {self.prog}: {message} (see `{self.prog} --help`)\n")
+        command = self.prog.partition(" ")[2]
+        where = f"{command}: " if command else ""
+        self.exit(2, f"calib: error: {where}{message} (see `{self.prog} --help`)\n")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -37,7 +39,10 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Optional[Sequence[str]] = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args, extra = parser.parse_known_args(argv)
+    if extra:  # reported by the command's own parser, which names its help page
+        commands = parser._subparsers._group_actions[0].choices if parser._subparsers else {}
+        (commands.get(getattr(args, "command", None)) or parser).error(f"unrecognized arguments: {' '.join(extra)}")
     if not getattr(args, "func", None):
         parser.print_help()
         return 2

@@ -1,17 +1,18 @@
-"""The HTML report: self-contained, every figure embedded as a PNG, renders in headless Chromium."""
+"""The HTML report: self-contained, every figure embedded as an SVG, renders in headless Chromium."""
 
 from __future__ import annotations
 
 import base64
-import io
 import json
 import os
 import re
 import subprocess
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from matplotlib import image
+from xml.etree import ElementTree
 
 from analysis_campaign import run_campaign_in
 from calib.analysis.plots import figure_ids
@@ -28,23 +29,26 @@ def report(tmp_path_factory):
     store = run_campaign_in(folder)
     html = folder / "report.html"
     table = folder / "table.json"
+    timings = folder / "timings.csv"
     assert main(["report", str(store), "--html", str(html), "--tau", "0.05", "0.1"]) == 0
-    assert main(["tables", str(store), "--json", str(table), "--tau", "0.05", "0.1"]) == 0
-    return html, json.loads(table.read_text())
+    assert main(["tables", str(store), "--json", str(table), "--timings", str(timings), "--tau", "0.05", "0.1"]) == 0
+    frame = pd.read_csv(timings, dtype={"params": str})
+    return html, json.loads(table.read_text()), frame
 
 
-def test_report_embeds_every_figure_as_a_png(report):
-    html_path, table = report
+def test_report_embeds_every_figure_as_an_svg(report):
+    html_path, table, timings = report
     html = html_path.read_text()
-    embedded = dict(re.findall(r'<figure id="fig-([^"]+)"><img alt="[^"]*" src="data:image/png;base64,([^"]+)"', html))
-    expected = figure_ids(table["analyses"][0])
+    embedded = dict(re.findall(r'<figure id="fig-([^"]+)"><img alt="[^"]*" src="data:image/svg\+xml;base64,([^"]+)"', html))
+    expected = figure_ids(table, table["analyses"][0], timings)
     assert sorted(embedded) == sorted(expected)
     assert {f"{kind}-lp-planted" for kind in ("success", "law", "speedup")} <= set(embedded)
     for fig_id, data in embedded.items():
-        png = base64.b64decode(data)
-        assert png.startswith(PNG_SIGNATURE), fig_id
-        pixels = image.imread(io.BytesIO(png), format="png")
-        assert pixels.shape[0] > 100 and pixels.shape[1] > 100 and pixels.std() > 0, fig_id
+        # SVG 1.1 (W3C): an <svg> root element in the SVG namespace; text kept as <text> (readable, searchable)
+        root = ElementTree.fromstring(base64.b64decode(data))
+        assert root.tag == "{http://www.w3.org/2000/svg}svg", fig_id
+        assert float(root.get("width").removesuffix("pt")) > 100 and float(root.get("height").removesuffix("pt")) > 100
+        assert root.iter("{http://www.w3.org/2000/svg}text").__next__() is not None, fig_id
 
 
 def test_report_is_self_contained_and_carries_tables_spec_and_notice(report):
@@ -60,14 +64,15 @@ def test_report_is_self_contained_and_carries_tables_spec_and_notice(report):
 
 
 def test_report_leads_with_one_answer_card_per_class(report):
-    html_path, table = report
+    html_path, table, _ = report
     html = html_path.read_text()
     first = table["analyses"][0]
     classes = {(e["family"], json.dumps(e["class_params"], sort_keys=True), e["projector"], e["retrieval"])
                for e in first["entries"]}
     assert html.count('<div class="card">') == len(classes)
     # the answer comes before the figures, the detailed tables and the campaign metadata
-    order = [html.index(marker) for marker in ("The answer, per class", "<h2>Figures", "<h2>Detailed table", "<h2>Campaign")]
+    order = [html.index(marker) for marker in ("<h2>The answer</h2>", '<div class="fold glance">', "<h2>Per class",
+                                               "<h2>Figures", "<h2>Detailed table", "<h2>Campaign")]
     assert order == sorted(order)
     # a card states both scopes and the law or why there is none, and the time verdict
     card = html[html.index('<div class="card">'):]
@@ -96,12 +101,12 @@ def _chromium() -> str:
 
 
 def test_report_renders_in_headless_chromium(report, tmp_path):
-    html_path, table = report
+    html_path, table, timings = report
     _chromium()
     common = [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--allow-file-access-from-files"]
     dom = subprocess.run(common + ["--dump-dom", html_path.resolve().as_uri()], capture_output=True, text=True,
                          timeout=120, check=True).stdout
-    for fig_id in figure_ids(table["analyses"][0]):
+    for fig_id in figure_ids(table, table["analyses"][0], timings):
         assert f'id="fig-{fig_id}"' in dom
     shot = tmp_path / "shot.png"
     subprocess.run(common + [f"--screenshot={shot}", "--window-size=1280,2000", html_path.resolve().as_uri()],

@@ -23,6 +23,8 @@ from typing import Optional
 
 import pandas as pd
 
+#: the time verdict of a point set: there is no solve to save, the timings hold the sketch cost alone
+NO_SOLVE = "no solve to save (a point set): the timings show the sketch cost only"
 #: said when no measured (cell, k) of a class ran faster than the original's baseline
 NO_SAVING = "no saving: at every measured k the reduced pipeline was slower end to end than the original"
 
@@ -109,5 +111,5 @@ def class_answers(table: dict, analysis: dict, timings: Optional[pd.DataFrame], 
                         "retrieval": first["retrieval"], "kind": first["kind"],
                         "sizes": [size_line(entry) for entry in entries], "ladder": others,
                         "law": law_line(laws[key]) if key in laws else None,
-                        "time": policy_time_line(entries) or time_line(timings, key)})
+                        "time": NO_SOLVE if first["kind"] == "points" else (policy_time_line(entries) or time_line(timings, key))})
     return answers

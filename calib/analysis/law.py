@@ -74,3 +74,16 @@ def fit_law(n, k) -> Law:
         sigma2 = float(residuals @ residuals) / dof
         C_se = denoise(float(np.sqrt(sigma2 * np.linalg.inv(design.T @ design)[1, 1])))
     return Law(denoise(a), denoise(C), C_se, tuple(denoise(r) for r in residuals), int(sizes.min()), int(sizes.max()))
+
+
+def law_formula(a: float, C: float, C_se) -> str:
+    """``k = a + C ln n``, or the constant when every fitted size has the same k (C = 0 exactly).
+
+    >>> law_formula(60.0, 0.0, 0.0), law_formula(5.47, 7.22, 4.17)
+    ('k = 60 at every fitted n (no growth with ln n)', 'k = 5.47 + 7.22 ± 4.17 ln n')
+    """
+    if C == 0 and not C_se:
+        return f"k = {a:.3g} at every fitted n (no growth with ln n)"
+    se = f" ± {C_se:.3g}" if C_se is not None else ""
+    sign = "-" if C < 0 else "+"
+    return f"k = {a:.3g} {sign} {abs(C):.3g}{se} ln n"

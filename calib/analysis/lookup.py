@@ -48,7 +48,7 @@ class Query:
 
     family: str
     n: int
-    projector: str
+    projector: Optional[str] = None
     retrieval: Optional[str] = None
     params: dict = field(default_factory=dict)
     tau: Optional[float] = None
@@ -147,6 +147,13 @@ def _same(stored, given: str) -> bool:
     except (TypeError, ValueError):
         pass
     return stored == given
+
+
+def class_projectors(analysis: dict, query: Query) -> list[str]:
+    """The projectors the table holds for the queried family (and class parameters), sorted."""
+    return sorted({entry["projector"] for entry in analysis["entries"] if entry["family"] == query.family
+                   and (query.retrieval is None or entry["retrieval"] == query.retrieval)
+                   and all(_same(entry["class_params"].get(key), value) for key, value in query.params.items())})
 
 
 def class_entries(analysis: dict, query: Query) -> list[dict]:
@@ -319,7 +326,7 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
     censored = [censoring(k, reason, entry["projected_dim"]) for (k, reason), entry in zip(answers, entries)]
     law = censored_law(sizes, [k for k, _ in answers], censored)
     answer = {"family": query.family, "n": query.n, "m": query.m, "size": query.size, "scope": query.scope,
-              "projector": query.projector, "retrieval": entries[0]["retrieval"],
+              "projector": query.projector, "retrieval": entries[0]["retrieval"], "kind": entries[0]["kind"],
               "tau": analysis["tau"], "predicate": analysis["predicate"]["name"], "delta": confidence.delta,
               "confidence": confidence.level, "note": note, **_measured_range(entries, query.n),
               "instances": [entry["instances"] for entry in entries],
@@ -343,6 +350,8 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
                    "method": f"none: {law.reason}" + (f" ({'; '.join(reasons)})" if reasons else "")}
     if answer["safe_k"] is not None and query.m is not None and answer["safe_k"] >= query.m:
         answer["flag"] = "; ".join(filter(None, [f"k = m = {query.m}: {NO_REDUCTION}", answer["flag"]]))
+    if answer["safe_k"] is None and not answer["flag"]:
+        answer["flag"] = none_flag(answers, law, None if measured is None else answers[measured][1])
     model = transition_at(entries, query.n)
     k_model = model.k_at(confidence.target) if model.k50 else None
     model_reason = model.reason
@@ -352,15 +361,163 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
     return answer | policy_at(entries, query.n)
 
 
+def none_flag(answers: list[tuple[Optional[int], str]], law, measured_reason: Optional[str] = None) -> str:
+    """Why the answer is none, in words a caller can branch on (never empty): no tested k reached the
+    target at this measured size or at any measured size, or no law carries the measured sizes to this one.
+
+    >>> none_flag([(None, "no swept k reaches the target")], None)
+    'no reduction meets the target: no tested k reaches it at any measured size (no swept k reaches the target)'
+    """
+    if measured_reason is not None and any(k is not None for k, _ in answers):
+        return f"{NO_REDUCTION}: no tested k reaches it here" + (f" ({measured_reason})" if measured_reason else "")
+    if all(k is None for k, _ in answers):
+        reasons = sorted({reason for _, reason in answers if reason})
+        return ("no reduction meets the target: no tested k reaches it at any measured size"
+                + (f" ({'; '.join(reasons)})" if reasons else ""))
+    return f"no answer at this size: {law.reason}" if law is not None and law.reason else "no answer at this size"
+
+
 def answer(table: dict, query: Query, k: Optional[int] = None, delta: Optional[float] = None,
-           confidence: Optional[float] = None) -> dict:
+           confidence: Optional[float] = None, timings: Optional[list] = None) -> dict:
     """The answer of ``calib lookup``: :func:`success_for` at ``k`` when given, else :func:`k_for` at the
-    target 1 - ``delta`` and ``confidence`` (each defaulting to the table's)."""
+    target 1 - ``delta`` and ``confidence`` (each defaulting to the table's), with the expected speed-up
+    from ``timings`` (rows of the table's timings file, :func:`speedup_at`). Without a projector in the
+    query, the best projector of the table answers (:func:`best_projector`)."""
+    if query.projector is None:
+        return best_projector(table, query, k, delta, confidence, timings)
     if k is not None:
         return success_for(table, query, k)
     target = table["target"]
-    return k_for(table, query, Confidence(delta if delta is not None else target["delta"],
-                                          confidence if confidence is not None else target["confidence"]))
+    found = k_for(table, query, Confidence(delta if delta is not None else target["delta"],
+                                           confidence if confidence is not None else target["confidence"]))
+    found["speedup"] = speedup_at(found, table, query, timings)
+    found["projector_named"] = True
+    found["answer"] = headline(found)
+    return found
+
+
+def _rank(found: dict) -> tuple:
+    """Order of answers when choosing a projector: a safe k below m first, the smallest k, then the
+    largest measured speed-up, then the name."""
+    k = found.get("safe_k")
+    usable = k is not None and (found["m"] is None or k < found["m"])
+    speed = (found.get("speedup") or {}).get("speedup") or 0.0
+    return (not usable, k if k is not None else math.inf, -speed, found["projector"])
+
+
+def best_projector(table: dict, query: Query, k: Optional[int], delta: Optional[float], confidence: Optional[float],
+                   timings: Optional[list]) -> dict:
+    """The answer for the projector with the smallest safe k among those the table holds for the class
+    (ties: the larger measured speed-up, then the name), with every other projector's safe k beside it."""
+    from dataclasses import replace
+
+    analysis, _ = select_analysis(table, query.tau)
+    names = class_projectors(analysis, query)
+    if not names:
+        class_entries(analysis, query)  # raises the "no entries" error with what the table offers
+    found = {name: answer(table, replace(query, projector=name), None, delta, confidence, timings) for name in names}
+    best = min(found.values(), key=_rank)
+    if k is not None:
+        best = answer(table, replace(query, projector=best["projector"]), k, delta, confidence, timings)
+    best = dict(best, projector_named=False,
+                other_projectors={name: other.get("safe_k") for name, other in found.items()
+                                  if name != best["projector"]})
+    if "safe_k" in best:
+        best["answer"] = headline(best)
+    return best
+
+
+def read_timings(path) -> list[dict]:
+    """Rows of a timings file (``calib tables --timings``), [] when there is none (no pandas: lookup stays light)."""
+    import csv
+    from pathlib import Path
+
+    path = Path(path)
+    if not path.is_file():
+        return []
+    with path.open(newline="", encoding="utf-8") as handle:
+        return list(csv.DictReader(handle))
+
+
+def timings_beside(table_path) -> Optional[object]:
+    """The timings file written beside a table: ``safe_k.json`` -> ``timings.csv``,
+    ``safe_k-points.json`` -> ``timings-points.csv`` (the names `make demo` and `make atlas` use).
+
+    >>> str(timings_beside("results/atlas/safe_k-points.json"))
+    'results/atlas/timings-points.csv'
+    """
+    from pathlib import Path
+
+    path = Path(table_path)
+    if not path.name.startswith("safe_k"):
+        return None
+    return path.with_name("timings" + path.stem[len("safe_k"):] + ".csv")
+
+
+def speedup_at(found: dict, table: dict, query: Query, timings: Optional[list]) -> Optional[dict]:
+    """The measured speed-up at the answered k (the original's fastest solve over sketch + projected
+    solve + retrieval, medians, from the timings file): at the queried size when it was measured
+    there, else at the measured size nearest in n at that size's own answered k (a measurement, not
+    an extrapolation: said so). None without timings, for point sets (no solve to save) or no k."""
+    if not timings or found.get("safe_k") is None:
+        return None
+    analysis, _ = select_analysis(table, query.tau)
+    entries = class_entries(analysis, query)
+    if entries[0]["kind"] == "points":
+        return None
+    measured = _measured(entries, query)
+    if measured is not None:
+        entry, k, where = entries[measured], found["safe_k"], "at this size"
+    else:
+        entry = min(entries, key=lambda item: abs(math.log(item["n_points"]) - math.log(query.n)))
+        index = entries.index(entry)
+        k = found["measured_safe_k"][index]
+        where = f"measured at {entry['size']} (k = {k}), the nearest measured size; not extrapolated"
+        if k is None:
+            return None
+    params = json.dumps(entry["params"], sort_keys=True, separators=(",", ":"))
+    for row in timings:
+        if (row.get("family"), row.get("params"), row.get("projector"), row.get("retrieval")) == \
+                (entry["family"], params, entry["projector"], entry["retrieval"]) and str(row.get("k")) == str(k):
+            values = {name: _number(row.get(name)) for name in ("speedup", "baseline_median_s", "reduced_median_s")}
+            if values["speedup"] is None:
+                return None
+            return {"size": entry["size"], "k": k, "where": where, **values}
+    return None
+
+
+def _number(text) -> Optional[float]:
+    try:
+        value = float(text)
+    except (TypeError, ValueError):
+        return None
+    return value if math.isfinite(value) else None
+
+
+def headline(found: dict) -> str:
+    """The answer in one short line: the k with k/m and the expected speed-up, or "don't sketch" and why
+    (the details, e.g. where the speed-up was measured, are in the answer's other fields).
+
+    >>> headline({"m": 600, "safe_k": 60, "projector": "gaussian", "speedup": {"speedup": 13.2, "where": "at this size"}})
+    'safe k = 60 (k/m = 0.1) with gaussian: expected 13.2x faster end to end'
+    >>> headline({"m": 90, "safe_k": 90, "projector": "gaussian"})
+    "don't sketch: safe k = m = 90 with gaussian, no reduction meets the target"
+    """
+    m, k = found["m"], found["safe_k"]
+    if k is None:
+        who = found["projector"] if found.get("projector_named", True) else "any of the table's projectors"
+        return f"don't sketch with {who}: no reduction meets the target"
+    if m is not None and k >= m:
+        return f"don't sketch: safe k = m = {m} with {found['projector']}, no reduction meets the target"
+    share = f" (k/m = {k / m:.2g})" if m else ""
+    speed = found.get("speedup")
+    if speed is None:
+        time = "no solve to save" if found.get("kind") == "points" else "speed-up not measured"
+    elif speed["speedup"] > 1:
+        time = f"expected {speed['speedup']:.3g}x faster end to end"
+    else:
+        time = f"slower end to end ({speed['speedup']:.2g}x): the sketch saves no time"
+    return f"safe k = {k}{share} with {found['projector']}: {time}"
 
 
 def policy_at(entries: list[dict], n: int) -> dict:

@@ -1,9 +1,12 @@
 """One self-contained HTML page for a campaign: notice, tables, laws, figures, timings, spec.
 
-Self-contained: figures are embedded as base64 PNG data URIs and the style sheet is inline, so the
-page needs no network and no other file. Every figure sits in ``<figure id="fig-<id>">`` with the
-ids of :func:`calib.analysis.plots.figure_ids`. Figures are drawn for the first (strictest)
-analysis of the table; the tables cover every analysis.
+Self-contained: figures are embedded as base64 SVG data URIs (vector: sharp at any zoom) and the
+style sheet is inline, so the page needs no network and no other file. Every figure sits in
+``<figure id="fig-<id>">`` with the ids of :func:`calib.analysis.plots.figure_ids`; a figure that
+would be empty is replaced by a sentence saying why. Figures are drawn for the first (strictest)
+analysis of the table; the tables cover every analysis. The page opens with the one-screen answer
+of :mod:`calib.analysis.summary` (the same lines `calib tables` prints first); every list of cells
+is in numeric order of size.
 """
 
 from __future__ import annotations
@@ -16,8 +19,9 @@ from typing import Optional
 
 import pandas as pd
 
-from calib.analysis.plots import Plot, all_plots
+from calib.analysis.plots import Plot, figure_plan
 from calib.analysis.predict import report_section
+from calib.analysis.summary import entry_order, predicate_text
 from calib.analysis.timing import nothing_saved, speedup_at_safe_k
 
 _STYLE = """
@@ -38,6 +42,9 @@ td.note { text-align: left; white-space: normal; min-width: 12em; max-width: 28e
 .fold { overflow-x: auto; max-width: 100%; }
 figure { margin: 1.5em 0; }
 figure img { max-width: 100%; border: 1px solid #ddd; }
+.glance td.answer { text-align: left; }
+.glance tr.sketch td.answer { color: #1a6b1a; font-weight: 600; }
+.glance tr.dont td.answer { color: #8a4b00; }
 figcaption { font-size: 0.85em; color: #555; }
 pre { background: #f6f8fa; padding: 1em; overflow-x: auto; font-size: 0.8em; }
 """
@@ -75,6 +82,14 @@ def _interval(values) -> str:
     return "–" if not values else f"[{values[0]:.3g}, {values[1]:.3g}]"
 
 
+def _sorted(analysis: dict) -> list[dict]:
+    """The analysis's entries in display order: class, size numerically, projector, retrieval."""
+    from calib.analysis.tables import class_labels
+
+    label = class_labels(analysis)
+    return sorted(analysis["entries"], key=lambda entry: entry_order(entry, label(entry)))
+
+
 def _size_text(analysis: dict):
     """entry -> its size, followed by the class parameters that tell its family's classes apart."""
     from calib.analysis.tables import class_labels
@@ -83,33 +98,22 @@ def _size_text(analysis: dict):
     return lambda entry: " ".join(filter(None, [entry["size"], label(entry)]))
 
 
-TOLERANCE_WORDS = {"gap": "projected optimum's gap", "obj": "objective error", "feas": "infeasibility",
-                   "sign": "sign/cone violation", "distortion": "worst pairwise distortion"}
-
-
-def predicate_text(predicate: dict) -> str:
-    """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
-    checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
-              if key in TOLERANCE_WORDS and isinstance(value, (int, float)) and not isinstance(value, bool)]
-    if predicate.get("classify"):
-        checks.append("the feasibility verdict matches the original's")
-    extras = [f"{key.replace('_', ' ')}" for key, value in sorted(predicate.items())
-              if key not in TOLERANCE_WORDS and key not in ("name", "classify") and value is True]
-    return f"{predicate['name']}: " + "; ".join(checks + extras) if checks or extras else predicate["name"]
-
-
 def _k_text(k, fraction) -> str:
-    return "none" if k is None else f"{k} ({fraction:.0%})"
+    if k is None:
+        return "none"
+    return f"{k} (= m: no reduction)" if fraction >= 1 else f"{k} ({fraction:.0%})"
 
 
 def _law_text(law: Optional[dict]) -> str:
     if law is None:
         return "no law across sizes"
+    from calib.analysis.law import law_formula
+
     if law["C"] is None:
         return f"No law across sizes: {law['reason']}."
     rules = "; ".join(f"{name} C = {rule['C']:.4g}" for name, rule in sorted(law["rules"].items()) if rule["C"] is not None)
     censored = f" ({law['censored']} censored size(s) not fitted)" if law["censored"] else ""
-    return (f"Law ({law['scope']} scope): safe k ≈ {law['a']:.3g} + {law['C']:.3g} ln n{censored}; published bounds at "
+    return (f"Law ({law['scope']} scope): safe {law_formula(law['a'], law['C'], None)}{censored}; published bounds at "
             f"eps = {law['eps']:g}: {rules}.")
 
 
@@ -149,7 +153,7 @@ def entries_table(analysis: dict) -> str:
     header += [f"{rule} k (ratio)" for rule in rules]
     lines = []
     size = _size_text(analysis)
-    for entry in analysis["entries"]:
+    for entry in _sorted(analysis):
         fit, bounds = entry["transition"], entry["theory"]["bounds"]
         line = [entry["family"], size(entry), entry["projector"], entry["retrieval"], entry["projected_dim"],
                 entry["n_points"], entry["instances"], entry["class"]["safe_k"], entry["class"]["reason"], entry["safe_k"],
@@ -192,7 +196,7 @@ def grid_table(analysis: dict) -> str:
               point["successes"], point["errors"], point["solver_errors"], point["instances"], point["rate"],
               point["lower_bound"], point["wilson_lower"], point["passes"], point["class_lower_bound"],
               point["class_passes"], point["error_median"], point["error_q90"]]
-             for entry in analysis["entries"] for point in entry["grid"]]
+             for entry in _sorted(analysis) for point in entry["grid"]]
     return html_table(header, lines)
 
 
@@ -219,14 +223,37 @@ def policy_table(analysis: dict) -> str:
     size = _size_text(analysis)
     lines = [[entry["family"], size(entry), entry["projector"], entry["retrieval"], block["k"], block["time_median_s"],
               block["baseline_median_s"], block["speedup"], block["answer"]]
-             for entry in analysis["entries"] if (block := entry.get("policy")) is not None]
+             for entry in _sorted(analysis) if (block := entry.get("policy")) is not None]
     return html_table(header, lines) if lines else "<p>No cell with a solved problem: no policy answer.</p>"
 
 
 def _figure(plot: Plot) -> str:
-    data = base64.b64encode(plot.png).decode("ascii")
+    data = base64.b64encode(plot.svg).decode("ascii")
     return (f'<figure id="fig-{escape(plot.fig_id)}"><img alt="{escape(plot.title)}" '
-            f'src="data:image/png;base64,{data}"><figcaption>{escape(plot.title)}. {escape(plot.caption)}</figcaption></figure>')
+            f'src="data:image/svg+xml;base64,{data}"><figcaption>{escape(plot.title)}. {escape(plot.caption)}</figcaption></figure>')
+
+
+def figures(table: dict, analysis: dict, timings: pd.DataFrame) -> list[str]:
+    """The figures of :func:`calib.analysis.plots.figure_plan`, each or the sentence replacing it."""
+    return [_figure(item.draw()) if item.draw is not None else f'<p class="muted">{escape(item.note)}</p>'
+            for item in figure_plan(table, analysis, timings)]
+
+
+def glance_table(table: dict, analysis: dict, timings: pd.DataFrame) -> str:
+    """The one-screen answer (:func:`calib.analysis.summary.summary_lines`) as an HTML table."""
+    from calib.analysis.summary import HEADER, cells, summary_lines
+    from calib.analysis.tables import class_labels
+
+    lines = summary_lines(analysis, timings, class_labels(analysis))
+    head = "".join(f'<th class="text">{escape(name)}</th>' for name in HEADER)
+    body = []
+    for line in lines:
+        values = cells(line)
+        css = "sketch" if line["verdict"] == "sketch" else "dont"
+        body.append(f'<tr class="{css}">' + "".join(f'<td class="text">{escape(value)}</td>' for value in values[:2])
+                    + "".join(f"<td>{escape(value)}</td>" for value in values[2:-1])
+                    + f'<td class="answer">{escape(values[-1])}</td></tr>')
+    return f'<div class="fold glance"><table>\n<tr>{head}</tr>\n' + "\n".join(body) + "\n</table></div>"
 
 
 def _frame_table(frame: pd.DataFrame) -> str:
@@ -261,15 +288,21 @@ def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
         f"<title>calib report: {escape(str(campaign['name']))}</title><style>{_STYLE}</style></head><body>",
         f"<h1>calib report: {escape(str(campaign['name']))}</h1>",
         f'<p class="notice"><strong>Read this first.</strong> {escape(table["notice"])}</p>',
-        "<h2>The answer, per class</h2>",
-        f"<p>Safe k: the smallest k whose success rate is at least {target['success_rate']:g} with "
-        f"{target['confidence']:.0%} confidence, for the class (the default answer: instances are the unit) and for "
-        f"the instances measured. Success: {escape(predicate_text(first['predicate']))}.{escape(ladder)}</p>",
+        "<h2>The answer</h2>",
+        f"<p>Per class, size and projector: the class safe k (the smallest tested k whose success rate is at least "
+        f"{target['success_rate']:g} with {target['confidence']:.0%} confidence for the class the instances were drawn "
+        f"from), the share k/m of the projected dimension it keeps, the speed-up there (the original solved by its "
+        f"fastest method over sketch + projected solve + retrieval, medians) and whether to sketch. "
+        f"Success: {escape(predicate_text(first['predicate']))}.{escape(ladder)}</p>",
+        glance_table(table, first, timings),
+        "<h2>Per class</h2>",
+        "<p>Each card gives the safe k in both scopes (the class, the default answer; and the instances measured), "
+        "the policy k, the other tolerances, the law across sizes and the time verdict.</p>",
         '<div class="cards">', *[answer_card(answer) for answer in answers], "</div>",
     ]
     parts += [f"<p>Left out: {escape(item['family'])} ({escape(item['reason'])}).</p>" for item in first["excluded"]]
     parts += [f"<h2>Figures ({escape(predicate_text(first['predicate']))})</h2>"]
-    parts += [_figure(plot) for plot in all_plots(table, first, timings)]
+    parts += figures(table, first, timings)
     parts += ["<h2>Time against the fair baseline</h2>", f"<p><strong>{escape(time_verdict(timings, first))}</strong></p>",
               "<p>End to end = sketch + projected solve + retrieval (with any extra solves of a repair or a warm "
               "start); the baseline is the original solved by the fastest configured method that reaches its verdict. "

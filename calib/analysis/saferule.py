@@ -92,10 +92,19 @@ def censored_law(n: list[int], values: list, censored: list[str]) -> Law:
 def class_namer(items: list[dict]):
     """class_params -> short text naming only the parameters that differ between the items' classes.
 
+    A parameter left at None (its family's default, e.g. no low rank) reads "without KEY"; text values
+    read without quotes.
+
     >>> name = class_namer([{"class_params": {"rank": 12, "cost": "c"}}, {"class_params": {"rank": None, "cost": "c"}}])
-    >>> name({"rank": 12, "cost": "c"})
-    'rank=12'
+    >>> name({"rank": 12, "cost": "c"}), name({"rank": None, "cost": "c"})
+    ('rank=12', 'without rank')
     """
     keys = sorted({key for item in items for key in item["class_params"]})
     varying = [key for key in keys if len({json.dumps(item["class_params"].get(key)) for item in items}) > 1]
-    return lambda params: " ".join(f"{key}={json.dumps(params.get(key))}" for key in varying)
+
+    def text(key: str, value) -> str:
+        if value is None:
+            return f"without {key}"
+        return f"{key}={value}" if isinstance(value, str) else f"{key}={json.dumps(value)}"
+
+    return lambda params: " ".join(text(key, params.get(key)) for key in varying)

@@ -142,8 +142,8 @@ def _positive(value, where: str) -> float:
     return float(value)
 
 
-def make_predicate(preset: str = DEFAULT_PRESET, faster: bool = False, **overrides) -> Predicate:
-    """A preset with some tolerances overridden (validated: each must be > 0 and finite), and
+def make_predicate(preset: "str | Predicate" = DEFAULT_PRESET, faster: bool = False, **overrides) -> Predicate:
+    """A preset (by name, or a predicate given as the base) with some tolerances overridden (validated: each must be > 0 and finite), and
     ``faster`` to require the cost condition on top of any preset.
 
     >>> make_predicate("bound", gap=0.01).gap
@@ -151,18 +151,41 @@ def make_predicate(preset: str = DEFAULT_PRESET, faster: bool = False, **overrid
     >>> make_predicate("usable", feas=0.1).name, make_predicate("bound", faster=True).name
     ('usable+custom', 'bound+faster')
     """
-    preset = ALIASES.get(preset, preset)
-    if preset not in PRESETS:
-        raise InputError("--preset", f"unknown preset {preset!r}", f"choose one of {', '.join(sorted(PRESETS))}")
+    if isinstance(preset, Predicate):  # a default chosen by the caller (e.g. :func:`default_predicate`)
+        base, preset = preset, preset.name
+    else:
+        preset = ALIASES.get(preset, preset)
+        if preset not in PRESETS:
+            raise InputError("--preset", f"unknown preset {preset!r}", f"choose one of {', '.join(sorted(PRESETS))}")
+        base = PRESETS[preset]
     values = {}
     for key, value in overrides.items():
         if value is not None:
             values[key] = _positive(value, OPTIONS.get(key, key))
-    predicate = replace(PRESETS[preset], **values)
+    predicate = replace(base, **values)
     name = f"{preset}+custom" if values else preset
     if faster and not predicate.faster:
         predicate, name = replace(predicate, faster=True), f"{name}+faster"
     return replace(predicate, name=name)
+
+
+def default_predicate(kinds) -> Predicate:
+    """The predicate a command uses when none is named: one that decides something on every problem
+    kind of the store, so no kind is left out by default. Point sets alone: ``distortion``; LPs, SDPs
+    and QPs: ``usable``; both: ``usable`` with the distortion tolerance of ``distortion`` for the point sets.
+
+    >>> default_predicate({"points"}).name, default_predicate({"lp"}).name
+    ('distortion', 'usable')
+    >>> mixed = default_predicate({"lp", "points"})
+    >>> mixed.covers("points") and mixed.covers("lp"), mixed.distortion
+    (True, 0.2)
+    """
+    kinds = set(kinds)
+    if kinds and kinds <= {"points"}:
+        return PRESETS["distortion"]
+    if "points" in kinds:
+        return replace(PRESETS[DEFAULT_PRESET], distortion=PRESETS["distortion"].distortion)
+    return PRESETS[DEFAULT_PRESET]
 
 
 def preset_of(predicate: Predicate) -> str:

@@ -37,6 +37,7 @@ statements, not proofs.
 from __future__ import annotations
 
 import json
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Iterable, Optional
 
@@ -209,6 +210,48 @@ def cell_entry(cell: pd.DataFrame, predicate: Predicate, confidence: Confidence,
     } | policy_answer.entry_block(kept, confidence)
 
 
+#: how the instances scope of a searched cell is decided (appended to :data:`INSTANCES_SCOPE`)
+SEARCH_SCOPE = ("; the store was written by a k search: its safe k is the search's own claim (sequential bounds "
+                "over the k values it tested, replayed from the stored trials), so the table and the search agree")
+
+
+@dataclass(frozen=True)
+class SearchVerdicts:
+    """The k searches a store was written by, replayed from its trials: per searched cell, the claim
+    the table states for it. ``verdicts`` maps (instance id, projector, retrieval) of every instance of
+    a cell to (safe k or None, reason); they apply to the analysis of the searches' own rule."""
+
+    predicate: Predicate
+    confidence: Confidence
+    verdicts: dict
+
+    def applies(self, predicate: Predicate, confidence: Confidence) -> bool:
+        """Whether an analysis under ``predicate`` at ``confidence`` is the one the searches decided."""
+        return replace(predicate, name="") == replace(self.predicate, name="") and confidence == self.confidence
+
+    def verdict(self, cell: pd.DataFrame) -> Optional[tuple]:
+        first = cell.iloc[0]
+        return self.verdicts.get((first["instance_id"], first["projector"], first["retrieval"]))
+
+
+def apply_search(entry: dict, verdict: tuple) -> dict:
+    """``entry`` with the search's claim as its instances-scope safe k; the class scope never claims
+    less than the search does (none when the search found none). An entry whose grid rule already
+    gives the search's k is returned unchanged (the same bytes as a table made without the searches)."""
+    safe_k, reason = verdict
+    m = entry["projected_dim"]
+    if safe_k == entry["safe_k"]:
+        return entry
+    entry |= {"safe_k": safe_k, "safe_fraction": None if safe_k is None else num(safe_k / m), "safe_k_reason": reason,
+              "safe_k_scope": INSTANCES_SCOPE + SEARCH_SCOPE}
+    klass = entry["class"]
+    if safe_k is None and klass["safe_k"] is not None:
+        klass |= {"safe_k": None, "safe_fraction": None, "reason": f"the k search claims no safe k: {reason}"}
+    elif safe_k is not None and klass["safe_k"] is not None and klass["safe_k"] < safe_k:
+        klass |= {"safe_k": safe_k, "safe_fraction": num(safe_k / m)}
+    return entry
+
+
 def cell_features(cell: pd.DataFrame) -> Optional[dict]:
     """Median instance features of the cell's instances (:func:`calib.features.median_features`),
     rounded for stable JSON; None when the store holds none."""
@@ -333,9 +376,11 @@ def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
 
 
 def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confidence, eps: Optional[float] = None,
-                   solver_errors: str = "exclude", policy: bool = False) -> dict:
+                   solver_errors: str = "exclude", policy: bool = False,
+                   searches: Optional[SearchVerdicts] = None) -> dict:
     """One analysis (one predicate) of the tidy rows: excluded kinds and instances, entries, laws;
-    with ``policy`` (or a predicate that requires saving time) each entry carries its policy answer."""
+    with ``policy`` (or a predicate that requires saving time) each entry carries its policy answer;
+    with ``searches`` (of this predicate), searched cells state the searches' claims (:func:`apply_search`)."""
     unbounded, excluded_unbounded = unbounded_exclusions(rows)
     rows = rows[~unbounded]
     covered = rows["kind"].map(predicate.covers).astype(bool)
@@ -352,6 +397,9 @@ def build_analysis(rows: pd.DataFrame, predicate: Predicate, confidence: Confide
             rows = pd.concat([rows, policy_answer.row_columns(rows, predicate)], axis=1)
         for key, cell in rows.groupby(CELL_KEYS, sort=True):
             entry = cell_entry(cell, predicate, confidence, eps, solver_errors)
+            verdict = None if (searches is None or entry is None) else searches.verdict(cell)
+            if verdict is not None:
+                entry = apply_search(entry, verdict)
             if entry is None:
                 excluded.append({"family": key[0], "kind": cell["kind"].iloc[0],
                                  "reason": f"{key[1]} / {key[3]} / {key[4]}: every projected solve ended in a solver error"})
@@ -380,9 +428,11 @@ def check_solver_errors(value: str) -> str:
 
 def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                 taus: Optional[Iterable[float]] = None, eps: Optional[float] = None,
-                rows: Optional[pd.DataFrame] = None, solver_errors: str = "exclude", policy: bool = False) -> dict:
+                rows: Optional[pd.DataFrame] = None, solver_errors: str = "exclude", policy: bool = False,
+                searches: Optional[SearchVerdicts] = None) -> dict:
     """The JSON-ready safe-k table of a store: one analysis per tau of the ladder (or the predicate alone);
-    ``policy`` adds the policy answer of :mod:`calib.analysis.policy` (it rests on measured times)."""
+    ``policy`` adds the policy answer of :mod:`calib.analysis.policy` (it rests on measured times);
+    ``searches`` (the store's k searches replayed) decide the cells of the analysis of their own rule."""
     solver_errors = check_solver_errors(solver_errors)
     rows = load_rows(store) if rows is None else rows
     if rows.empty:
@@ -405,9 +455,26 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
         "theory": {"rules": sorted(theory.RULES), "eps_choice": eps, "eps_convention": bounds.EPS_CONVENTION,
                    "failure": confidence.delta},
         "notice": NOTICE,
-        "analyses": [build_analysis(rows, each, confidence, eps, solver_errors, policy) for each in predicates],
+        "analyses": [build_analysis(rows, each, confidence, eps, solver_errors, policy,
+                                    searches if searches is not None and searches.applies(each, confidence) else None)
+                     for each in predicates],
     }
     return seal(table)
+
+
+def strip_policy(table: dict) -> dict:
+    """``table`` without the policy answers (the parts that rest on measured times), sealed again: the
+    table :func:`build_table` gives without ``policy`` (the report needs them, the table file holds
+    them only when asked). A table whose predicate requires time saved keeps them."""
+    analyses = []
+    for analysis in table["analyses"]:
+        if analysis["predicate"].get("faster"):
+            analyses.append(analysis)
+            continue
+        entries = [{key: value for key, value in entry.items() if key != "policy"} for entry in analysis["entries"]]
+        analyses.append({**analysis, "entries": entries})
+    body = {key: value for key, value in table.items() if key != "checksum"}
+    return seal({**body, "analyses": analyses})
 
 
 def table_to_frame(table: dict) -> pd.DataFrame:

@@ -38,7 +38,7 @@ def run(args: argparse.Namespace) -> int:
     from calib.analysis.compare import Settings, build_comparison, verdict_lines
     from calib.analysis.tablefile import dumps
     from calib.analysis.rows import load_rows
-    from calib.commands.tables import predicate_from
+    from calib.commands.tables import predicate_from, store_defaults
     from calib.errors import InputError
     from calib.outputs import check_target, write_file
     from calib.sweep.store import Store
@@ -47,12 +47,13 @@ def run(args: argparse.Namespace) -> int:
         raise InputError("--resamples", f"must be at least 100, got {args.resamples}", "e.g. --resamples 1000")
     if args.json is not None:
         check_target(args.json, "--json")
-    predicate, confidence = predicate_from(args)
     store = Store.open_existing(args.store)
     try:
         rows = load_rows(store)
         if rows.empty:
             raise InputError(str(store.path), "the store has no trial rows yet", "run `calib run SPEC` first")
+        default, stated, _ = store_defaults(store, rows)  # a predicate that decides something on every kind
+        predicate, confidence = predicate_from(args, default, stated)
         stored = set(rows["projector"])
         for name in (args.projectors or []) + ([] if args.all_pairs else [args.reference]):
             if name not in stored:
@@ -67,8 +68,9 @@ def run(args: argparse.Namespace) -> int:
     if not document["groups"]:
         raise InputError(str(args.store), "no group holds two of the chosen projectors on shared instances",
                          "sweep at least two projectors over the same instances")
-    print("\n".join(verdict_lines(document)))
-    print(document["notice"])
+    from calib.wording import fold
+
+    print(fold(verdict_lines(document) + [document["notice"]]))
     if args.json is not None:
         write_file(args.json, dumps(document), "--json")
         print(f"wrote {args.json}")

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import math
 
 
 def _param(text: str) -> tuple[str, str]:
@@ -51,7 +52,11 @@ def register(subparsers) -> None:
     parser.add_argument("--scope", default="class", choices=("class", "instances"),
                         help="'class' (default): the safe k for the class the measured instances were drawn from; "
                              "'instances': for the instances measured only")
-    parser.add_argument("--projector", required=True, help="projector label as in the table, e.g. gaussian")
+    parser.add_argument("--projector", help="projector label as in the table, e.g. gaussian (default: the table's best "
+                                            "projector for the class: the smallest safe k, then the largest speed-up)")
+    parser.add_argument("--timings", metavar="FILE",
+                        help="timings file (`calib tables --timings`) for the expected speed-up; default: the one "
+                             "beside the table (safe_k.json -> timings.csv, safe_k-points.json -> timings-points.csv)")
     parser.add_argument("--retrieval", help="retrieval method (needed when the table has several)")
     parser.add_argument("--param", type=_param, action="append", default=[], metavar="KEY=VALUE",
                         help="non-size family parameter to pick a class when several share the family (repeatable)")
@@ -60,17 +65,26 @@ def register(subparsers) -> None:
     parser.add_argument("--confidence", type=float, help="confidence of the safe-k rule (default: the table's)")
     parser.add_argument("--k", type=int, help="answer the inverse question: expected success and error at this k")
     parser.add_argument("--json", action="store_true", help="print the answer as JSON")
+    parser.add_argument("--k-only", action="store_true",
+                        help="print only the safe k, or 'none' when no reduction meets the target (for scripts)")
     parser.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.analysis.lookup import answer
-    from calib.atlas import load_table
+    from calib.analysis.lookup import answer, read_timings, timings_beside
+    from calib.atlas import table_path
+    from calib.analysis.tablefile import read_table
 
     query = query_from(args)
-    table = load_table(query.family, args.table)
-    result = answer(table, query, k=args.k, delta=args.delta, confidence=args.confidence)
-    print(json.dumps(result, indent=2, sort_keys=True) if args.json else render(result))
+    path = table_path(query.family, args.table)
+    table = read_table(path)
+    beside = timings_beside(path)
+    timings = read_timings(args.timings) if args.timings else (read_timings(beside) if beside else [])
+    result = answer(table, query, k=args.k, delta=args.delta, confidence=args.confidence, timings=timings)
+    if args.k_only:
+        print("none" if result.get("safe_k") is None or result["safe_k"] >= (result["m"] or math.inf) else result["safe_k"])
+    else:
+        print(json.dumps(result, indent=2, sort_keys=True) if args.json else render(result))
     return 0
 
 
@@ -102,43 +116,74 @@ def _fmt(value, spec: str = ".3g") -> str:
     return "n/a" if value is None else format(value, spec)
 
 
+def _projector_note(answer: dict) -> str:
+    """Which projector answered when none was named, and the others' safe k."""
+    others = answer.get("other_projectors", {})
+    if answer["safe_k"] is None and all(value is None for value in others.values()):
+        return f"; none of the table's projectors reduces it ({', '.join(sorted([answer['projector'], *others]))})"
+    return "; the best projector of the table (others: " + ", ".join(
+        f"{name} {'none' if value is None else value}" for name, value in sorted(others.items())) + ")"
+
+
 def render(answer: dict) -> str:
-    """Human-readable answer of either direction."""
+    """Human-readable answer of either direction: the answer on the first line, then how it was found."""
+    from calib.wording import wrapped
+
     size = f" {answer['size']}" if answer.get("size") else ""
     m = f" m={answer['m']}" if answer.get("m") is not None else ""
-    head = (f"{answer['family']}{size} n={answer['n']}{m} | {answer['projector']} | {answer['retrieval']} | "
-            f"predicate {answer['predicate']} (tau = {answer['tau']})")
-    lines = [head]
-    if answer["note"]:
-        lines.append(f"note: {answer['note']}")
-    if answer["extrapolated"]:
-        lines.append(f"EXTRAPOLATED: {answer['extrapolation']} (measured n {answer['measured_n']})")
+    lines = []
     if "safe_k" in answer:
-        scope = "for the class" if answer["scope"] == "class" else "for the instances measured only"
-        lines.append(f"safe k {scope} = {_fmt(answer['safe_k'], '')}  ({answer['method']}; target {1 - answer['delta']:.3g} "
-                     f"at {answer['confidence']:.0%} confidence; instances per measured size {answer['instances']})")
-        if answer["flag"]:
-            lines.append(f"flag: {answer['flag']}")
-        lines.append(f"logistic model: success reaches {1 - answer['delta']:.3g} at k = {_fmt(answer['k_model'])}"
-                     + (f" ({answer['model_reason']})" if answer["model_reason"] else ""))
+        scope = "the class" if answer["scope"] == "class" else "the instances measured only"
+        lines.append(answer["answer"])
+        lines.append(f"  for {answer['family']}{size} (n = {answer['n']}{', m = ' + str(answer['m']) if answer['m'] else ''})"
+                     + ("" if answer.get("projector_named", True) else _projector_note(answer)))
+        if answer.get("speedup") and answer["speedup"]["where"] != "at this size":
+            lines.append(f"  speed-up {answer['speedup']['where']}")
+        lines.append(f"  how: {answer['method']}"
+                     + (f"; EXTRAPOLATED: {answer['extrapolation']} (measured n {answer['measured_n']})"
+                        if answer["extrapolated"] else ""))
+        lines.append(f"  target: {1 - answer['delta']:.3g} success at {answer['confidence']:.0%} confidence for {scope} "
+                     f"({answer['instances']} instances per measured size), predicate {answer['predicate']} "
+                     f"(tau = {answer['tau']}), retrieval {answer['retrieval']}")
+        if answer["flag"] and answer["safe_k"] is None:
+            lines.append(f"  why: {answer['flag']}")
+        elif answer["flag"] and answer["safe_k"] < (answer["m"] or math.inf):
+            lines.append(f"  flag: {answer['flag']}")
+        if answer["note"]:
+            lines.append(f"  note: {answer['note']}")
         if "policy" in answer:
             policy = answer["policy"]
-            lines.append(f"policy (measured at {policy['from_size']}): "
+            lines.append(f"  policy (measured at {policy['from_size']}): "
                          + (f"k = {policy['k']}, {policy['answer']}" if policy["k"] is not None else policy["answer"]))
+        if answer["k_model"] is not None:
+            lines.append(f"  cross-check: the logistic fit of success on ln k expects {1 - answer['delta']:.3g} success "
+                         f"at k = {_fmt(answer['k_model'])}, a point estimate without a confidence claim; the safe k "
+                         f"is the certified answer")
     else:
         near = answer["nearest_measured"]
         error = answer["error"]
-        lines.append(f"k = {answer['k']}: expected success {_fmt(answer['success'])}"
+        chosen = "" if answer.get("projector_named", True) else " (the best projector of the table)"
+        lines.append(f"k = {answer['k']} with {answer['projector']}{chosen}: expected success {_fmt(answer['success'])}"
                      + (f" ({answer['model_reason']})" if answer["model_reason"] else ""))
-        lines.append(f"measured at {near['size']}, k={near['k']}: rate {near['rate']:.3f}, lower bound "
+        lines.append(f"  {answer['family']}{size} n={answer['n']} | {answer['retrieval']} | predicate {answer['predicate']} "
+                     f"(tau = {answer['tau']})")
+        if answer["note"]:
+            lines.append(f"  note: {answer['note']}")
+        if answer["extrapolated"]:
+            lines.append(f"  EXTRAPOLATED: {answer['extrapolation']} (measured n {answer['measured_n']})")
+        lines.append(f"  measured at {near['size']}, k={near['k']}: rate {near['rate']:.3f}, lower bound "
                      f"{near['lower_bound']:.3f} over {near['trials']} trials")
         if "policy_at_k" in answer:
             point = answer["policy_at_k"]
-            lines.append(f"usable and faster than the fair baseline at {point['size']}, k={point['k']}: {point['successes']} "
+            lines.append(f"  usable and faster than the fair baseline at {point['size']}, k={point['k']}: {point['successes']} "
                          f"trials, lower bound {_fmt(point['lower_bound'])}, median {_fmt(point['time_median_s'])} s against "
                          f"{_fmt(point['baseline_median_s'])} s; policy k there: {_fmt(point['policy_k'], '')}")
         if error["metric"]:
-            lines.append(f"error {error['metric']} at {error['from_size']}: median {_fmt(error['median'])}, "
+            lines.append(f"  error {error['metric']} at {error['from_size']}: median {_fmt(error['median'])}, "
                          f"90th percentile {_fmt(error['q90'])}")
     lines.append("Safe-k tables are empirical evidence, not a proof: check the policy on your own instances (`calib probe`).")
-    return "\n".join(lines)
+    out = []
+    for line in lines:
+        indent = line[:len(line) - len(line.lstrip())]
+        out += wrapped(line.strip(), indent)
+    return "\n".join(out)

@@ -37,7 +37,7 @@ import numpy as np
 
 from calib.errors import InputError
 from calib.theory import counting
-from calib.wording import counted
+from calib.wording import counted, fold, wrapped
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "decision_error", "completion_shortfall",
@@ -69,8 +69,9 @@ def register(subparsers) -> None:
     parser.add_argument("--projector-opt", action="append", default=[], metavar="KEY=VALUE",
                         help="projector option (repeatable), e.g. --projector-opt s=4")
     size = parser.add_mutually_exclusive_group()
-    size.add_argument("--k", type=k_list, metavar="K[,K...]",
-                      help="projected size k, or a comma-separated list (default: half the projected dimension, rounded up)")
+    size.add_argument("--k", type=k_list, nargs="+", metavar="K",
+                      help="projected size k, or several (--k 20 40, or --k 20,40): one block per k (default: half the "
+                           "projected dimension, rounded up)")
     size.add_argument("--find-k", action="store_true",
                       help="search for the smallest k meeting the target rate 1 - --delta at --confidence (trace and verdict)")
     size.add_argument("--eps", type=float, help="distortion eps in (0, 1): k from the bound named by --rule")
@@ -175,12 +176,21 @@ def k_list(text: str) -> list[int]:
     return list(dict.fromkeys(values))
 
 
+def given_ks(values) -> list[int]:
+    """The k values of ``--k`` (each item a :func:`k_list`), in order, without repeats.
+
+    >>> given_ks([[10], [20, 10], [40]])
+    [10, 20, 40]
+    """
+    return list(dict.fromkeys(k for item in values for k in item))
+
+
 def choose_ks(args: argparse.Namespace, m: int, n_points: int) -> list[tuple[int, str]]:
     """[(k, how it was chosen)], one per k of ``--k`` (or the single k of :func:`choose_k`)."""
     if not args.k:
         return [choose_k(args, m, n_points)]
     chosen = []
-    for k in args.k:
+    for k in given_ks(args.k):
         if not 1 <= k <= m:
             raise InputError("--k", f"must lie in 1..{m} (the projected dimension), got {k}", f"pick k between 1 and {m}")
         chosen.append((k, "given"))
@@ -286,7 +296,7 @@ def find_k(args: argparse.Namespace, target: Target, choice, retrievals: list[st
              f"target: success rate >= {confidence.target:g} under {target_text(predicate)}"]
     lines += trace_lines(search, f"success rate >= {confidence.target:g}")
     lines += [f"trials run: {search.trials_read} (seed {args.seed}: the streams of a campaign with root_seed = {args.seed})", NOTICE]
-    print("\n".join(lines))
+    print(fold(lines))
     if args.json is not None:
         from calib.outputs import write_file
 
@@ -357,8 +367,9 @@ def _check_projector(choice, k: int, m: int) -> None:
 def _predicate(args: argparse.Namespace, default_preset: str):
     from calib.commands.tables import predicate_from
 
-    if not 0.0 < args.confidence < 1.0 or not 0.0 < args.delta < 1.0:
-        raise InputError("--confidence/--delta", "must lie in (0, 1)", "e.g. --confidence 0.95 --delta 0.1")
+    for value in (args.confidence, args.delta):
+        if value is not None and not 0.0 < value < 1.0:
+            raise InputError("--confidence/--delta", "must lie in (0, 1)", "e.g. --confidence 0.95 --delta 0.1")
     return predicate_from(args, default_preset)
 
 
@@ -434,35 +445,32 @@ def _field(field: str, value) -> str:
     return _objective(value) if field in OBJECTIVES else _fmt(value)
 
 
+def _unit(field: str) -> str:
+    """The unit of a metric field as printed beside its value (:data:`calib.metrics.FIELDS`).
+
+    >>> _unit("t_sketch"), _unit("obj_error"), _unit("proj_iterations"), _unit("exact")
+    ('s', 'rel.', '', '')
+    """
+    from calib.metrics import FIELDS
+
+    units = FIELDS[field].units if field in FIELDS else ""
+    return {"s": "s", "ratio": "rel."}.get(units, "")
+
+
 def _pairs(record: dict, fields) -> str:
-    return "  ".join(f"{field} {_field(field, record[field])}" for field in fields if record.get(field) is not None)
+    return "  ".join(f"{field} {_field(field, record[field])}" + (f" {_unit(field)}" if _unit(field) else "")
+                     for field in fields if record.get(field) is not None)
 
 
-def render(target: Target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
-           predicate, confidence, baseline=None) -> str:
-    """The human-readable report of a probe."""
-    objective = f", objective {_objective(original.objective)}" if original.ok else ""
-    replicates = sorted({r["replicate"] for r in records})
-    lines = [
-        f"probe: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
-        f"  n and m: {counting(target.kind)}",
-        f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
-        f"projector {choice.label}, k = {k} ({k_label}), {counted(len(replicates), 'replicate')}",
-        "",
-    ]
-    if baseline is not None and target.kind != "points":
-        methods = ", ".join(f"{name} {r.status} {r.seconds:.4g} s" for name, r in baseline.results.items())
-        lines.insert(3, f"fair baseline: {baseline.fastest} ({baseline.seconds:.4g} s), the fastest of: {methods}")
-    for replicate in replicates:
-        rows = [r for r in records if r["replicate"] == replicate]
-        lines.append(f"replicate {replicate}: " + _pairs(rows[0], PROJECTION_FIELDS))
-        width = max(len(r["retrieval"]) for r in rows)
-        lines += [f"  {r['retrieval']:<{width}}  " + (_pairs(r, RETRIEVAL_FIELDS) or "(no point: the projected solve did not succeed)")
-                  for r in rows]
-    projection = summary["projection"]
-    statuses = ", ".join(f"{key} {count}" for key, count in projection["proj_status"].items() if key != "None")
-    lines += ["", "summary (median / max over replicates):", f"  projection: {statuses or 'nothing to solve'}"]
-    lines += _stat_lines(projection["metrics"])
+#: what the units of the replicate lines mean
+UNITS_LINE = ("units: s = seconds; rel. = relative to the instance's own scale (calib.metrics: 0.05 = 5%); "
+              "field names are those of the store and `calib export`")
+
+
+def verdict_lines(target: Target, k: int, summary: dict, predicate, confidence) -> list[str]:
+    """Per retrieval: the success count under ``predicate`` with its bound, against the target; then
+    (optimization kinds) whether it is usable and faster end to end than the fair baseline."""
+    lines = []
     tolerances = predicate.describe()
     for name, entry in summary["retrievals"].items():
         verdict = "meets" if entry["success_lower_bound"] >= 1.0 - confidence.delta else "below"
@@ -473,10 +481,47 @@ def render(target: Target, original, choice, k: int, k_label: str, m: int, recor
             verdict = "usable and faster" if entry["policy_lower_bound"] >= 1.0 - confidence.delta else "no time saved"
             lines.append(f"    policy at k = {k}: {entry['policy_successes']}/{entry['trials']} usable and faster end to end "
                          f"than the fair baseline, lower bound {entry['policy_lower_bound']:.3f}: {verdict} at this k")
+    return lines
+
+
+def render(target: Target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
+           predicate, confidence, baseline=None) -> str:
+    """The human-readable report of a probe: what was probed, the verdict, the summary, then every replicate."""
+    objective = f", objective {_objective(original.objective)}" if original.ok else ""
+    replicates = sorted({r["replicate"] for r in records})
+    lines = [
+        f"probe: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
+        f"  n and m: {counting(target.kind)}",
+        f"original: {original.status}{objective}, {original.iterations} iterations, {original.seconds:.4g} s",
+        f"projector {choice.label}, k = {k} ({k_label}), {counted(len(replicates), 'replicate')}",
+    ]
+    if baseline is not None and target.kind != "points":
+        methods = ", ".join(f"{name} {r.status} {r.seconds:.4g} s" for name, r in baseline.results.items())
+        lines.insert(3, f"fair baseline: {baseline.fastest} ({baseline.seconds:.4g} s), the fastest of: {methods}")
+    lines += ["", f"verdict at k = {k}:"] + verdict_lines(target, k, summary, predicate, confidence)
+    projection = summary["projection"]
+    statuses = ", ".join(f"{key} {count}" for key, count in projection["proj_status"].items() if key != "None")
+    lines += ["", "summary (median / max over replicates):", f"  projection: {statuses or 'nothing to solve'}"]
+    lines += _stat_lines(projection["metrics"])
+    for name, entry in summary["retrievals"].items():
+        lines.append(f"  {name}:")
         lines += _stat_lines(entry["metrics"])
+    lines += ["", "replicate by replicate:", f"({UNITS_LINE})"]
+    for replicate in replicates:
+        rows = [r for r in records if r["replicate"] == replicate]
+        lines += _wrap(f"replicate {replicate}: " + _pairs(rows[0], PROJECTION_FIELDS), "")
+        width = max(len(r["retrieval"]) for r in rows)
+        for r in rows:
+            lines += _wrap(f"{r['retrieval']:<{width}}  " + (_pairs(r, RETRIEVAL_FIELDS)
+                                                             or "(no point: the projected solve did not succeed)"), "  ")
     lines += ["", NOTICE_LINE]
-    return "\n".join(lines)
+    return fold(lines)
+
+
+def _wrap(text: str, indent: str) -> list[str]:
+    return wrapped(text, indent, "      ")
 
 
 def _stat_lines(metrics: dict) -> list[str]:
-    return [f"    {field:<22} {_field(field, stats['median'])} / {_field(field, stats['max'])}" for field, stats in metrics.items()]
+    return [f"    {field:<22} {_field(field, stats['median'])} / {_field(field, stats['max'])}"
+            + (f" {_unit(field)}" if _unit(field) else "") for field, stats in metrics.items()]

@@ -48,13 +48,16 @@ def run(args: argparse.Namespace) -> int:
     if args.dry_run:
         print(dry_run(spec, args))
         return 0
-    from calib.sweep.estimate import check_memory, design_warning, size_plans, skipped_lines
+    from calib.sweep.estimate import check_memory, design_warning, search_warning, size_plans, skipped_lines
     from calib.sweep.runner import run_campaign
     from calib.wording import counted
 
     plans = size_plans(spec)
     if not args.scheduler:  # a cluster's workers have memory of their own
         check_memory(plans)
+    short_cap = search_warning(spec, plans)
+    if short_cap:
+        print(short_cap, file=sys.stderr)
 
     previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
     bar = None if args.quiet else _ProgressBar(spec.name)
@@ -92,6 +95,7 @@ def search_report(spec, cells) -> str:
     """The trace and verdict of every k search of a run, then the evidence notice."""
     from calib.analysis.tables import NOTICE
     from calib.sweep.search import trace_lines
+    from calib.wording import fold
 
     target = spec.target
     rule = target_text(target.predicate)
@@ -100,7 +104,7 @@ def search_report(spec, cells) -> str:
         lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
         lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
     lines.append(NOTICE)
-    return "\n".join(lines)
+    return fold(lines)
 
 
 def target_text(predicate) -> str:

@@ -3,7 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import json
 from pathlib import Path
+
+from calib.wording import fold, wrapped
 
 
 def add_predicate_options(parser: argparse.ArgumentParser) -> None:
@@ -12,7 +15,10 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
     group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
-                       help="'usable' (default; `probe` of a point set defaults to 'distortion'): the verdict matches and "
+                       help="default: a store written by a k search is read under its search's own [target]; otherwise "
+                            "'usable' for LPs, SDPs and QPs and 'distortion' for point sets (every kind gets a predicate "
+                            "that decides something on it). "
+                            "'usable': the verdict matches and "
                             "the point of each retrieval meets --max-obj-error, --max-infeasibility and --max-sign-violation; "
                             "'policy': usable and faster end to end than the original solved by its fastest method; "
                             "'bound': the projected optimum is within --max-gap of the original; "
@@ -26,8 +32,9 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--max-infeasibility", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
     group.add_argument("--max-sign-violation", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
     group.add_argument("--max-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
-    group.add_argument("--delta", type=float, default=0.1, help="target success rate is 1 - delta (default 0.1)")
-    group.add_argument("--confidence", type=float, default=0.95, help="confidence of the lower bound and the intervals (default 0.95)")
+    group.add_argument("--delta", type=float, help="target success rate is 1 - delta (default 0.1, or the k search's own)")
+    group.add_argument("--confidence", type=float,
+                       help="confidence of the lower bound and the intervals (default 0.95, or the k search's own)")
 
 
 def add_analysis_options(parser: argparse.ArgumentParser) -> None:
@@ -49,36 +56,87 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                             "A time limit is always a failure")
 
 
-def predicate_from(args: argparse.Namespace, default_preset: str = "usable"):
-    """(predicate, confidence) from the parsed options; ``default_preset`` when --preset is not given."""
+def predicate_from(args: argparse.Namespace, default="usable", default_confidence=None):
+    """(predicate, confidence) from the parsed options; ``default`` (a preset name or a predicate) when
+    --preset is not given, ``default_confidence`` (else 0.1 at 0.95) for --delta and --confidence not given."""
     from calib.analysis.success import make_predicate
     from calib.analysis.tables import Confidence
 
-    predicate = make_predicate(args.preset or default_preset, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
+    predicate = make_predicate(args.preset or default, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
                                feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion)
-    return predicate, Confidence(delta=args.delta, level=args.confidence)
+    stated = default_confidence or Confidence()
+    return predicate, Confidence(delta=stated.delta if args.delta is None else args.delta,
+                                 level=stated.level if args.confidence is None else args.confidence)
+
+
+def search_spec(raw_spec: dict, store_path):
+    """The parsed spec of a store written by a k search, else None (also when it no longer parses here)."""
+    from calib.errors import InputError
+    from calib.sweep.spec import parse_spec
+
+    k = raw_spec.get("sweep", {}).get("k")
+    if not (isinstance(k, dict) and "search" in k):
+        return None
+    try:
+        return parse_spec(raw_spec, source=str(store_path))
+    except InputError:
+        return None
+
+
+def store_defaults(store, rows) -> tuple:
+    """(default predicate, default confidence, parsed search spec or None) of a store: a k search's
+    own [target], else :func:`calib.analysis.success.default_predicate` of the kinds it holds."""
+    from calib.analysis.success import default_predicate
+    from calib.analysis.tables import Confidence
+
+    spec = search_spec(store.stored_spec(), store.path)
+    if spec is not None:
+        return spec.target.predicate, Confidence(spec.target.delta, spec.target.confidence), spec
+    return default_predicate(set(rows["kind"]) if not rows.empty else set()), Confidence(), None
+
+
+def search_verdicts(spec, store):
+    """The store's k searches replayed (:func:`calib.sweep.runner.replay_searches`) as the
+    :class:`calib.analysis.tables.SearchVerdicts` a table states for the searched cells."""
+    from calib.analysis.tables import Confidence, SearchVerdicts
+    from calib.sweep.runner import replay_searches
+
+    cells = replay_searches(spec, store)
+    verdicts = {}
+    for cell in cells:
+        search = cell.search
+        verdict = (search.safe_k, search.reason) if search.done and not cell.interrupted else \
+            (None, cell.interrupted or "search not finished")
+        for ref in cell.refs:
+            verdicts[(ref.instance_id, cell.projector.label, cell.retrieval)] = verdict
+    target = spec.target
+    return SearchVerdicts(target.predicate, Confidence(target.delta, target.confidence), verdicts), cells
 
 
 def analyse(args: argparse.Namespace, policy: bool = False):
-    """(table, tidy rows, stored spec) of ``args.store`` under the parsed analysis options; the policy
-    answer is added when ``policy`` or ``--policy`` asks for it."""
+    """(table, tidy rows, stored spec, replayed searches or None) of ``args.store`` under the parsed analysis
+    options (defaults from the store: :func:`store_defaults`); a store written by a k search states the
+    searches' claims in the analysis of their own rule; the policy answer is added when ``policy`` or
+    ``--policy`` asks for it."""
     from calib.analysis.tables import build_table, load_rows
     from calib.errors import InputError
     from calib.sweep.store import Store
 
-    predicate, confidence = predicate_from(args)
     if args.eps is not None and not 0.0 < args.eps < 1.0:
         raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")
     store = Store.open_existing(args.store)
     try:
         rows = load_rows(store)
+        default, stated, searched = store_defaults(store, rows)
+        predicate, confidence = predicate_from(args, default, stated)
+        verdicts, cells = search_verdicts(searched, store) if searched is not None else (None, None)
         table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows,
                             solver_errors=getattr(args, "solver_errors", "exclude"),
-                            policy=policy or getattr(args, "policy", False))
+                            policy=policy or getattr(args, "policy", False), searches=verdicts)
         spec = store.stored_spec()
     finally:
         store.close()
-    return table, rows, spec
+    return table, rows, spec, (searched, cells) if searched is not None else None
 
 
 def register(subparsers) -> None:
@@ -94,6 +152,9 @@ def register(subparsers) -> None:
     parser.add_argument("--json", type=Path, metavar="FILE", help="write the table as JSON (schema: calib/schemas/safe-k-table.v3.json)")
     parser.add_argument("--csv", type=Path, metavar="FILE", help="write the table as CSV (one line per tolerance, cell and k)")
     parser.add_argument("--timings", type=Path, metavar="FILE", help="write the median times and speed-ups per cell and k as CSV")
+    parser.add_argument("--html", type=Path, metavar="FILE",
+                        help="also write the HTML report (as `calib report`) from this same analysis, so the report and "
+                             "the table agree")
     parser.add_argument("--rule", type=Path, metavar="FILE",
                         help="write the certified rule per class (k = f m, k = a + C ln n, scope, confidence, the size and "
                              "feature ranges it holds for) as JSON for pipelines (schema: calib/schemas/k-rule.v1.json); "
@@ -103,85 +164,103 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from calib.analysis.tables import write_table
+    from calib.analysis.tables import strip_policy, write_table
     from calib.analysis.timing import timing_frame, write_timings
     from calib.outputs import check_target
 
-    rule = getattr(args, "rule", None)
-    for path, option in ((args.json, "--json"), (args.csv, "--csv"), (args.timings, "--timings"), (rule, "--rule")):
+    for path, option in ((args.json, "--json"), (args.csv, "--csv"), (args.timings, "--timings"), (args.html, "--html"),
+                         (args.rule, "--rule")):
         check_target(path, option)
-    table, rows, spec = analyse(args)
-    write_table(table, args.json, args.csv)
+    # one analysis for the table and the report: the report needs the policy answer, the table holds it
+    # only when asked (it rests on measured times)
+    table, rows, spec, searched = analyse(args, policy=args.html is not None)
+    timings = timing_frame(rows, table["analyses"][0])
+    written = table if args.policy else strip_policy(table)
+    write_table(written, args.json, args.csv)
     if args.timings is not None:
-        write_timings(timing_frame(rows, table["analyses"][0]), args.timings)
-    if rule is not None:
+        write_timings(timings, args.timings)
+    if args.html is not None:
+        from calib.analysis.report import build_report
+        from calib.outputs import write_file
+
+        write_file(args.html, build_report(table, timings, spec), "--html")
+    if args.rule is not None:
         from calib.analysis.rulefile import write_rules
 
-        write_rules(table, rule)
-    print(render_summary(table))
-    searched = search_summary(args.store, spec)
-    if searched:
-        print(searched)
-    for path in (args.json, args.csv, args.timings, rule):
+        write_rules(written, args.rule)
+    print(render_summary(written, timings))
+    if searched is not None:
+        print(search_summary(*searched))
+    for path in (args.json, args.csv, args.timings, args.html, args.rule):
         if path is not None:
             print(f"wrote {path}")
     return 0
 
 
-def search_summary(store_path, raw_spec: dict) -> str:
+def search_summary(spec, cells) -> str:
     """For a store written by a k search: the k values above are the ones the search tested, and its own
-    verdicts (replayed from the stored trials under the spec's [target]) follow; "" otherwise."""
+    verdicts (replayed from the stored trials under the spec's [target]) follow."""
     from calib.commands.run import search_report
-    from calib.errors import InputError
-    from calib.sweep.runner import replay_searches
-    from calib.sweep.spec import parse_spec
-    from calib.sweep.store import Store
 
-    k = raw_spec.get("sweep", {}).get("k")
-    if not (isinstance(k, dict) and "search" in k):
-        return ""
-    try:
-        spec = parse_spec(raw_spec, source=str(store_path))
-    except InputError as error:
-        return f"\n(this store's k values come from a k search; its verdicts cannot be replayed here: {error})"
-    store = Store.open_existing(store_path)
-    try:
-        cells = replay_searches(spec, store)
-    finally:
-        store.close()
-    return ("\nthe k values above are those a k search tested (counts per tested k); the search itself, "
-            "replayed from the stored trials:\n" + search_report(spec, cells))
+    return "\n" + fold(["the k values above are those a k search tested (counts per tested k); the table states the "
+                        "search's own claims under its [target]; the search itself, replayed from the stored trials:"]
+                       + search_report(spec, cells).splitlines())
 
 
-def _transition_text(transition: dict) -> str:
+def _transition_text(transition: dict, rate: float) -> str:
     if transition["k50"] is None:
         return f"no logistic fit: {transition['reason']}"
     low, high = transition["k50_interval"]
-    return (f"k50 = {transition['k50']:.3g} [{low:.3g}, {high:.3g}], k at target = {transition['k_target']:.3g} "
-            f"(intervals for {transition['interval_scope']})")
+    return (f"logistic fit: k50 = {transition['k50']:.3g} [{low:.3g}, {high:.3g}]; it reaches {rate:.0%} success at "
+            f"k = {transition['k_target']:.3g} (the fit's point estimate, no confidence claim: the safe k above is the "
+            f"certified answer); intervals for {transition['interval_scope']}")
 
 
 def _fit_text(name: str, fit: dict, eps: str = "") -> str:
+    from calib.analysis.law import law_formula
+
     censored = f"; {fit['censored']} censored size(s) not fitted" if fit["censored"] else ""
     if fit["a"] is None:
-        return f"  {name} law: {fit['reason']}"
-    se = f" ± {fit['C_se']:.3g}" if fit["C_se"] is not None else ""
-    return f"  {name} law: k = {fit['a']:.3g} + {fit['C']:.3g}{se} ln n over n in [{fit['n_min']}, {fit['n_max']}]{censored}{eps}"
+        return f"{name} law: {fit['reason']}"
+    return (f"{name} law: {law_formula(fit['a'], fit['C'], fit['C_se'])} over n in [{fit['n_min']}, {fit['n_max']}]"
+            f"{censored}{eps}")
 
 
-def _law_text(law: dict) -> str:
+def _law_lines(law: dict) -> list[str]:
     rules = ", ".join(f"{name} C = {rule['C']:.4g}" for name, rule in law["theory"]["rules"].items())
     eps = f" (bounds at eps = {law['theory']['eps']:g}: {rules})" if law["theory"]["eps"] is not None else ""
-    lines = [_fit_text("class safe k", law["class_safe_k_law"]),
-             _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])]
+    lines = []
+    for text in (_fit_text("class safe k", law["class_safe_k_law"]),
+                 _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])):
+        lines += wrapped(text, "  ")
     rule = law.get("policy_rule")
     if rule and rule["grid"] and not law.get("rules"):  # else said at both scopes below
-        lines.append(f"  policy rule {rule['rule']}: {rule['statement']}")
+        lines += wrapped(f"policy rule {rule['rule']}: {rule['statement']}", "  ")
         if rule["failing"]:
-            lines.append(f"    {rule['unit']}s below the target at f = {rule['failing_at']:g}: {', '.join(rule['failing'])}")
+            lines += wrapped(f"{rule['unit']}s below the target at f = {rule['failing_at']:g}: {', '.join(rule['failing'])}",
+                             "    ")
     for swept in law.get("rules", []):
         lines += swept_rule_lines(swept)
-    return "\n".join(lines)
+    return lines
+
+
+def swept_rule_lines(swept: dict) -> list[str]:
+    """The rule of the swept grid at both scopes: these units, then the class."""
+    mine, klass = swept["instances"], swept["class"]
+    lines = wrapped(f"rule {swept['rule']}, these {mine['units']} {swept['unit']}s: {mine['statement']}", "  ")
+    lines += wrapped(f"{mine['trials_per_unit']} trials per {swept['unit']} at each value; "
+                     f"{mine['trials_per_unit_needed']} needed when all succeed (set replicates)", "    ")
+    if mine["value"] is None and mine["failing"]:
+        lines += wrapped(f"{swept['unit']}s below the target at {swept['coefficient']} = {mine['failing_at']:g}: "
+                         f"{', '.join(mine['failing'])}", "    ")
+    lines += wrapped(f"rule {swept['rule']}, the class: {klass['statement'] or klass['reason']}", "  ")
+    return lines
+
+
+def _k_text(k, m: int) -> str:
+    if k is None:
+        return "none"
+    return f"{k} (k = m: no reduction)" if k >= m else f"{k} (k/m = {k / m:.2f})"
 
 
 def swept_rule_lines(swept: dict) -> list[str]:
@@ -199,38 +278,66 @@ def swept_rule_lines(swept: dict) -> list[str]:
 
 def scope_lines(entry: dict) -> list[str]:
     """The class answer first (the default), then the answer for the instances measured."""
-    klass = entry["class"]
-    class_k = klass["safe_k"] if klass["safe_k"] is not None else "none"
-    safe = entry["safe_k"] if entry["safe_k"] is not None else "none"
-    return [f"class safe k = {class_k}" + (f"  [{klass['reason']}]" if klass["reason"] else ""),
-            f"for these {entry['instances']} instance(s) only: safe k = {safe}"
+    klass, m = entry["class"], entry["projected_dim"]
+    return [f"class safe k = {_k_text(klass['safe_k'], m)}" + (f"  [{klass['reason']}]" if klass["reason"] else ""),
+            f"for these {entry['instances']} instance(s) only: safe k = {_k_text(entry['safe_k'], m)}"
             + (f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else "")]
 
 
-def render_summary(table: dict) -> str:
-    """A plain-text view: per tolerance, one block per cell (one line per k), then the laws."""
+def ladder_note(table: dict, analysis: dict) -> str:
+    """Whether the other tolerances of the ladder give the same class answers as ``analysis``."""
+    others = [other for other in table["analyses"] if other is not analysis and other["tau"] is not None]
+    if not others:
+        return ""
+
+    def answers(item: dict) -> dict:
+        return {(e["family"], e["size"], json.dumps(e["params"], sort_keys=True), e["projector"], e["retrieval"]):
+                e["class"]["safe_k"] for e in item["entries"]}
+
+    mine = answers(analysis)
+    parts = []
+    for other in others:
+        differ = sum(mine.get(key, "missing") != value for key, value in answers(other).items())
+        parts.append(f"tau = {other['tau']:g}: " + ("the same class safe k in every cell" if not differ else
+                                                   f"{differ} cell(s) differ (blocks below)"))
+    return "At the other tolerances of the ladder: " + "; ".join(parts) + "."
+
+
+def render_summary(table: dict, timings=None) -> str:
+    """A plain-text view: the one-screen answer (:mod:`calib.analysis.summary`) of the first (strictest)
+    analysis, then per tolerance one block per cell (sizes in numeric order, one line per k) and the laws."""
     from calib.analysis.policy import policy_text
+    from calib.analysis.summary import entry_order, summary_text
     from calib.analysis.tables import class_labels
 
     target = table["target"]
+    first = table["analyses"][0]
     lines = [f"campaign {table['campaign']['name']}: target rate {target['success_rate']:.2f} at "
-             f"{target['confidence']:.0%} confidence"]
+             f"{target['confidence']:.0%} confidence", ""]
+    if first["entries"]:
+        lines.append(summary_text(table, first, timings, class_labels(first)))
+        lines += wrapped(ladder_note(table, first), "", "")
+    lines.append("")
+    lines += wrapped("The details follow: per tolerance, one block per cell (its answer in both scopes, the fit and "
+                     "every tested k), then the laws across sizes.", "", "")
     for analysis in table["analyses"]:
         lines.append(f"\n=== predicate {analysis['predicate']['name']} (tau = {analysis['tau']})")
         for excluded in analysis["excluded"]:
-            lines.append(f"  left out {excluded['family']}: {excluded['reason']}")
+            lines += wrapped(f"left out {excluded['family']}: {excluded['reason']}", "  ")
         label = class_labels(analysis)
-        for entry in analysis["entries"]:
+        for entry in sorted(analysis["entries"], key=lambda item: entry_order(item, label(item))):
             extra = label(entry)
-            lines.append(f"\n{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | {entry['retrieval']} | "
-                         f"m={entry['projected_dim']} n={entry['n_points']}, {entry['instances']} instance(s)")
-            lines += [f"   {line}" for line in scope_lines(entry)]
-            lines.append(f"   {_transition_text(entry['transition'])}")
+            lines.append("")
+            lines += wrapped(f"{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | "
+                             f"{entry['retrieval']} | m={entry['projected_dim']} n={entry['n_points']}, "
+                             f"{entry['instances']} instance(s)", "")
+            for text in scope_lines(entry) + [_transition_text(entry["transition"], target["success_rate"])]:
+                lines += wrapped(text)
             if "policy" in entry:
-                lines.append(f"   {policy_text(entry)}")
+                lines += wrapped(policy_text(entry))
             if entry["solver_errors"]:
-                lines.append(f"   {entry['solver_errors']} projected solve(s) ended in a solver error: "
-                             + ("left out of the rates" if table["target"]["solver_errors"] == "exclude" else "counted as failures"))
+                lines += wrapped(f"{entry['solver_errors']} projected solve(s) ended in a solver error: "
+                                 + ("left out of the rates" if target["solver_errors"] == "exclude" else "counted as failures"))
             for point in entry["grid"]:
                 mark = "pass" if point["passes"] else "fail"
                 klass = "pass" if point["class_passes"] else "fail"
@@ -240,6 +347,7 @@ def render_summary(table: dict) -> str:
         for law in analysis["laws"]:
             extra = label(law)
             lines.append(f"\n{law['family']}{' ' + extra if extra else ''} | {law['projector']} | {law['retrieval']}")
-            lines.append(_law_text(law))
-    lines.append("\n" + table["notice"])
+            lines += _law_lines(law)
+    lines.append("")
+    lines += wrapped(table["notice"], "", "")
     return "\n".join(lines)

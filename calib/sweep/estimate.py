@@ -17,6 +17,7 @@ would (more replicates for an instances-only claim, more instances for the class
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Optional
 
@@ -190,6 +191,8 @@ def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
     folder, with the files as its units (:func:`file_advice`)."""
     from calib.analysis.scope import advice_text, design_advice
 
+    if spec.k_grid.is_search:
+        return search_advice_lines(spec, plans)
     lines = [f"design (target {ADVICE_TARGET:.0%} success at {ADVICE_CONFIDENCE:.0%} confidence, the defaults of "
              f"`calib tables`):"]
     for plan in plans:
@@ -203,11 +206,55 @@ def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
     return lines
 
 
+def search_need(spec: Spec, plan: SizePlan):
+    """The :class:`calib.sweep.search.CapNeed` of the k search of one size of a search spec."""
+    from calib.sweep.search import cap_need
+
+    return cap_need(plan.ks[0], plan.ks[-1], spec.target.rate, spec.target.confidence, spec.k_grid.step)
+
+
+def search_advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
+    """Per size of a k search: whether its cap of trials per k (instances x replicates) lets a k pass
+    the search's own looks, and the replicates it needs when not; then what the class scope of the
+    table made from the store can certify."""
+    from calib.analysis.scope import design_advice
+    from calib.sweep.search import cap_text
+
+    target, level = spec.target, f"{spec.target.rate:.0%} at {spec.target.confidence:.0%}"
+    lines = [f"design (the k search's target: {level}):"]
+    for plan in plans:
+        need, cap = search_need(spec, plan), plan.instances * spec.replicates
+        if cap < need.trials:
+            replicates = math.ceil(need.trials / plan.instances)
+            search = f"the k search cannot pass any k: {cap_text(need, cap)}: use replicates = {replicates}"
+        else:
+            search = (f"the k search can pass a k (cap {cap} trials per k; its bisection's look at level "
+                      f"{need.bisection_level:.4g} needs {need.bisection} successes in a row, the walk's at "
+                      f"{need.walk_level:.4g} {need.walk})")
+        advice = design_advice(plan.instances, spec.replicates, target.rate, target.confidence)
+        klass = (f"the class: can certify {level}" if advice["class_sure"] else
+                 f"the class: sure only with {advice['needed']} instances (add {advice['instances_to_add']})")
+        lines.append(f"  {plan.label}: {search}; {klass}")
+    return lines
+
+
+def search_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
+    """One line when the cap of some searched size is too small for any k to pass, else None."""
+    if not spec.k_grid.is_search:
+        return None
+    short = [(plan, search_need(spec, plan)) for plan in plans
+             if plan.instances * spec.replicates < search_need(spec, plan).trials]
+    if not short:
+        return None
+    plan, need = short[0]
+    return (f"warning: {len(short)} of {counted(len(plans), 'size')} cannot pass any k of their search: "
+            f"{plan.label}: the cap of {plan.instances * spec.replicates} trials per k is below the {need.trials} "
+            f"a pass needs; use replicates = {math.ceil(need.trials / plan.instances)} (`calib run --dry-run`)")
+
+
 def _file_text(instances: int, replicates: int, files: int) -> str:
     """Whether instances x replicates trials per k of each of ``files`` files can certify the target on
     every file (a file is one problem: more trials are more replicates)."""
-    import math
-
     from calib.analysis.classrule import trials_per_unit_needed
 
     needed = trials_per_unit_needed(files, ADVICE_TARGET, ADVICE_CONFIDENCE)

@@ -214,6 +214,56 @@ def max_looks(low: int, high: int, step: int = 1) -> int:
     return 2 + math.ceil(math.log2(lattice_count(low, high, step)))
 
 
+def all_pass_trials(rate: float, alpha: float) -> int:
+    """The fewest trials, all successes, after which a k passes a look at error ``alpha``: the
+    smaller of the confidence sequence's first possible pass and the Clopper–Pearson look at a cap
+    of that many trials (n of n passes when alpha^(1/n) >= rate, i.e. n >= ln alpha / ln rate).
+
+    >>> all_pass_trials(0.9, 0.05)   # the grid's 29 of 29 at 95% confidence
+    29
+    >>> all_pass_trials(0.9, 0.04)   # the walk down at 0.96
+    31
+    """
+    fixed = math.ceil(math.log(alpha) / math.log(rate) - 1e-12)
+    sequence = trials_before_decision(0, 0, rate, alpha, fixed, ("pass",))
+    passes, _ = first_decision([True] * sequence, rate, alpha, ("pass",))
+    return sequence if passes == "pass" else fixed
+
+
+@dataclass(frozen=True)
+class CapNeed:
+    """What a search's cap of trials per k must reach for a k to pass at all (every trial a success)."""
+
+    bisection: int      # trials for a bisection look to pass (level 1 - alpha / 2)
+    walk: int           # trials for a look of the walk down to pass (level 1 - walk alpha)
+    bisection_level: float
+    walk_level: float
+
+    @property
+    def trials(self) -> int:
+        """The cap a search needs: the bisection must pass its high end before the walk can start."""
+        return max(self.bisection, self.walk)
+
+
+def cap_need(low: int, high: int, rate: float, confidence: float, step: int = 1) -> CapNeed:
+    """The trials per k a search on [low, high] needs before any k can pass (:class:`CapNeed`).
+
+    >>> need = cap_need(4, 300, 0.9, 0.95)   # 11 bisection looks: level 1 - 0.01 / 11 / 2
+    >>> need.bisection, need.walk, round(need.bisection_level, 5)
+    (74, 31, 0.99955)
+    """
+    search = KSearch(low, high, rate, confidence, cap=1, step=step)
+    alpha = search.alpha / 2
+    return CapNeed(all_pass_trials(rate, alpha), all_pass_trials(rate, search.walk_alpha), 1 - alpha, 1 - search.walk_alpha)
+
+
+def cap_text(need: CapNeed, cap: int) -> str:
+    """Why a cap of ``cap`` trials per k cannot pass a k, and the change that would (for verdicts and the dry run)."""
+    return (f"the cap of {cap} trials per k is too small: a k passes the bisection's look (level "
+            f"{need.bisection_level:.4g}) only after {need.bisection} successes in a row; give at least "
+            f"{need.trials} trials per k (instances x replicates)")
+
+
 @dataclass
 class Step:
     """One tested k: trials read, successes, the bounds and the verdict, and the phase that tested it."""
@@ -300,7 +350,11 @@ class KSearch:
 
     def _next_k(self) -> Optional[int]:
         if self._passing is None:
-            self.reason = f"the high end k = {self.high} does not reach the target: widen the range"
+            need = cap_need(self.low, self.high, self.rate, self.confidence, self.step)
+            if self.cap < need.bisection:
+                self.reason = cap_text(need, self.cap)
+            else:
+                self.reason = f"the high end k = {self.high} does not reach the target: widen the range"
             return None
         if self._failing is None:
             if self.low == self.high or self._passing == self.low:
