@@ -85,9 +85,10 @@ def load_table(family: str, table: Union[str, Path, None] = None) -> dict:
     return read_table(table_path(family, table))
 
 
-def safe_k(family: str, size: dict, projector: Optional[str] = None, retrieval: Optional[str] = None, scope: str = "class",
-           table: Union[str, Path, None] = None, params: Optional[dict] = None, tau: Optional[float] = None,
-           delta: Optional[float] = None, confidence: Optional[float] = None) -> dict:
+def safe_k(family: str, size: Optional[dict] = None, projector: Optional[str] = None, retrieval: Optional[str] = None,
+           scope: str = "class", table: Union[str, Path, None] = None, params: Optional[dict] = None,
+           tau: Optional[float] = None, delta: Optional[float] = None, confidence: Optional[float] = None,
+           mps: Union[str, Path, None] = None, force: bool = False) -> dict:
     """The safe k for a problem of ``family`` at ``size`` sketched by ``projector``, as ``calib lookup`` answers it.
 
     Parameters
@@ -96,7 +97,14 @@ def safe_k(family: str, size: dict, projector: Optional[str] = None, retrieval: 
         a registered family name as in the table, e.g. ``"lp-quantile"``.
     size : dict
         the size in the family's own keys, e.g. ``{"rows": 2000, "features": 5}``; n (the JL point
-        count) and the projected dimension m follow from the family's rules.
+        count) and the projected dimension m follow from the family's rules. The fit check compares
+        a fresh instance of the class at that size with the instances behind the answer.
+    mps : path, optional
+        instead of ``size``: the user's LP in an MPS file; its own features are checked against the
+        class's (:mod:`calib.analysis.modelfit`), and the answer is withheld (``safe_k`` None,
+        ``withheld`` True, the reason in ``flag``) when it lies outside them.
+    force : bool
+        show the class's answer even for a model outside the measured structure (flagged).
     projector : str, optional
         projector label as in the table, e.g. ``"countsketch"``; default: the table's best projector for
         the class (the smallest safe k, then the largest measured speed-up), the others' safe k in
@@ -121,18 +129,26 @@ def safe_k(family: str, size: dict, projector: Optional[str] = None, retrieval: 
         ``extrapolated``, ``law``, ``measured_n``, ``speedup`` (the measured speed-up at the answered k
         from the timings file beside the table, or None), ``k_model`` and the rest.
     """
-    from calib.analysis.lookup import Query, answer, read_timings, size_of, timings_beside
+    from calib.analysis import modelfit
+    from calib.analysis.lookup import Query, answer, read_timings, size_of, size_of_mps, timings_beside
     from calib.analysis.tablefile import read_table
 
     import json
 
     texts = {key: value if isinstance(value, str) else json.dumps(value) for key, value in (params or {}).items()}
-    n, m, label = size_of(family, size, texts)
+    if mps is not None:
+        n, m, label = size_of_mps(mps)
+        model = modelfit.mps_model(mps)
+    elif size is not None:
+        n, m, label = size_of(family, size, texts)
+        model = modelfit.size_request(family, size, texts)
+    else:
+        raise InputError("safe_k", "no model given", "give size={...} in the family's keys or mps=FILE")
     query = Query(family, n, projector, retrieval, texts, tau, m, scope, label)
     path = table_path(family, table)
     beside = timings_beside(path)
     return answer(read_table(path), query, delta=delta, confidence=confidence,
-                  timings=read_timings(beside) if beside else [])
+                  timings=read_timings(beside) if beside else [], model=model, force=force)
 
 
 def rule_k(rules: Union[str, Path], projector: str, mps: Union[str, Path, None] = None, features: Optional[dict] = None,

@@ -83,8 +83,9 @@ def spectral_norm(matrix) -> float:
     return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
 
 
-def matrix_features(matrix) -> dict:
-    """The features of one m x N matrix (module docstring); JSON-ready.
+def matrix_features(matrix, svd_flops: Optional[float] = None) -> dict:
+    """The features of one m x N matrix (module docstring); JSON-ready. ``svd_flops`` is the largest
+    m N min(m, N) for which rank and row coherence are computed (default :data:`SVD_FLOPS`, read at the call).
 
     >>> f = matrix_features(np.array([[1.0, 0.0], [0.0, 1.0], [0.0, 0.0], [0.0, 0.0]]))
     >>> f["rank"], f["stable_rank"], f["row_coherence"], f["nonzeros"]
@@ -97,7 +98,7 @@ def matrix_features(matrix) -> dict:
                 "row_coherence": None, "skipped": ""}
     if frobenius == 0.0:
         return features | {"rank": 0, "skipped": "the matrix is zero"}
-    if m * n * min(m, n) > SVD_FLOPS:
+    if m * n * min(m, n) > (SVD_FLOPS if svd_flops is None else svd_flops):
         norm = spectral_norm(matrix)
         return features | {"stable_rank": round(frobenius ** 2 / norm ** 2, 6),
                            "skipped": f"rank and row coherence: a thin SVD of {m} x {n} exceeds the cheap budget"}
@@ -109,9 +110,9 @@ def matrix_features(matrix) -> dict:
                        "row_coherence": round(float(m / rank * leverage.max()), 6)}
 
 
-def instance_features(kind: str, problem) -> dict:
+def instance_features(kind: str, problem, svd_flops: Optional[float] = None) -> dict:
     """The features of an instance's sketched matrix (module docstring)."""
-    return matrix_features(SKETCHED[kind](problem))
+    return matrix_features(SKETCHED[kind](problem), svd_flops)
 
 
 #: the numeric features a table entry summarises (median over the cell's instances)

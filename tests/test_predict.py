@@ -100,3 +100,15 @@ def test_a_measured_family_gets_a_prediction_with_its_leave_one_size_out_error(t
     factor = 1 + predict.assess(tables)["responses"]["safe_k"]["size"]["per_class"]["lp-basis-pursuit"]
     assert entry["class"]["safe_k"] / factor <= answer["value"] <= entry["class"]["safe_k"] * factor
     assert answer["reason"].startswith("predicted, typical error ±")
+
+
+def test_the_readme_quotes_the_figures_the_predictor_reports(tables):
+    readme = (ATLAS.parent.parent / "README.md").read_text()
+    section = readme[readme.index("### A k predicted from features"):readme.index("### A folder of your own models")]
+    for response in predict.RESPONSES:
+        block = predict.assess(tables)["responses"][response]
+        for split in ("family", "size"):
+            assert f"±{block[split]['typical_error'] * 100:.0f}%" in section
+            for klass, value in block[split]["per_class"].items():
+                assert f"{klass} ±{value * 100:.0f}%" in section
+        assert f"{block['cells']} ({block['censored']})" in section

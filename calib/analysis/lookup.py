@@ -35,6 +35,7 @@ from typing import Optional
 import numpy as np
 
 from calib.analysis.law import fit_law
+from calib.analysis.modelfit import resolved_size
 from calib.analysis.saferule import Confidence, censored_law, censoring, class_namer, safe_k_rule
 from calib.errors import InputError
 
@@ -67,29 +68,13 @@ class Query:
             raise InputError("--scope", f"unknown scope {self.scope!r}", f"choose one of {', '.join(SCOPES)}")
 
 
-def _value(text: str):
-    """A KEY=VALUE value as JSON when it parses (numbers, booleans), else the text itself."""
-    try:
-        return json.loads(text)
-    except (TypeError, ValueError):
-        return text
-
-
 def size_of(family_name: str, size: dict, params: Optional[dict] = None) -> tuple[int, int, str]:
     """(n, m, size label) of a size given in the family's own keys, by the family's own rules.
 
     >>> size_of("lp-planted", {"rows": "2000", "cols": "4000"})
     (4001, 2000, 'rows=2000,cols=4000')
     """
-    from calib.families import get
-
-    family = get(family_name, "--family")
-    unknown = sorted(set(size) - set(family.size_keys))
-    if unknown:
-        raise InputError("--size", f"{unknown[0]!r} is not a size key of {family_name}",
-                         f"give {', '.join(family.size_keys)} (other parameters go in --param)")
-    given = {key: _value(value) if isinstance(value, str) else value for key, value in {**(params or {}), **size}.items()}
-    full = family.resolve(given, "--size")
+    family, full = resolved_size(family_name, size, params)
     return int(family.n_points(full)), int(family.projected_dim(full)), family.size_label(full)
 
 
@@ -378,11 +363,25 @@ def none_flag(answers: list[tuple[Optional[int], str]], law, measured_reason: Op
 
 
 def answer(table: dict, query: Query, k: Optional[int] = None, delta: Optional[float] = None,
-           confidence: Optional[float] = None, timings: Optional[list] = None) -> dict:
+           confidence: Optional[float] = None, timings: Optional[list] = None, model: Optional[dict] = None,
+           force: bool = False, check: bool = True) -> dict:
     """The answer of ``calib lookup``: :func:`success_for` at ``k`` when given, else :func:`k_for` at the
     target 1 - ``delta`` and ``confidence`` (each defaulting to the table's), with the expected speed-up
     from ``timings`` (rows of the table's timings file, :func:`speedup_at`). Without a projector in the
-    query, the best projector of the table answers (:func:`best_projector`)."""
+    query, the best projector of the table answers (:func:`best_projector`). A k answer carries the fit
+    check of the user's ``model`` (:mod:`calib.analysis.modelfit`): withheld outside the measured
+    structure unless ``force``."""
+    if check:
+        found = answer(table, query, k, delta, confidence, timings, check=False)
+        if "safe_k" not in found:
+            return found
+        from dataclasses import replace
+
+        from calib.analysis.modelfit import checked
+
+        analysis, _ = select_analysis(table, query.tau)
+        entries = class_entries(analysis, replace(query, projector=found["projector"]))
+        return checked(found, entries, model, force, table)
     if query.projector is None:
         return best_projector(table, query, k, delta, confidence, timings)
     if k is not None:
@@ -415,10 +414,11 @@ def best_projector(table: dict, query: Query, k: Optional[int], delta: Optional[
     names = class_projectors(analysis, query)
     if not names:
         class_entries(analysis, query)  # raises the "no entries" error with what the table offers
-    found = {name: answer(table, replace(query, projector=name), None, delta, confidence, timings) for name in names}
+    found = {name: answer(table, replace(query, projector=name), None, delta, confidence, timings, check=False)
+             for name in names}
     best = min(found.values(), key=_rank)
     if k is not None:
-        best = answer(table, replace(query, projector=best["projector"]), k, delta, confidence, timings)
+        best = answer(table, replace(query, projector=best["projector"]), k, delta, confidence, timings, check=False)
     best = dict(best, projector_named=False,
                 other_projectors={name: other.get("safe_k") for name, other in found.items()
                                   if name != best["projector"]})

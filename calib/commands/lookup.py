@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+from typing import Optional
 
 
 def _param(text: str) -> tuple[str, str]:
@@ -65,6 +66,9 @@ def register(subparsers) -> None:
     parser.add_argument("--confidence", type=float, help="confidence of the safe-k rule (default: the table's)")
     parser.add_argument("--k", type=int, help="answer the inverse question: expected success and error at this k")
     parser.add_argument("--json", action="store_true", help="print the answer as JSON")
+    parser.add_argument("--force", action="store_true",
+                        help="show the class's answer even when the model lies outside the structure of the instances "
+                             "behind it (the fit check: rank, stable rank, row coherence, density, aspect; flagged)")
     parser.add_argument("--k-only", action="store_true",
                         help="print only the safe k, or 'none' when no reduction meets the target (for scripts)")
     parser.set_defaults(func=run)
@@ -80,7 +84,9 @@ def run(args: argparse.Namespace) -> int:
     table = read_table(path)
     beside = timings_beside(path)
     timings = read_timings(args.timings) if args.timings else (read_timings(beside) if beside else [])
-    result = answer(table, query, k=args.k, delta=args.delta, confidence=args.confidence, timings=timings)
+    model = None if args.k is not None else model_from(args, query)
+    result = answer(table, query, k=args.k, delta=args.delta, confidence=args.confidence, timings=timings,
+                    model=model, force=args.force)
     if args.k_only:
         print("none" if result.get("safe_k") is None or result["safe_k"] >= (result["m"] or math.inf) else result["safe_k"])
     else:
@@ -110,6 +116,20 @@ def query_from(args: argparse.Namespace):
     if args.m is not None and args.n is None:
         raise InputError("--m", "goes with --n only", "the other size options compute m themselves")
     return Query(family, n, args.projector, args.retrieval, params, args.tau, m, args.scope, label)
+
+
+def model_from(args: argparse.Namespace, query) -> Optional[dict]:
+    """The user's model for the fit check: the MPS file, the saved instance, or a fresh instance of the
+    family at --size (:mod:`calib.analysis.modelfit`); None with --n."""
+    from calib.analysis import modelfit
+
+    if args.mps:
+        return modelfit.mps_model(args.mps)
+    if args.instance:
+        return modelfit.instance_model(args.instance)
+    if args.size is not None:
+        return modelfit.size_request(query.family, args.size, dict(args.param))
+    return None
 
 
 def _fmt(value, spec: str = ".3g") -> str:
@@ -151,6 +171,13 @@ def render(answer: dict) -> str:
             lines.append(f"  flag: {answer['flag']}")
         if answer["note"]:
             lines.append(f"  note: {answer['note']}")
+        check = answer.get("fit_check")
+        if check and check["verdict"] != "not compared":
+            lines.append(f"  fit check ({check['model']}): {check['verdict']}: {check['reason']}")
+        if answer.get("withheld") and answer.get("prediction"):
+            prediction = answer["prediction"]
+            lines.append("  predicted from features: " + (f"k = {prediction['k']}, {prediction['reason']}"
+                                                           if prediction["k"] is not None else prediction["reason"]))
         if "policy" in answer:
             policy = answer["policy"]
             lines.append(f"  policy (measured at {policy['from_size']}): "
