@@ -145,3 +145,18 @@ def test_a_folder_of_netlib_sc_models_at_three_sizes_gets_an_instances_scope_rul
     # sc50b lies inside the measured structure but for a stable rank 0.03% below the smallest measured: "near", shown
     assert answer["fit"]["near"] == ["stable_rank"] and answer["fit"]["features"]["stable_rank"]["distance"] < 0.01
     assert not answer["withheld"] and answer["confidence"] == 0.9 and answer["target"] == 0.8
+
+
+def test_a_log_multiple_grid_gives_the_rule_k_c_ln_n_at_both_scopes(folder, tmp_path):
+    # 3 replicates per file: below the 39 that certify 90% at 95% on every one of 3 files, so no C is
+    # certified for these files, and 3 files are below the 29 of the class; the table says both
+    spec = _spec(tmp_path, folder, "{log_multiples = [2, 8]}", replicates=3)
+    assert main(["run", str(spec), "--out", str(tmp_path / "out"), "--in-process", "--quiet"]) == 0
+    table = tmp_path / "t.json"
+    assert main(["tables", str(tmp_path / "out" / "sc-models.sqlite"), "--json", str(table)]) == 0
+    (law,) = json.loads(table.read_text())["analyses"][0]["laws"]
+    (rule,) = law["rules"]
+    assert rule["rule"] == "k = C ln n" and [point["value"] for point in rule["instances"]["grid"]] == [2.0, 8.0]
+    assert rule["instances"]["value"] is None and "3 trials per file at a value, 39 needed" in rule["instances"]["reason"]
+    assert rule["class"]["value"] is None and "29 are needed" in rule["class"]["reason"]
+    assert law["policy_rule"]["fraction"] is None  # the k = f m block of the table: not swept

@@ -37,7 +37,7 @@ from typing import Optional
 
 from calib import __version__
 from calib.analysis.fitcheck import measured_ranges
-from calib.analysis.tablefile import checksum, dumps, schema_error, seal
+from calib.analysis.tablefile import checksum, dumps, read_json, schema_error, seal
 from calib.errors import InputError
 
 FORMAT = "calib.k-rule"
@@ -142,14 +142,8 @@ def write_rules(table: dict, path: Path) -> None:
 
 def read_rules(path) -> dict:
     """Read, version-check, schema-validate and checksum-verify a rule file."""
-    path = Path(path)
     where, fix = str(path), "re-create it with `calib tables STORE --rule FILE`"
-    if not path.is_file():
-        raise InputError(where, "no such rule file", "give the JSON written by `calib tables --rule`")
-    try:
-        document = json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as error:
-        raise InputError(where, f"is not JSON ({error})", fix) from None
+    document = read_json(path, "rule", "--rule")
     if not isinstance(document, dict) or document.get("format") != FORMAT or document.get("format_version") != VERSION:
         raise InputError(where, f"is not a {FORMAT} file of version {VERSION}", fix)
     error = schema_error(document, SCHEMA_FILE)

@@ -86,17 +86,23 @@ def validate(table: dict, where: str) -> None:
                          "re-create it with `calib tables STORE --json FILE`")
 
 
+def read_json(path: str | Path, what: str, option: str):
+    """The JSON of a file that ``calib tables OPTION FILE`` writes, or :class:`InputError` naming it."""
+    path = Path(path)
+    fix = f"re-create it with `calib tables STORE {option} FILE`"
+    if not path.is_file():
+        raise InputError(str(path), f"no such {what} file", f"give the JSON written by `calib tables {option}`")
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as error:
+        raise InputError(str(path), f"is not JSON ({error})", fix) from None
+
+
 def read_table(path: str | Path) -> dict:
     """Read, version-check, schema-validate and checksum-verify a table file."""
-    path = Path(path)
     where = str(path)
     fix = "re-create it with `calib tables STORE --json FILE`"
-    if not path.is_file():
-        raise InputError(where, "no such table file", "give the JSON written by `calib tables --json`")
-    try:
-        table = json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as error:
-        raise InputError(where, f"is not JSON ({error})", fix) from None
+    table = read_json(path, "table", "--json")
     if not isinstance(table, dict) or table.get("format") != FORMAT:
         raise InputError(where, f"is not a calib safe-k table (format is not {FORMAT!r})", fix)
     if table.get("format_version") != VERSION:

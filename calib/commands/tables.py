@@ -263,19 +263,6 @@ def _k_text(k, m: int) -> str:
     return f"{k} (k = m: no reduction)" if k >= m else f"{k} (k/m = {k / m:.2f})"
 
 
-def swept_rule_lines(swept: dict) -> list[str]:
-    """The rule of the swept grid at both scopes: these units, then the class."""
-    mine, klass = swept["instances"], swept["class"]
-    lines = [f"  rule {swept['rule']}, these {mine['units']} {swept['unit']}s: {mine['statement']}",
-             f"    {mine['trials_per_unit']} trials per {swept['unit']} at each value; "
-             f"{mine['trials_per_unit_needed']} needed when all succeed (set replicates)"]
-    if mine["value"] is None and mine["failing"]:
-        lines.append(f"    {swept['unit']}s below the target at {swept['coefficient']} = {mine['failing_at']:g}: "
-                     f"{', '.join(mine['failing'])}")
-    lines.append(f"  rule {swept['rule']}, the class: {klass['statement'] or klass['reason']}")
-    return lines
-
-
 def scope_lines(entry: dict) -> list[str]:
     """The class answer first (the default), then the answer for the instances measured."""
     klass, m = entry["class"], entry["projected_dim"]
