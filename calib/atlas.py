@@ -203,6 +203,9 @@ def rule_k(rules: Union[str, Path], projector: str, mps: Union[str, Path, None] 
               f"withheld: the model lies outside the structure this rule was measured on ({fit['reason']}); measure it: "
               f"`calib probe FILE --find-k` (force=True shows the rule's k)" if withheld else
               "no reduction: the rule's k reaches m" if answer["no_reduction"] else "")
+    if rule["scope"] == "instances" and not withheld:
+        reason = "; ".join(filter(None, [reason, f"the rule holds for the {rule['unit']}s measured (scope instances): "
+                                                 f"for another model it is evidence, not a claim about its class"]))
     return {"family": rule["family"], "class_params": rule["class_params"], "projector": projector,
             "retrieval": rule["retrieval"], "tau": rule["tau"], "n": n, "m": m, "scope": rule["scope"],
             "confidence": document["target"]["confidence"], "target": document["target"]["success_rate"],

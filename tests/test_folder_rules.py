@@ -145,6 +145,7 @@ def test_a_folder_of_netlib_sc_models_at_three_sizes_gets_an_instances_scope_rul
     # sc50b lies inside the measured structure but for a stable rank 0.03% below the smallest measured: "near", shown
     assert answer["fit"]["near"] == ["stable_rank"] and answer["fit"]["features"]["stable_rank"]["distance"] < 0.01
     assert not answer["withheld"] and answer["confidence"] == 0.9 and answer["target"] == 0.8
+    assert "scope instances" in answer["reason"] and "not a claim about its class" in answer["reason"]
 
 
 def test_a_log_multiple_grid_gives_the_rule_k_c_ln_n_at_both_scopes(folder, tmp_path):
