@@ -60,6 +60,9 @@ from typing import NamedTuple, Optional
 import numpy as np
 
 KINDS = ("lp", "sdp", "qp", "points")
+#: the retrieval each kind runs when a spec names none (its handler's ``default_retrieval``, kept here
+#: for the readers of tables that must not import the solvers)
+DEFAULT_RETRIEVALS = {"lp": "completion", "sdp": "affine-psd", "qp": "lift", "points": "none"}
 
 
 class Field(NamedTuple):

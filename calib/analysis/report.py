@@ -240,19 +240,21 @@ def figures(table: dict, analysis: dict, timings: pd.DataFrame) -> list[str]:
 
 def glance_table(table: dict, analysis: dict, timings: pd.DataFrame) -> str:
     """The one-screen answer (:func:`calib.analysis.summary.summary_lines`) as an HTML table."""
-    from calib.analysis.summary import HEADER, cells, summary_lines
+    from calib.analysis.summary import answer_table, best_lines, retrieval_note, summary_lines
     from calib.analysis.tables import class_labels
 
     lines = summary_lines(analysis, timings, class_labels(analysis))
-    head = "".join(f'<th class="text">{escape(name)}</th>' for name in HEADER)
+    header, rows, one = answer_table(lines)
+    head = "".join(f'<th class="text">{escape(name)}</th>' for name in header)
+    note = retrieval_note(lines, one)
     body = []
-    for line in lines:
-        values = cells(line)
+    for line, values in zip(best_lines(lines), rows):
         css = "sketch" if line["verdict"] == "sketch" else "dont"
         body.append(f'<tr class="{css}">' + "".join(f'<td class="text">{escape(value)}</td>' for value in values[:2])
                     + "".join(f"<td>{escape(value)}</td>" for value in values[2:-1])
                     + f'<td class="answer">{escape(values[-1])}</td></tr>')
-    return f'<div class="fold glance"><table>\n<tr>{head}</tr>\n' + "\n".join(body) + "\n</table></div>"
+    caption = f"<p>{escape(note)}.</p>" if note else ""
+    return f'<div class="fold glance">{caption}<table>\n<tr>{head}</tr>\n' + "\n".join(body) + "\n</table></div>"
 
 
 def _frame_table(frame: pd.DataFrame) -> str:
