@@ -8,13 +8,14 @@ such quantity, or a solve it depends on that did not succeed), never silently mi
 :func:`expected_fields` turns those statements into the set of fields a given record must fill.
 
 Classes are written as space-separated tokens: a problem kind (``lp``, ``sdp``, ``qp``,
-``points``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
+``points``, ``clustering``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
 
 Conditions (:data:`CONDITIONS`): ``always``; ``orig optimal`` / ``proj optimal`` / ``both optimal``
 (the original / projected / both solves ended ``optimal``); ``orig verdict`` / ``proj verdict`` /
 ``both verdicts`` (the solver certified feasibility or infeasibility, see
 :attr:`calib.solvers.result.SolveResult.feasible`); ``ratio defined`` (both optimal and the
-original optimum is nonzero).
+original optimum is nonzero); ``both partitioned`` (clustering: the original and the projected
+runs both returned a partition, status ``optimal`` or ``stopped_on_iterations``).
 
 Scales (no constant 1: every error is relative to a size taken from the instance's own data, so
 multiplying the objective, or the constraints, by any positive factor leaves every error and
@@ -52,7 +53,7 @@ from typing import NamedTuple, Optional
 
 import numpy as np
 
-KINDS = ("lp", "sdp", "qp", "points")
+KINDS = ("lp", "sdp", "qp", "points", "clustering")
 
 
 class Field(NamedTuple):
@@ -65,19 +66,21 @@ class Field(NamedTuple):
 
 
 _SOLVED = "lp sdp qp"
+#: kinds with an original and a projected run (clustering: the same method on the original and projected points)
+_RUN = _SOLVED + " clustering"
 _ITERATIVE = "lp:alternating lp:restricted-repair lp:warm-start sdp:alternating"
 _AFFINE = "lp:alternating sdp:affine sdp:affine-psd sdp:alternating"
 
 #: field -> Field(meaning, units, classes that fill it, condition)
 FIELDS: dict[str, Field] = {
-    "orig_status": Field("status of the original solve (calib vocabulary, calib.solvers.result.STATUSES)", "-", _SOLVED),
-    "orig_objective": Field("optimal value of the original problem", "objective units", _SOLVED, "orig optimal"),
+    "orig_status": Field("status of the original solve (calib vocabulary, calib.solvers.result.STATUSES)", "-", _RUN),
+    "orig_objective": Field("optimal value of the original problem", "objective units", _RUN, "orig optimal"),
     "orig_feasible": Field("the original problem is feasible (solver verdict)", "bool", _SOLVED, "orig verdict"),
-    "proj_status": Field("status of the projected solve", "-", _SOLVED),
-    "proj_message": Field("the solver's own status text for the projected solve", "-", _SOLVED),
-    "proj_objective": Field("optimal value of the projected problem", "objective units", _SOLVED, "proj optimal"),
+    "proj_status": Field("status of the projected solve", "-", _RUN),
+    "proj_message": Field("the solver's own status text for the projected solve", "-", _RUN),
+    "proj_objective": Field("optimal value of the projected problem", "objective units", _RUN, "proj optimal"),
     "proj_feasible": Field("the projected problem is feasible (solver verdict)", "bool", _SOLVED, "proj verdict"),
-    "proj_method": Field("the method of the projected solve (calib.solvers.methods)", "-", _SOLVED),
+    "proj_method": Field("the method of the projected solve (calib.solvers.methods)", "-", _RUN),
     "proj_gap": Field("gap of the projected bound in the direction it errs: (orig - proj) / obj_scale for a "
                       "relaxation (lp, sdp), (proj - orig) / obj_scale for a restriction (qp); >= 0 up to "
                       "solver tolerance", "ratio", _SOLVED, "both optimal"),
@@ -86,7 +89,7 @@ FIELDS: dict[str, Field] = {
     "feasibility_agrees": Field("the projected problem gets the original's feasibility verdict; False for a feasible "
                                 "projection of an infeasible lp/sdp (the one-sided error of a relaxation) or an "
                                 "infeasible restriction of a feasible qp", "bool", _SOLVED, "both verdicts"),
-    "proj_iterations": Field("solver iterations on the projected problem", "count", _SOLVED),
+    "proj_iterations": Field("solver iterations on the projected problem", "count", _RUN),
     "obj_error": Field("|f(x_retrieved) - orig| / obj_scale", "ratio", _SOLVED, "both optimal"),
     "obj_ratio": Field("f(x_retrieved) / orig: 1 when the retrieved point is optimal; for a minimisation the "
                        "retrieved value is >= orig when feasible, so the ratio is >= 1 for orig > 0 and <= 1 for "
@@ -125,23 +128,30 @@ FIELDS: dict[str, Field] = {
     "pairs_total": Field("number of all point pairs, n(n-1)/2: pairs_checked below it marks a sampled trial, whose "
                          "claim covers all but a bounded share of the pairs (calib.reduce.points.sampled_claim)",
                          "count", "points"),
+    "cluster_cost_ratio": Field("k-means cost on the original points of the partition found on the projected points, "
+                                "over that of the partition found on the original points by the same method from the "
+                                "same seeded starts (calib.reduce.clustering); below 1 when the projected run found the "
+                                "better local optimum", "ratio", "clustering", "both partitioned"),
+    "cluster_disagreement": Field("share of the points the projected partition assigns differently from the original "
+                                  "one, up to relabelling (Hungarian matching of the contingency table)", "ratio",
+                                  "clustering", "both partitioned"),
     "t_sketch": Field("draw T plus apply it to the data", "s", "all"),
     "t_solve_orig": Field("the original solve by the reference method (cached per instance, measured when it ran)",
-                          "s", _SOLVED),
+                          "s", _RUN),
     "t_baseline": Field("the fair baseline: the original solved by the fastest configured method that reaches the "
-                        "reference's verdict (calib.solvers.methods)", "s", _SOLVED),
-    "t_solve_proj": Field("solve the projected problem", "s", _SOLVED),
+                        "reference's verdict (calib.solvers.methods)", "s", _RUN),
+    "t_solve_proj": Field("solve the projected problem", "s", _RUN),
     "t_retrieve": Field("this retrieval alone, including every extra solve it makes (the restricted LPs of "
                         "lp:restricted-repair, the warm-started original solve of lp:warm-start), without t_factor",
-                        "s", _SOLVED, "proj optimal"),
+                        "s", _RUN, "proj optimal"),
     "t_factor": Field("factoring the affine set {x : A x = b} the retrieval projects onto (an SVD; 0 with LSQR), done "
                       "once per instance and reused by its later trials: the time it took when it was done",
                       "s", _AFFINE, "proj optimal"),
     "t_total": Field("end to end: t_sketch + t_solve_proj + t_retrieve + t_factor (t_retrieve and t_factor counted "
                      "as 0 when the projected solve failed and nothing was retrieved; t_factor counted once, as a "
-                     "single solve pays it)", "s", _SOLVED),
+                     "single solve pays it)", "s", _RUN),
     "time_saved": Field("t_baseline - t_total: wall time the projected pipeline with this retrieval saves against "
-                        "the fair baseline (negative: it costs more)", "s", _SOLVED),
+                        "the fair baseline (negative: it costs more)", "s", _RUN),
 }
 
 #: condition name -> predicate on a record (see the module docstring)
@@ -153,6 +163,8 @@ CONDITIONS = {
     "orig verdict": lambda rec: rec.get("orig_feasible") is not None,
     "proj verdict": lambda rec: rec.get("proj_feasible") is not None,
     "both verdicts": lambda rec: rec.get("orig_feasible") is not None and rec.get("proj_feasible") is not None,
+    "both partitioned": lambda rec: (rec.get("orig_status") in ("optimal", "stopped_on_iterations")
+                                     and rec.get("proj_status") in ("optimal", "stopped_on_iterations")),
     "ratio defined": lambda rec: (rec.get("orig_status") == "optimal" and rec.get("proj_status") == "optimal"
                                   and rec.get("orig_objective") not in (None, 0.0)),
 }

@@ -38,7 +38,8 @@ def test_unknown_family_is_a_one_line_error(capsys):
 
 # one small family per kind; the counting text is checked against the problem each one builds
 KIND_EXAMPLES = {"lp": ("lp-planted", {"rows": 6, "cols": 12}), "sdp": ("sdp-planted", {"order": 4, "constraints": 5}),
-                 "qp": ("qp-random", {"vars": 8, "rows": 5}), "points": ("points-gaussian", {"points": 7, "dim": 9})}
+                 "qp": ("qp-random", {"vars": 8, "rows": 5}), "points": ("points-gaussian", {"points": 7, "dim": 9}),
+                 "clustering": ("cluster-mixture", {"points": 12, "dim": 5, "clusters": 3})}
 
 
 def _counted_from_the_problem(kind: str, problem) -> tuple[int, int]:
@@ -50,6 +51,8 @@ def _counted_from_the_problem(kind: str, problem) -> tuple[int, int]:
         return order * (order + 1) // 2 + 1, len(problem.b)
     if kind == "qp":  # the rows of A plus c and the optimum; the variables
         return problem.A.shape[0] + 2, len(problem.c)
+    if kind == "clustering":  # the clusters; the dimension of the points
+        return problem.clusters, problem.points.shape[1]
     return problem.points.shape  # the points; their dimension
 
 
