@@ -95,8 +95,9 @@ def cluster_means(points: np.ndarray, labels: np.ndarray, clusters: int) -> tupl
     """
     labels = np.asarray(labels, dtype=np.int64)
     sizes = np.bincount(labels, minlength=clusters)
-    sums = np.zeros((clusters, points.shape[1]))
-    np.add.at(sums, labels, points)
+    dim = points.shape[1]
+    cells = (labels[:, None] * dim + np.arange(dim)[None, :]).ravel()  # entry (i, j) adds to sums[label_i, j]
+    sums = np.bincount(cells, weights=points.ravel(), minlength=clusters * dim).reshape(clusters, dim)
     return sums / np.maximum(sizes, 1)[:, None], sizes
 
 
