@@ -10,6 +10,7 @@ matrix*:
 | qp         | [Q  Aᵀ  c], rows = variables        | variables (x = Tᵀu)     |
 | points     | the points as columns, d x n        | ambient dimension d     |
 | clustering | the points as columns, d x n        | ambient dimension d     |
+| milp       | [A b], standard form with slacks    | constraint rows         |
 
 Features of M, stored per instance and carried into the table so classes can be compared and k
 related to structure:
@@ -71,7 +72,7 @@ def _points(problem):
 
 
 #: kind -> the sketched matrix of an instance of that kind (module docstring)
-SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _points, "clustering": _points}
+SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _points, "clustering": _points, "milp": _lp}
 
 
 def spectral_norm(matrix) -> float:

@@ -8,7 +8,7 @@ such quantity, or a solve it depends on that did not succeed), never silently mi
 :func:`expected_fields` turns those statements into the set of fields a given record must fill.
 
 Classes are written as space-separated tokens: a problem kind (``lp``, ``sdp``, ``qp``,
-``points``, ``clustering``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
+``points``, ``clustering``, ``milp``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
 
 Conditions (:data:`CONDITIONS`): ``always``; ``orig optimal`` / ``proj optimal`` / ``both optimal``
 (the original / projected / both solves ended ``optimal``); ``orig verdict`` / ``proj verdict`` /
@@ -29,7 +29,7 @@ cancellation makes it meaningless as a yardstick; the floor then takes over.
   |offset| for a QP. Should that be 0 (x* = 0 and no offset), the retrieved point's size is used.
   A portfolio whose optimum is -0.21 keeps the scale 0.21: a retrieved value of -0.031 has
   obj_error 0.85, not 0.18.
-- feasibility, lp and sdp: ||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||), with
+- feasibility, lp, sdp and milp (the completed point): ||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||), with
   x_ref = x* when the original has an optimum, else the retrieved point (2-norms; |A| the
   entrywise absolute value).
 - feasibility, qp: the largest violation of A x <= b, the finite bounds and the ball over
@@ -53,7 +53,7 @@ from typing import NamedTuple, Optional
 
 import numpy as np
 
-KINDS = ("lp", "sdp", "qp", "points", "clustering")
+KINDS = ("lp", "sdp", "qp", "points", "clustering", "milp")
 
 
 class Field(NamedTuple):
@@ -65,7 +65,7 @@ class Field(NamedTuple):
     needs: str = "always"
 
 
-_SOLVED = "lp sdp qp"
+_SOLVED = "lp sdp qp milp"
 #: kinds with an original and a projected run (clustering: the same method on the original and projected points)
 _RUN = _SOLVED + " clustering"
 _ITERATIVE = "lp:alternating lp:restricted-repair lp:warm-start sdp:alternating"
@@ -128,6 +128,9 @@ FIELDS: dict[str, Field] = {
     "pairs_total": Field("number of all point pairs, n(n-1)/2: pairs_checked below it marks a sampled trial, whose "
                          "claim covers all but a bounded share of the pairs (calib.reduce.points.sampled_claim)",
                          "count", "points"),
+    "rows_violated": Field("share of the original's rows that the completed point violates by more than 1e-9 of "
+                           "max(1, |b_i|): the rows whose slack would be negative (kept at 0), calib.milp.complete",
+                           "ratio", "milp", "proj optimal"),
     "cluster_cost_ratio": Field("k-means cost on the original points of the partition found on the projected points, "
                                 "over that of the partition found on the original points by the same method from the "
                                 "same seeded starts (calib.reduce.clustering); below 1 when the projected run found the "

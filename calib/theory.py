@@ -431,6 +431,8 @@ COUNTING = {
     "points": "n = the number of points; m = their dimension, reduced to k",
     "clustering": "n = the number of clusters K (the clustering bounds depend on K and eps, not on the number of "
                   "points); m = the dimension of the points, reduced to k",
+    "milp": "n = the columns of the standard form's A (decisions and slacks) plus b (cols + 1), as for an LP; "
+            "m = its rows, reduced to k (bounds and integrality are kept)",
 }
 
 

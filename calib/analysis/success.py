@@ -66,7 +66,7 @@ TOLERANCE_METRICS = {"gap": "proj_gap", "obj": "obj_error", "feas": "feas_error"
 #: metrics whose error is their excess over a reference value, signed (one-sided tolerance): column -> reference
 EXCESS_OVER = {"cluster_cost_ratio": 1.0}
 #: problem kinds whose projected solve has a feasibility verdict
-OPTIMIZATION_KINDS = ("lp", "sdp", "qp")
+OPTIMIZATION_KINDS = ("lp", "sdp", "qp", "milp")
 #: problem kinds whose trials are timed against a fair baseline (the cost condition applies to them)
 TIMED_KINDS = OPTIMIZATION_KINDS + ("clustering",)
 

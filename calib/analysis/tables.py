@@ -307,7 +307,7 @@ def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
     every k, so its trials would only count as failures (or trivial successes) that say nothing
     about k. They are left out of the success rates and listed with the reason.
     """
-    mask = rows["kind"].isin(["lp", "sdp", "qp"]) & rows["orig_status"].isin(NO_OPTIMUM)
+    mask = rows["kind"].isin(OPTIMIZATION_KINDS) & rows["orig_status"].isin(NO_OPTIMUM)
     items = []
     for (family, kind, status), group in rows[mask].groupby(["family", "kind", "orig_status"], sort=True):
         items.append({"family": family, "kind": kind,
