@@ -30,8 +30,10 @@ ROOT = Path(__file__).resolve().parent.parent
 SPECS = (ROOT / "instances" / "atlas.toml", ROOT / "instances" / "atlas-points.toml")
 #: the clustering campaign: a k grid (its table answers a ladder of cost tolerances), not a search
 CLUSTERING_SPEC = ROOT / "instances" / "atlas-clustering.toml"
+#: the integer programs: searched like SPECS, with a time cap on the projected MIP alone
+MILP_SPEC = ROOT / "instances" / "atlas-milp.toml"
 #: every atlas spec, in the order of calib.atlas.ATLAS_FILES
-ALL_SPECS = SPECS + (CLUSTERING_SPEC,)
+ALL_SPECS = SPECS + (CLUSTERING_SPEC, MILP_SPEC)
 #: every family class the atlas must hold (lp-planted with and without a rank)
 CLASSES = {"lp-planted rank", "lp-planted", "lp-covering", "lp-quantile", "lp-basis-pursuit", "lp-transport",
            "sdp-maxcut", "qp-portfolio", "points-gaussian"}
@@ -136,6 +138,17 @@ def test_the_clustering_atlas_spec_keeps_its_design():
     assert classes == {("cluster-mixture", "lloyd"), ("cluster-mixture", "sized"), ("cluster-digits", "lloyd")}
 
 
+def test_the_milp_atlas_spec_keeps_its_design():
+    # Its comments: the design of the other atlas specs (search to m/2, 29 instances, four projectors,
+    # n over a decade) for both MILP families, and a time cap of the projected MIP
+    spec = load_spec(MILP_SPEC)
+    assert spec.k_grid.is_search and len(spec.projectors) == 4 and spec.solver.get("projected_time_limit_s")
+    assert {cell.name for cell in spec.families} == {"milp-knapsack", "milp-cover"}
+    for cell in spec.families:
+        low, high = _n_range(cell)
+        assert len(cell.sizes) >= 4 and high >= 10 * low and cell.instances >= 29
+
+
 def test_the_atlas_covers_every_family_class_with_projected_caps():
     found = set()
     for path in SPECS:
@@ -167,7 +180,8 @@ def test_the_shipped_atlas_validates_and_its_checksum_matches(name):
 #: one cell per atlas file, cheap to re-run here: (spec, family, size index, projector, predicate, tau)
 RERUN = [(SPECS[0], "lp-transport", 0, "countsketch", "bound", 0.05),
          (SPECS[1], "points-gaussian", 0, "srht", "distortion", 0.3),
-         (CLUSTERING_SPEC, "cluster-mixture", 0, "gaussian", "clustering", 0.05)]
+         (CLUSTERING_SPEC, "cluster-mixture", 0, "gaussian", "clustering", 0.05),
+         (MILP_SPEC, "milp-cover", 0, "gaussian", "usable", 0.05)]
 
 
 def _entry(table: dict, tau: float, family: str, projector: str, n_points: int) -> dict:
