@@ -42,7 +42,7 @@ from calib.wording import counted
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "exact", "retrieval_iterations",
                     "widening_rounds", "columns_share", "iterations_saved", "warm_seconds_saved", "t_retrieve", "t_factor", "t_total",
-                    "time_saved", "distortion_max", "distortion_q99", "pairs_checked", "cluster_cost_ratio",
+                    "time_saved", "distortion_max", "distortion_q99", "pairs_checked", "rows_violated", "cluster_cost_ratio",
                     "cluster_disagreement")
 #: fields that describe the projection and its solve (shared by the retrievals of one replicate)
 PROJECTION_FIELDS = ("proj_status", "proj_method", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
