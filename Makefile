@@ -37,7 +37,7 @@ demo-reference:
 	    $(DEMO)/run.txt $(DEMO)/tables.txt results/demo/
 	$(BIN)/python tests/readme_numbers.py --write
 
-# The atlas (instances/atlas*.toml): about 40 minutes on 2 cores (README, "The atlas"); resumable (run it
+# The atlas (instances/atlas*.toml): about 50 minutes on 2 cores (README, "The atlas"); resumable (run it
 # again after a stop). Each table and its report come from one analysis (`calib tables --html`), at the
 # predicate and tolerance of the campaign's own [target], so a report cannot contradict its table.
 # ATLAS_RUN="--scheduler tcp://HOST:8786" runs it on a Dask cluster (docs/distributed.md).
