@@ -1,8 +1,10 @@
 """The shipped atlas: safe-k answers for other tools, read from a table file or the atlas.
 
-The atlas is the pair of safe-k tables that ``make atlas`` writes under ``results/atlas/`` from
-``instances/atlas.toml`` (every LP, SDP and QP family class, predicate ``bound``) and
-``instances/atlas-points.toml`` (point sets, predicate ``distortion``). Each file follows the
+The atlas is the safe-k tables that ``make atlas`` writes under ``results/atlas/`` from
+``instances/atlas.toml`` (every LP, SDP and QP family class, predicate ``bound``),
+``instances/atlas-points.toml`` (point sets, predicate ``distortion``),
+``instances/atlas-clustering.toml`` (clustering, predicate ``clustering``) and
+``instances/atlas-milp.toml`` (integer programs, predicate ``usable``). Each file follows the
 table schema ``calib/schemas/safe-k-table.v3.json`` (the contract for tools that read it without
 calib) and carries a checksum of its content; :func:`calib.analysis.tablefile.read_table` refuses
 a file that is edited, of another format version or not valid.
@@ -40,7 +42,7 @@ from calib.errors import InputError
 #: environment variable naming a table file, or a folder holding the atlas files
 ENV = "CALIB_ATLAS"
 #: the atlas files, in the order they are asked
-ATLAS_FILES = ("safe_k.json", "safe_k-points.json")
+ATLAS_FILES = ("safe_k.json", "safe_k-points.json", "safe_k-clustering.json", "safe_k-milp.json")
 #: the folder of the shipped atlas (the calib checkout's results/atlas)
 SHIPPED = Path(__file__).resolve().parent.parent / "results" / "atlas"
 

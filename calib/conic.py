@@ -373,22 +373,10 @@ class QP:
         return float(max(0.0, max((part.max() for part in parts if part.size), default=0.0)))
 
 
-@dataclass
-class PointSet:
-    """n distinct points in R^d; a projection acts on the coordinates (d -> k).
-
-    Attributes
-    ----------
-    points : ndarray, shape (n, d)
-        One point per row.
-    name : str
-    """
+class PointRows:
+    """What a problem made of n points in R^d (rows of ``self.points``, shape (n, d)) offers a projection."""
 
     points: np.ndarray
-    name: str = "points"
-
-    def __post_init__(self) -> None:
-        self.points = np.asarray(self.points, dtype=float)
 
     @property
     def n_points(self) -> int:
@@ -403,6 +391,24 @@ class PointSet:
     def columns(self) -> np.ndarray:
         """The points as columns, shape (d, n): what a projector T (k x d) multiplies."""
         return self.points.T
+
+
+@dataclass
+class PointSet(PointRows):
+    """n distinct points in R^d; a projection acts on the coordinates (d -> k).
+
+    Attributes
+    ----------
+    points : ndarray, shape (n, d)
+        One point per row.
+    name : str
+    """
+
+    points: np.ndarray
+    name: str = "points"
+
+    def __post_init__(self) -> None:
+        self.points = np.asarray(self.points, dtype=float)
 
     def validate(self) -> "PointSet":
         """Check shape, finiteness and that the points are distinct (distortion ratios need d_ij > 0)."""

@@ -3,12 +3,14 @@
 A projector T (k x m) combines the m rows of one matrix M (m x N) of the instance, the *sketched
 matrix*:
 
-| kind   | M                                   | m (projected dimension) |
-|--------|-------------------------------------|-------------------------|
-| lp     | [A b], standard form                | constraint rows         |
-| sdp    | [A b], rows = svec constraints      | constraints             |
-| qp     | [Q  Aᵀ  c], rows = variables        | variables (x = Tᵀu)     |
-| points | the points as columns, d x n        | ambient dimension d     |
+| kind       | M                                   | m (projected dimension) |
+|------------|-------------------------------------|-------------------------|
+| lp         | [A b], standard form                | constraint rows         |
+| sdp        | [A b], rows = svec constraints      | constraints             |
+| qp         | [Q  Aᵀ  c], rows = variables        | variables (x = Tᵀu)     |
+| points     | the points as columns, d x n        | ambient dimension d     |
+| clustering | the points as columns, d x n        | ambient dimension d     |
+| milp       | [A b], standard form with slacks    | constraint rows         |
 
 Features of M, stored per instance and carried into the table so classes can be compared and k
 related to structure:
@@ -70,7 +72,7 @@ def _points(problem):
 
 
 #: kind -> the sketched matrix of an instance of that kind (module docstring)
-SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _points}
+SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _points, "clustering": _points, "milp": _lp}
 
 
 def spectral_norm(matrix) -> float:

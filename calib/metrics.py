@@ -8,14 +8,16 @@ such quantity, or a solve it depends on that did not succeed), never silently mi
 :func:`expected_fields` turns those statements into the set of fields a given record must fill.
 
 Classes are written as space-separated tokens: a problem kind (``lp``, ``sdp``, ``qp``,
-``points``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
+``points``, ``clustering``, ``milp``), ``all`` for every kind, or ``kind:retrieval`` for one retrieval of one kind.
 
 Conditions (:data:`CONDITIONS`): ``always``; ``orig optimal`` / ``proj optimal`` / ``both optimal``
 (the original / projected / both solves ended ``optimal``); ``orig verdict`` / ``proj verdict`` /
 ``both verdicts`` (the solver certified feasibility or infeasibility, see
 :attr:`calib.solvers.result.SolveResult.feasible`); ``ratio defined`` (both optimal and the
 original optimum is nonzero); ``max-cut`` / ``max-cut retrieved`` (a max-cut SDP, whose problem
-carries its graph, with the original / both solves optimal: the record holds ``cut_original``).
+carries its graph, with the original / both solves optimal: the record holds ``cut_original``);
+``both partitioned`` (clustering: the original and the projected runs both returned a partition,
+status ``optimal`` or ``stopped_on_iterations``).
 
 The user's decision: ``obj_error``, ``feas_error`` and ``sign_violation`` judge the whole point a
 retrieval returns; ``decision_error`` and ``cut_ratio`` judge the part a user acts on (the
@@ -35,7 +37,7 @@ cancellation makes it meaningless as a yardstick; the floor then takes over.
   |offset| for a QP. Should that be 0 (x* = 0 and no offset), the retrieved point's size is used.
   A portfolio whose optimum is -0.21 keeps the scale 0.21: a retrieved value of -0.031 has
   obj_error 0.85, not 0.18.
-- feasibility, lp and sdp: ||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||), with
+- feasibility, lp, sdp and milp (the completed point): ||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||), with
   x_ref = x* when the original has an optimum, else the retrieved point (2-norms; |A| the
   entrywise absolute value).
 - feasibility, qp: the largest violation of A x <= b, the finite bounds and the ball over
@@ -59,7 +61,11 @@ from typing import NamedTuple, Optional
 
 import numpy as np
 
-KINDS = ("lp", "sdp", "qp", "points")
+KINDS = ("lp", "sdp", "qp", "points", "clustering", "milp")
+#: the retrieval each kind runs when a spec names none (its handler's ``default_retrieval``, kept here
+#: for the readers of tables that must not import the solvers)
+DEFAULT_RETRIEVALS = {"lp": "completion", "sdp": "affine-psd", "qp": "lift", "points": "none", "clustering": "partition",
+                      "milp": "completion"}
 
 
 class Field(NamedTuple):
@@ -71,20 +77,22 @@ class Field(NamedTuple):
     needs: str = "always"
 
 
-_SOLVED = "lp sdp qp"
+_SOLVED = "lp sdp qp milp"
+#: kinds with an original and a projected run (clustering: the same method on the original and projected points)
+_RUN = _SOLVED + " clustering"
 _ITERATIVE = "lp:alternating lp:restricted-repair lp:warm-start sdp:alternating"
 _AFFINE = "lp:alternating sdp:affine sdp:affine-psd sdp:alternating"
 
 #: field -> Field(meaning, units, classes that fill it, condition)
 FIELDS: dict[str, Field] = {
-    "orig_status": Field("status of the original solve (calib vocabulary, calib.solvers.result.STATUSES)", "-", _SOLVED),
-    "orig_objective": Field("optimal value of the original problem", "objective units", _SOLVED, "orig optimal"),
+    "orig_status": Field("status of the original solve (calib vocabulary, calib.solvers.result.STATUSES)", "-", _RUN),
+    "orig_objective": Field("optimal value of the original problem", "objective units", _RUN, "orig optimal"),
     "orig_feasible": Field("the original problem is feasible (solver verdict)", "bool", _SOLVED, "orig verdict"),
-    "proj_status": Field("status of the projected solve", "-", _SOLVED),
-    "proj_message": Field("the solver's own status text for the projected solve", "-", _SOLVED),
-    "proj_objective": Field("optimal value of the projected problem", "objective units", _SOLVED, "proj optimal"),
+    "proj_status": Field("status of the projected solve", "-", _RUN),
+    "proj_message": Field("the solver's own status text for the projected solve", "-", _RUN),
+    "proj_objective": Field("optimal value of the projected problem", "objective units", _RUN, "proj optimal"),
     "proj_feasible": Field("the projected problem is feasible (solver verdict)", "bool", _SOLVED, "proj verdict"),
-    "proj_method": Field("the method of the projected solve (calib.solvers.methods)", "-", _SOLVED),
+    "proj_method": Field("the method of the projected solve (calib.solvers.methods)", "-", _RUN),
     "proj_gap": Field("gap of the projected bound in the direction it errs: (orig - proj) / obj_scale for a "
                       "relaxation (lp, sdp), (proj - orig) / obj_scale for a restriction (qp); >= 0 up to "
                       "solver tolerance", "ratio", _SOLVED, "both optimal"),
@@ -93,7 +101,7 @@ FIELDS: dict[str, Field] = {
     "feasibility_agrees": Field("the projected problem gets the original's feasibility verdict; False for a feasible "
                                 "projection of an infeasible lp/sdp (the one-sided error of a relaxation) or an "
                                 "infeasible restriction of a feasible qp", "bool", _SOLVED, "both verdicts"),
-    "proj_iterations": Field("solver iterations on the projected problem", "count", _SOLVED),
+    "proj_iterations": Field("solver iterations on the projected problem", "count", _RUN),
     "obj_error": Field("|f(x_retrieved) - orig| / obj_scale", "ratio", _SOLVED, "both optimal"),
     "obj_ratio": Field("f(x_retrieved) / orig: 1 when the retrieved point is optimal; for a minimisation the "
                        "retrieved value is >= orig when feasible, so the ratio is >= 1 for orig > 0 and <= 1 for "
@@ -153,23 +161,33 @@ FIELDS: dict[str, Field] = {
     "pairs_total": Field("number of all point pairs, n(n-1)/2: pairs_checked below it marks a sampled trial, whose "
                          "claim covers all but a bounded share of the pairs (calib.reduce.points.sampled_claim)",
                          "count", "points"),
+    "rows_violated": Field("share of the original's rows that the completed point violates by more than 1e-9 of "
+                           "max(1, |b_i|): the rows whose slack would be negative (kept at 0), calib.milp.complete",
+                           "ratio", "milp", "proj optimal"),
+    "cluster_cost_ratio": Field("k-means cost on the original points of the partition found on the projected points, "
+                                "over that of the partition found on the original points by the same method from the "
+                                "same seeded starts (calib.reduce.clustering); below 1 when the projected run found the "
+                                "better local optimum", "ratio", "clustering", "both partitioned"),
+    "cluster_disagreement": Field("share of the points the projected partition assigns differently from the original "
+                                  "one, up to relabelling (Hungarian matching of the contingency table)", "ratio",
+                                  "clustering", "both partitioned"),
     "t_sketch": Field("draw T plus apply it to the data", "s", "all"),
     "t_solve_orig": Field("the original solve by the reference method (cached per instance, measured when it ran)",
-                          "s", _SOLVED),
+                          "s", _RUN),
     "t_baseline": Field("the fair baseline: the original solved by the fastest configured method that reaches the "
-                        "reference's verdict (calib.solvers.methods)", "s", _SOLVED),
-    "t_solve_proj": Field("solve the projected problem", "s", _SOLVED),
+                        "reference's verdict (calib.solvers.methods)", "s", _RUN),
+    "t_solve_proj": Field("solve the projected problem", "s", _RUN),
     "t_retrieve": Field("this retrieval alone, including every extra solve it makes (the restricted LPs of "
                         "lp:restricted-repair, the warm-started original solve of lp:warm-start), without t_factor",
-                        "s", _SOLVED, "proj optimal"),
+                        "s", _RUN, "proj optimal"),
     "t_factor": Field("factoring the affine set {x : A x = b} the retrieval projects onto (an SVD; 0 with LSQR), done "
                       "once per instance and reused by its later trials: the time it took when it was done",
                       "s", _AFFINE, "proj optimal"),
     "t_total": Field("end to end: t_sketch + t_solve_proj + t_retrieve + t_factor (t_retrieve and t_factor counted "
                      "as 0 when the projected solve failed and nothing was retrieved; t_factor counted once, as a "
-                     "single solve pays it)", "s", _SOLVED),
+                     "single solve pays it)", "s", _RUN),
     "time_saved": Field("t_baseline - t_total: wall time the projected pipeline with this retrieval saves against "
-                        "the fair baseline (negative: it costs more)", "s", _SOLVED),
+                        "the fair baseline (negative: it costs more)", "s", _RUN),
 }
 
 #: condition name -> predicate on a record (see the module docstring)
@@ -181,6 +199,8 @@ CONDITIONS = {
     "orig verdict": lambda rec: rec.get("orig_feasible") is not None,
     "proj verdict": lambda rec: rec.get("proj_feasible") is not None,
     "both verdicts": lambda rec: rec.get("orig_feasible") is not None and rec.get("proj_feasible") is not None,
+    "both partitioned": lambda rec: (rec.get("orig_status") in ("optimal", "stopped_on_iterations")
+                                     and rec.get("proj_status") in ("optimal", "stopped_on_iterations")),
     "ratio defined": lambda rec: (rec.get("orig_status") == "optimal" and rec.get("proj_status") == "optimal"
                                   and rec.get("orig_objective") not in (None, 0.0)),
     # a max-cut SDP carries its graph; the record shows it by its rounded original cut

@@ -198,6 +198,84 @@ def ln_over_eps2_eps(n: ArrayLike, k: ArrayLike) -> np.ndarray:
     return _smallest_eps(lambda eps: ln_over_eps2(n, eps) <= k, n, k)
 
 
+# --- clustering: the cost of every K-partition kept within 1 +- eps --------------------------------
+#
+# For k-means the count that matters is the number of clusters K, not the number of points: both
+# results below keep the k-means cost of *every* partition into K clusters within 1 +- eps. Neither
+# states its constant (both are O(.) statements), so each is the shape with constant 1, and a
+# table's law k = a + C ln K fits the constant the measurements need.
+
+
+def cost_ratio_eps(tau: ArrayLike) -> np.ndarray:
+    """The eps that guarantees a cost ratio of at most 1 + tau: eps = tau / (2 + tau).
+
+    If the projection keeps every K-partition's cost within 1 +- eps, the partition P' best on the
+    projected points and the partition P best on the original points satisfy
+    cost(P') <= cost'(P') / (1 - eps) <= cost'(P) / (1 - eps) <= cost(P) (1 + eps) / (1 - eps),
+    with cost' the cost on the projected points; (1 + eps) / (1 - eps) = 1 + tau at eps = tau / (2 + tau).
+    A statement about exact optima: Lloyd's local optima are not covered.
+
+    >>> float(cost_ratio_eps(0.1)) == 0.1 / 2.1, float(cost_ratio_eps(2.0))
+    (True, 0.5)
+    """
+    tau = np.asarray(tau, dtype=float)
+    return tau / (2.0 + tau)
+
+
+def mmr_clustering(clusters: ArrayLike, eps: ArrayLike) -> np.ndarray:
+    """Makarychev–Makarychev–Razenshteyn: k = ln(K / eps) / eps², rounded up (the shape; constant unstated).
+
+    A random projection to O(log(K/eps)/eps²) dimensions keeps the k-means cost of every partition
+    into K clusters within 1 +- eps, whatever the number of points; the paper states the order, not
+    the constant, so this is the shape with constant 1. Reference: K. Makarychev, Y. Makarychev and
+    I. Razenshteyn, "Performance of Johnson–Lindenstrauss transform for k-means and k-medians
+    clustering", STOC 2019 (abstract and Theorem 1.3; arXiv:1811.03195).
+
+    >>> int(mmr_clustering(10, 0.1))  # ceil(ln(100) / 0.01) = ceil(460.517...)
+    461
+    >>> mmr_clustering(np.array([2, 100]), 0.5).tolist()  # ceil(4 ln 4), ceil(4 ln 200)
+    [6, 22]
+    """
+    clusters, eps = np.asarray(clusters, dtype=float), np.asarray(eps, dtype=float)
+    return np.ceil(np.log(clusters / eps) / eps**2).astype(np.int64)
+
+
+def mmr_clustering_eps(clusters: ArrayLike, k: ArrayLike) -> np.ndarray:
+    """Smallest eps with ``mmr_clustering(K, eps) <= k`` (NaN if none below 1).
+
+    >>> round(float(mmr_clustering_eps(10, 461)), 4)
+    0.1
+    """
+    return _smallest_eps(lambda eps: mmr_clustering(clusters, eps) <= k, clusters, k)
+
+
+def cemmp_clustering(clusters: ArrayLike, eps: ArrayLike) -> np.ndarray:
+    """Cohen–Elder–Musco–Musco–Persu: k = K / eps², rounded up (the shape; constant unstated).
+
+    A Johnson–Lindenstrauss projection to O(K/eps²) dimensions is a projection-cost-preserving
+    sketch: the k-means cost of every K-partition is kept within 1 +- eps, up to one additive
+    constant shared by all partitions, which leaves the argument of :func:`cost_ratio_eps` intact.
+    The order is stated, not the constant: the shape with constant 1. Reference: M. B. Cohen,
+    S. Elder, C. Musco, C. Musco and M. Persu, "Dimensionality reduction for k-means clustering and
+    low rank approximation", STOC 2015 (abstract; the random-projection theorem of its Section 6,
+    from memory).
+
+    >>> int(cemmp_clustering(10, 0.5)), int(cemmp_clustering(10, 0.1))  # 10 / 0.25, ceil(10 / 0.01)
+    (40, 1000)
+    """
+    clusters, eps = np.asarray(clusters, dtype=float), np.asarray(eps, dtype=float)
+    return np.ceil(clusters / eps**2 - 1e-9).astype(np.int64)
+
+
+def cemmp_clustering_eps(clusters: ArrayLike, k: ArrayLike) -> np.ndarray:
+    """Smallest eps with ``cemmp_clustering(K, eps) <= k`` (NaN if none below 1).
+
+    >>> round(float(cemmp_clustering_eps(10, 40)), 4)
+    0.5
+    """
+    return _smallest_eps(lambda eps: cemmp_clustering(clusters, eps) <= k, clusters, k)
+
+
 def _smallest_eps(passes: Callable[[np.ndarray], np.ndarray], *arguments) -> np.ndarray:
     """Smallest eps in (0, 1) where ``passes(eps)`` turns true (it must be monotone in eps), over
     the broadcast shape of ``arguments``.
@@ -234,6 +312,8 @@ class Bound:
     reference: str
     parameters: Callable[..., dict] = _no_parameters
     failure_bound: Callable[..., float] = lambda n, failure: float("nan")
+    #: k grows as C ln n at fixed eps, so the constant of a law k = a + C ln n compares with it
+    logarithmic: bool = True
 
 
 #: name -> bound, in the order a table shows them.
@@ -257,6 +337,26 @@ BOUNDS: dict[str, Bound] = {bound.name: bound for bound in (
 
 #: rule name -> function (n, eps) -> k, with each bound's default parameters.
 RULES: dict[str, Callable] = {name: bound.k for name, bound in BOUNDS.items()}
+
+#: the clustering bounds: n is the number of clusters K, eps the two-sided error on every K-partition's cost
+CLUSTERING_BOUNDS: dict[str, Bound] = {bound.name: bound for bound in (
+    Bound("mmr-clustering", mmr_clustering, mmr_clustering_eps,
+          "Makarychev, Makarychev & Razenshteyn, STOC 2019 (constant unstated: shape with C = 1)"),
+    Bound("cemmp-clustering", cemmp_clustering, cemmp_clustering_eps,
+          "Cohen, Elder, Musco, Musco & Persu, STOC 2015 (constant unstated: shape with C = 1)", logarithmic=False),
+)}
+
+#: problem kind -> the bounds its tables compare with (the JL bounds of :data:`BOUNDS` otherwise)
+KIND_BOUNDS: dict[str, dict[str, Bound]] = {"clustering": CLUSTERING_BOUNDS}
+
+
+def bounds_for(kind: str | None) -> dict[str, Bound]:
+    """The bounds of ``kind`` (:data:`KIND_BOUNDS`), the JL bounds for every other kind.
+
+    >>> sorted(bounds_for("clustering")), "dasgupta-gupta" in bounds_for("lp")
+    (['cemmp-clustering', 'mmr-clustering'], True)
+    """
+    return KIND_BOUNDS.get(kind, BOUNDS)
 
 
 def check_rule(rule: str) -> Bound:
@@ -329,6 +429,10 @@ COUNTING = {
     "qp": "n = the rows of A plus c and the optimum (rows + 2), the vectors a variable projection x = T^T u "
           "must keep; m = the number of variables, reduced to k",
     "points": "n = the number of points; m = their dimension, reduced to k",
+    "clustering": "n = the number of clusters K (the clustering bounds depend on K and eps, not on the number of "
+                  "points); m = the dimension of the points, reduced to k",
+    "milp": "n = the columns of the standard form's A (decisions and slacks) plus b (cols + 1), as for an LP; "
+            "m = its rows, reduced to k (bounds and integrality are kept)",
 }
 
 

@@ -29,6 +29,7 @@ from typing import Optional
 ROOT = Path(__file__).resolve().parent.parent
 README = ROOT / "README.md"
 DEMO = ROOT / "results" / "demo"
+DECISION = ROOT / "results" / "decision"
 ATLAS = ROOT / "results" / "atlas"
 MARK = re.compile(r"<!-- generated: (?P<name>[a-z-]+) \(python tests/readme_numbers.py --write\) -->\n"
                   r"(?P<body>.*?)<!-- end: (?P=name) -->", re.S)
@@ -59,8 +60,8 @@ def read_csv(path: Path) -> list[dict]:
 
 
 def speedups(rows: list[dict]) -> dict:
-    """(family, params JSON, projector, k) -> measured speed-up of a timings file."""
-    return {(row["family"], row["params"], row["projector"], int(row["k"])): float(row["speedup"])
+    """(family, params JSON, projector, retrieval, k) -> measured speed-up of a timings file."""
+    return {(row["family"], row["params"], row["projector"], row["retrieval"], int(row["k"])): float(row["speedup"])
             for row in rows if row["speedup"] not in ("", "nan")}
 
 
@@ -186,25 +187,29 @@ def demo_sections() -> dict:
     design = (f"Two projectors (dense Gaussian, sparse CountSketch), {len(ks)} values of k from {ks[0]} to {ks[-1]}, "
               f"{span(instances)} instances per size × {span(replicates)} replicate: {number(facts['trials'])} trials. "
               f"The campaign took {facts['seconds']:.0f} s on two cores{total}.\n")
-    rows = ["| class | m | class safe k (Gaussian / CountSketch) | k / m | speed-up at the safe k |", "|---|---|---|---|---|"]
+    rows = ["| class | m | class safe k, `completion` (Gaussian / CountSketch) | k / m | speed-up at the safe k | "
+            "class safe k, `basis-lstsq` |", "|---|---|---|---|---|---|"]
     for family in ("lp-basis-pursuit", "lp-quantile"):
         for index, cells in enumerate(by_size([entry for entry in entries if entry["family"] == family])):
-            named = {entry["projector"]: entry for entry in cells}
-            pair = [named.get("gaussian"), named.get("countsketch")]
-            k = ["none" if e is None or e["class"]["safe_k"] is None else str(e["class"]["safe_k"]) for e in pair]
+            named = {(entry["retrieval"], entry["projector"]): entry for entry in cells}
+            pair = [named.get(("completion", "gaussian")), named.get(("completion", "countsketch"))]
+            before = [named.get(("basis-lstsq", "gaussian")), named.get(("basis-lstsq", "countsketch"))]
+            k, k_before = (["none" if e is None or e["class"]["safe_k"] is None else str(e["class"]["safe_k"]) for e in side]
+                           for side in (pair, before))
             fractions = [e["class"]["safe_k"] / e["projected_dim"] for e in pair if e and e["class"]["safe_k"]]
-            measured = [speed.get((e["family"], params_key(e), e["projector"], e["class"]["safe_k"])) for e in pair]
+            measured = [speed.get((e["family"], params_key(e), e["projector"], e["retrieval"], e["class"]["safe_k"]))
+                        for e in pair]
             time = " / ".join("–" if t is None else f"{times(t)}×" for t in measured)
             rows.append(f"| {DEMO_NAMES[family] if index == 0 else ''} | {cells[0]['projected_dim']} | {' / '.join(k)} | "
-                        f"{span(fractions) if fractions else '—'} | {time} |")
+                        f"{span(fractions) if fractions else '—'} | {time} | {' / '.join(k_before)} |")
     story = [paragraph(design.strip()) + "\n", "\n".join(rows) + "\n"]
-    story.append(_demo_prose(entries, speed))
+    story.append(_demo_prose([entry for entry in entries if entry["retrieval"] == "completion"], speed, entries))
     return {"demo-screen": "```\n$ make demo\n...\n" + screen(tables) + "```\n",
             "demo-story": "\n".join(story),
-            "demo-detail": "```\n" + detail_block(tables, "0.05", "lp-basis-pursuit measurements=600") + "```\n"}
+            "demo-detail": "```\n" + detail_block(tables, "0.05", "lp-basis-pursuit measurements=600,length=1200 | gaussian | completion") + "```\n"}
 
 
-def _demo_prose(entries: list[dict], speed: dict) -> str:
+def _demo_prose(entries: list[dict], speed: dict, every: list[dict]) -> str:
     pursuit = [entry for entry in entries if entry["family"] == "lp-basis-pursuit"]
     sizes = by_size(pursuit)
     ks = [entry["class"]["safe_k"] for entry in pursuit]
@@ -213,8 +218,8 @@ def _demo_prose(entries: list[dict], speed: dict) -> str:
         small, large = sizes[0], sizes[-1]
         growth = large[0]["projected_dim"] / small[0]["projected_dim"]
         shares = [[e["class"]["safe_k"] / e["projected_dim"] for e in cells] for cells in (small, large)]
-        measured = [[speed.get((e["family"], params_key(e), e["projector"], e["class"]["safe_k"])) for e in cells]
-                    for cells in (small, large)]
+        measured = [[speed.get((e["family"], params_key(e), e["projector"], e["retrieval"], e["class"]["safe_k"]))
+                     for e in cells] for cells in (small, large)]
         grows = all(t is not None for side in measured for t in side) and min(measured[1]) > max(measured[0])
         parts.append(f"For basis pursuit the class safe k stays at {span(ks)} while the readings grow {growth:.0f}-fold, "
                      f"so the share of rows kept falls from {span(shares[0])} to {span(shares[1])}"
@@ -224,20 +229,97 @@ def _demo_prose(entries: list[dict], speed: dict) -> str:
     quantile = [entry for entry in entries if entry["family"] == "lp-quantile"]
     never = all(e["class"]["safe_k"] is None or e["class"]["safe_k"] >= e["projected_dim"] for e in quantile)
     if quantile and never:
-        below = [point["error_median"] for e in quantile for point in e["grid"]
-                 if point["k"] < e["projected_dim"] and point["error_median"] is not None]
-        text = ("For quantile regression no k below m meets the target with either projector: the projected LP mixes "
-                "the per-job residuals")
-        if below:
-            text += f", and the retrieved point's objective is off by a median {span([100 * v for v in below], '%')}"
+        text = ("For quantile regression at these sizes no k below m meets the target with either projector, even "
+                "with the coefficients completed")
+        largest = {(e["retrieval"], e["params"]["rows"]): e["grid"][-1] for e in every if e["family"] == "lp-quantile"
+                   and e["grid"] and e["grid"][-1]["k"] < e["projected_dim"]}
+        done = [point["rate"] for (name, _), point in largest.items() if name == "completion"]
+        lstsq = [point["rate"] for (name, _), point in largest.items() if name == "basis-lstsq"]
+        if done and lstsq:
+            ks = sorted({point["k"] for point in largest.values()})
+            text += (f": at k = {span(ks)} the completed point is usable in {span([100 * v for v in done], '%')} of the "
+                     f"trials, the least-squares point in {span([100 * v for v in lstsq], '%')}")
         at_m = [e for e in quantile if e["projector"] == "gaussian" and e["class"]["safe_k"] == e["projected_dim"]]
         if at_m:
             text += ". The dense Gaussian sketch at k = m is an invertible change of rows and gives the original back"
-            slow = [speed.get((e["family"], params_key(e), e["projector"], e["projected_dim"])) for e in at_m]
+            slow = [speed.get((e["family"], params_key(e), e["projector"], e["retrieval"], e["projected_dim"]))
+                    for e in at_m]
             slow = [value for value in slow if value is not None and value < 1]
             text += f", {span([1 / value for value in slow])} times slower than the original" if slow else ", at no saving"
-        parts.append(text + ": the answer is \"don't sketch\" for this class.")
+        parts.append(text + ": at 90-150 jobs the answer is \"don't sketch\" (at 20,000 jobs it is not: below).")
     return "\n\n".join(paragraph(part) for part in parts) + "\n"
+
+
+# ----- the user's decision: results/decision/ ------------------------------------------------------
+
+def _bench_table(rows: list[dict]) -> str:
+    """Median regression under `usable` at 5%: usable share per retrieval, end to end, speed-up, safe k."""
+    usable = [row for row in rows if row["preset"] == "usable" and row["projector"] == "countsketch"]
+    out = ["| rows | k (k/m) | usable, basis-lstsq | usable, completion | end to end | baseline | speed-up |",
+           "|---|---|---|---|---|---|---|"]
+    for size in dict.fromkeys(row["size"] for row in usable):
+        cells = {(row["retrieval"], row["k"]): row for row in usable if row["size"] == size}
+        for k in sorted({k for _, k in cells}):
+            done, before = cells[("completion", k)], cells[("basis-lstsq", k)]
+            safe = done["class_safe_k"] if done["class_safe_k"] is not None else done["safe_k"]
+            mark = "**" if k == safe else ""
+            out.append(f"| {number(done['m'])} | {mark}{number(k)} ({100 * k / done['m']:.2g}%){mark} | "
+                       f"{round(before['rate'] * before['trials'])}/{before['trials']} | "
+                       f"{mark}{round(done['rate'] * done['trials'])}/{done['trials']}{mark} | {done['reduced_s']:.2g} s | "
+                       f"{done['baseline_s']:.3g} s | {times(done['speedup'])}× |")
+    return "\n".join(out) + "\n"
+
+
+def _bench_prose(rows: list[dict]) -> str:
+    done = [row for row in rows if row["preset"] == "usable" and row["projector"] == "countsketch"
+            and row["retrieval"] == "completion"]
+    parts = []
+    for size in dict.fromkeys(row["size"] for row in done):
+        cells = [row for row in done if row["size"] == size]
+        head = cells[0]
+        safe, scope = ((head["class_safe_k"], "for the class") if head["class_safe_k"] is not None
+                       else (head["safe_k"], "for these instances"))
+        if safe is None:
+            parts.append(f"At {number(head['m'])} rows no tested k is safe.")
+            continue
+        at = next(row for row in cells if row["k"] == safe)
+        parts.append(f"At {number(head['m'])} rows the safe k {scope} is {number(safe)} = {100 * safe / head['m']:.2g}% "
+                     f"of m, {times(at['speedup'])}× faster end to end than the original by its fastest method.")
+    before = [row for row in rows if row["preset"] == "usable" and row["retrieval"] == "basis-lstsq"]
+    if before and all(row["rate"] == 0 for row in before):
+        parts.append("Judged on all columns (`basis-lstsq`), no tested k was usable at either size.")
+    return paragraph(" ".join(parts)) + "\n"
+
+
+def _verdict_rows(table: dict) -> str:
+    """Class safe k per class, Gaussian / CountSketch, with the decision completed and without."""
+    analysis = table["analyses"][0]
+    found: dict = {}
+    for entry in analysis["entries"]:
+        found.setdefault((class_name(entry), entry["projected_dim"]), {})[(entry["retrieval"], entry["projector"])] = entry
+    out = ["| class | m | before (`basis-lstsq`, or the kind's one retrieval) | after (`completion`) |", "|---|---|---|---|"]
+    for (name, m), cells in found.items():
+        def pair(retrieval: str) -> str:
+            got = [cells.get((retrieval, projector)) for projector in ("gaussian", "countsketch")]
+            return " / ".join("none" if e is None or e["class"]["safe_k"] is None else str(e["class"]["safe_k"]) for e in got)
+        own = next(retrieval for retrieval, _ in cells)
+        before = pair("basis-lstsq") if ("basis-lstsq", "gaussian") in cells else pair(own)
+        after = pair("completion") if ("completion", "gaussian") in cells else "(no LP: as before)"
+        changed = "**" if after != before and not after.startswith("(") else ""
+        out.append(f"| {name} | {number(m)} | {before} | {changed}{after}{changed} |")
+    return "\n".join(out) + "\n"
+
+
+def decision_section() -> str:
+    rows = read_json(DECISION / "bench-quantile.json")
+    verdicts = read_json(DECISION / "verdicts-usable.json")
+    instances = sorted({entry["instances"] for entry in verdicts["analyses"][0]["entries"]})
+    lead = paragraph("Median regression with 5 features, CountSketch, `usable` at 5% "
+                     "(`results/decision/bench-quantile.json`, made by `make bench`):") + "\n"
+    verdict_lead = paragraph(f"Every class verdict again, one size per class, {span(instances)} instances, class safe "
+                             "k (Gaussian / CountSketch) under `usable` at 5% (`results/decision/verdicts-usable.json`, "
+                             "from `instances/bench/verdicts.toml`):") + "\n"
+    return "\n".join([lead, _bench_table(rows), _bench_prose(rows), verdict_lead, _verdict_rows(verdicts)])
 
 
 # ----- the atlas ----------------------------------------------------------------------------------
@@ -285,7 +367,7 @@ def atlas_lp_section() -> str:
                 ratios_ln.append(_rule(law, "ln-over-eps2") / fit["C"])
         speeds = []
         for cells in sizes:
-            values = [speed.get((e["family"], params_key(e), e["projector"], e["class"]["safe_k"])) for e in cells]
+            values = [speed.get((e["family"], params_key(e), e["projector"], e["retrieval"], e["class"]["safe_k"])) for e in cells]
             values = [value for value in values if value is not None]
             baseline = base.get((cells[0]["family"], params_key(cells[0])))
             speeds.append(f"m = {cells[0]['projected_dim']}: {span(values, '×', times)}" if values else
@@ -404,7 +486,7 @@ def atlas_run_section() -> str:
 def sections() -> dict[str, str]:
     """Every generated section of the README, from the files (module text)."""
     out = {"lookup": lookup_section(), "atlas-lp": atlas_lp_section(), "atlas-points": atlas_points_section(),
-           "atlas-run": atlas_run_section()}
+           "atlas-run": atlas_run_section(), "decision": decision_section()}
     if (DEMO / "safe_k.json").is_file():
         out |= demo_sections()
     return out

@@ -28,6 +28,12 @@ from calib.sweep.store import Store
 
 ROOT = Path(__file__).resolve().parent.parent
 SPECS = (ROOT / "instances" / "atlas.toml", ROOT / "instances" / "atlas-points.toml")
+#: the clustering campaign: a k grid (its table answers a ladder of cost tolerances), not a search
+CLUSTERING_SPEC = ROOT / "instances" / "atlas-clustering.toml"
+#: the integer programs: searched like SPECS, with a time cap on the projected MIP alone
+MILP_SPEC = ROOT / "instances" / "atlas-milp.toml"
+#: every atlas spec, in the order of calib.atlas.ATLAS_FILES
+ALL_SPECS = SPECS + (CLUSTERING_SPEC, MILP_SPEC)
 #: every family class the atlas must hold (lp-planted with and without a rank)
 CLASSES = {"lp-planted rank", "lp-planted", "lp-covering", "lp-quantile", "lp-basis-pursuit", "lp-transport",
            "sdp-maxcut", "qp-portfolio", "points-gaussian"}
@@ -117,6 +123,32 @@ def test_the_atlas_specs_keep_their_design(path):
         assert cell.instances >= 29
 
 
+def test_the_clustering_atlas_spec_keeps_its_design():
+    # Its comments: a grid, 29 instances x 3 replicates per size (29 of 29 certify 0.9 at 95%), every
+    # clustering family and both methods, sizes spanning at least 2x in K (the clustering n)
+    spec = load_spec(CLUSTERING_SPEC)
+    assert not spec.k_grid.is_search and spec.replicates == 3
+    classes = set()
+    for cell in spec.families:
+        family = get(cell.name)
+        assert family.kind == "clustering" and cell.instances >= 29
+        classes.add((cell.name, cell.sizes[0]["method"]))
+        low, high = _n_range(cell)
+        assert high >= 2 * low
+    assert classes == {("cluster-mixture", "lloyd"), ("cluster-mixture", "sized"), ("cluster-digits", "lloyd")}
+
+
+def test_the_milp_atlas_spec_keeps_its_design():
+    # Its comments: the design of the other atlas specs (search to m/2, 29 instances, four projectors,
+    # n over a decade) for both MILP families, and a time cap of the projected MIP
+    spec = load_spec(MILP_SPEC)
+    assert spec.k_grid.is_search and len(spec.projectors) == 4 and spec.solver.get("projected_time_limit_s")
+    assert {cell.name for cell in spec.families} == {"milp-knapsack", "milp-cover"}
+    for cell in spec.families:
+        low, high = _n_range(cell)
+        assert len(cell.sizes) >= 4 and high >= 10 * low and cell.instances >= 29
+
+
 def test_the_atlas_covers_every_family_class_with_projected_caps():
     found = set()
     for path in SPECS:
@@ -147,7 +179,9 @@ def test_the_shipped_atlas_validates_and_its_checksum_matches(name):
 
 #: one cell per atlas file, cheap to re-run here: (spec, family, size index, projector, predicate, tau)
 RERUN = [(SPECS[0], "lp-transport", 0, "countsketch", "bound", 0.05),
-         (SPECS[1], "points-gaussian", 0, "srht", "distortion", 0.3)]
+         (SPECS[1], "points-gaussian", 0, "srht", "distortion", 0.3),
+         (CLUSTERING_SPEC, "cluster-mixture", 0, "gaussian", "clustering", 0.05),
+         (MILP_SPEC, "milp-cover", 0, "gaussian", "usable", 0.05)]
 
 
 def _entry(table: dict, tau: float, family: str, projector: str, n_points: int) -> dict:
@@ -179,7 +213,7 @@ def test_one_atlas_cell_run_again_here_gives_the_committed_numbers(tmp_path, spe
         table = build_table(store, make_predicate(preset), Confidence(), taus=[tau])
     finally:
         store.close()
-    name = atlas.ATLAS_FILES[SPECS.index(spec_path)]
+    name = atlas.ATLAS_FILES[ALL_SPECS.index(spec_path)]
     committed = json.loads((atlas.SHIPPED / name).read_text(encoding="utf-8"))
     n_points = get(family).n_points(cell["sizes"][size_index] | cell.get("params", {}))
     ours, theirs = (_entry(item, tau, family, projector, n_points) for item in (table, committed))

@@ -38,18 +38,22 @@ def test_unknown_family_is_a_one_line_error(capsys):
 
 # one small family per kind; the counting text is checked against the problem each one builds
 KIND_EXAMPLES = {"lp": ("lp-planted", {"rows": 6, "cols": 12}), "sdp": ("sdp-planted", {"order": 4, "constraints": 5}),
-                 "qp": ("qp-random", {"vars": 8, "rows": 5}), "points": ("points-gaussian", {"points": 7, "dim": 9})}
+                 "qp": ("qp-random", {"vars": 8, "rows": 5}), "points": ("points-gaussian", {"points": 7, "dim": 9}),
+                 "clustering": ("cluster-mixture", {"points": 12, "dim": 5, "clusters": 3}),
+                 "milp": ("milp-knapsack", {"constraints": 6, "items": 4})}
 
 
 def _counted_from_the_problem(kind: str, problem) -> tuple[int, int]:
     """(n, m) as the kind's counting text states them, read off the built problem itself."""
-    if kind == "lp":  # the columns of A plus b; the rows of A
+    if kind in ("lp", "milp"):  # the columns of A (decisions and slacks for an MILP) plus b; the rows of A
         return problem.A.shape[1] + 1, problem.A.shape[0]
     if kind == "sdp":  # d(d + 1)/2 + 1 for order d; the constraints
         order = problem.C.shape[0]
         return order * (order + 1) // 2 + 1, len(problem.b)
     if kind == "qp":  # the rows of A plus c and the optimum; the variables
         return problem.A.shape[0] + 2, len(problem.c)
+    if kind == "clustering":  # the clusters; the dimension of the points
+        return problem.clusters, problem.points.shape[1]
     return problem.points.shape  # the points; their dimension
 
 

@@ -275,3 +275,12 @@ def test_a_max_cut_record_judges_the_cut_and_a_square_orthogonal_sketch_keeps_it
     expected = float(np.sum(np.arccos(unit[edges[:, 0], edges[:, 1]])) / np.pi)
     assert record["cut_original"] == pytest.approx(expected, rel=1e-6)
     assert record["cut_ratio"] == pytest.approx(1.0, abs=1e-4) and record["cut_gain_kept"] == pytest.approx(1.0, abs=1e-3)
+
+
+def test_the_table_readers_know_each_kinds_default_retrieval():
+    # calib.metrics.DEFAULT_RETRIEVALS lets table readers (the one-screen answer) prefer the default
+    # without importing the solvers; it must name what the handlers run
+    from calib.metrics import DEFAULT_RETRIEVALS
+    from calib.reduce import HANDLERS
+
+    assert {kind: handler.default_retrieval for kind, handler in HANDLERS.items()} == DEFAULT_RETRIEVALS

@@ -20,6 +20,11 @@ SCENARIOS = [  # (family, params, k values, projected statuses the scenario exis
     ("qp-random", {"vars": 20, "rows": 10, "radius": 1.0}, (10,), {"optimal"}),
     ("qp-portfolio", {"assets": 12}, (6,), {"optimal", "infeasible"}),
     ("points-gaussian", {"points": 20, "dim": 30}, (10,), {None}),  # nothing is solved: no status
+    ("cluster-mixture", {"points": 60, "dim": 12, "clusters": 3}, (2, 6), {"optimal"}),
+    ("cluster-mixture", {"points": 60, "dim": 12, "clusters": 3, "method": "sized", "min_share": 1.0}, (4,), {"optimal"}),
+    ("cluster-mixture", {"points": 60, "dim": 12, "clusters": 3, "max_iter": 1}, (4,), {"stopped_on_iterations"}),
+    ("milp-knapsack", {"constraints": 12, "items": 6}, (3, 12), {"optimal"}),
+    ("milp-cover", {"elements": 12, "sets": 6, "density": 0.3}, (3, 12), {"optimal"}),
 ]
 
 

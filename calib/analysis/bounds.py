@@ -4,6 +4,11 @@ How a success predicate is turned into the eps of the theory (written into every
 
 - point sets: the distortion tolerance is eps itself (both bound the relative change of squared
   pairwise distances, as in Dasgupta–Gupta);
+- clustering: the cost tolerance tau (cost ratio <= 1 + tau) gives eps = tau / (2 + tau), the eps at
+  which keeping every K-partition's cost within 1 +- eps guarantees the ratio for exact optima
+  (:func:`calib.theory.cost_ratio_eps`); the bounds are those of :data:`calib.theory.CLUSTERING_BOUNDS`
+  with n = K, and only the logarithmic ones (Makarychev et al.'s ln(K / eps) / eps²) give a law
+  constant (C = 1 / eps² for their shape with constant 1);
 - LPs, SDPs and QPs: no theorem ties an objective or feasibility tolerance to eps, so eps is a
   stated choice: ``--eps`` when given, else the predicate's primary tolerance tau (a convention:
   "the bound at eps = tau"). Predicates without a tolerance (``classify``) need ``--eps``.
@@ -44,6 +49,9 @@ _LOG_SPAN = (20.0, 50.0)
 EPS_CONVENTION = ("point sets: eps is the distortion tolerance; LPs, SDPs, QPs: eps is --eps when given, else "
                   "the predicate's primary tolerance tau (a stated convention, not a theorem)")
 EPS_FROM_DISTORTION = "the predicate's distortion tolerance (for point sets eps is the distortion tolerance)"
+EPS_FROM_COST = ("tau / (2 + tau) for the cost tolerance tau: every K-partition's cost kept within 1 +- eps bounds "
+                 "the cost ratio of exact optima by (1 + eps) / (1 - eps) = 1 + tau")
+CLUSTERING_CONVENTION = "; clustering: eps = tau / (2 + tau) for the cost tolerance tau, n = the number of clusters K"
 EPS_FROM_USER = "--eps given at analysis time (a stated choice; no theorem ties this tolerance to eps)"
 EPS_FROM_TAU = ("the predicate's primary tolerance tau (convention: the bound at eps = tau; no theorem ties "
                 "an LP/SDP/QP tolerance to eps; choose another with --eps)")
@@ -59,7 +67,11 @@ def theory_eps(predicate: Predicate, kind: str, eps: Optional[float] = None) -> 
     >>> theory_eps(Predicate("bound", gap=0.05), "lp", eps=0.3)[0]
     0.3
     """
-    if kind == "points":
+    if kind == "clustering":
+        if predicate.cost is None:
+            return None, "the predicate has no cost tolerance"
+        chosen, source = float(theory.cost_ratio_eps(predicate.cost)), EPS_FROM_COST
+    elif kind == "points":
         if predicate.distortion is None:
             return None, "the predicate has no distortion tolerance"
         chosen, source = predicate.distortion, EPS_FROM_DISTORTION
@@ -84,12 +96,27 @@ def dasgupta_gupta_at(n, eps, failure):
     return np.ceil(2.0 * np.log(n * (n - 1.0) / failure) / (eps**2 / 2.0 - eps**3 / 3.0)).astype(np.int64)
 
 
-def rules_at(failure: Optional[float]) -> dict[str, tuple]:
-    """name -> ((n, eps) -> k at ``failure``, the failure probability it holds at or None)."""
+def rule_names(kinds) -> list[str]:
+    """The names of the bounds the tables of rows of ``kinds`` compare with, sorted.
+
+    >>> rule_names(["lp"]) == sorted(theory.RULES), rule_names(["clustering"])
+    (True, ['cemmp-clustering', 'mmr-clustering'])
+    """
+    return sorted({name for kind in kinds for name in theory.bounds_for(kind)})
+
+
+def eps_convention(kinds) -> str:
+    """:data:`EPS_CONVENTION`, with the clustering rule when ``kinds`` holds clustering."""
+    return EPS_CONVENTION + (CLUSTERING_CONVENTION if "clustering" in kinds else "")
+
+
+def rules_at(failure: Optional[float], kind: Optional[str] = None) -> dict[str, tuple]:
+    """name -> ((n, eps) -> k at ``failure``, the failure probability it holds at or None), for the
+    bounds of ``kind`` (:func:`calib.theory.bounds_for`)."""
     if failure is None:
-        return {name: (rule, None) for name, rule in theory.RULES.items()}
+        return {name: (bound.k, None) for name, bound in theory.bounds_for(kind).items()}
     rules = {}
-    for name, bound in theory.BOUNDS.items():
+    for name, bound in theory.bounds_for(kind).items():
         if name == "dasgupta-gupta":
             rules[name] = (lambda n, eps: dasgupta_gupta_at(n, eps, failure), failure)
         elif bound.parameters(2.0, failure):
@@ -99,30 +126,37 @@ def rules_at(failure: Optional[float]) -> dict[str, tuple]:
     return rules
 
 
-def bound_k(n_points: int, eps: float, failure: Optional[float] = None) -> dict[str, dict]:
-    """k of every published rule for ``n_points`` points at ``eps`` and total failure ``failure``
-    (each rule's own default when None), with the failure probability it holds at (None: not stated).
+def bound_k(n_points: int, eps: float, failure: Optional[float] = None, kind: Optional[str] = None) -> dict[str, dict]:
+    """k of every published rule of ``kind`` for ``n_points`` points (clusters, for clustering) at
+    ``eps`` and total failure ``failure`` (each rule's own default when None), with the failure
+    probability it holds at (None: not stated).
 
     >>> bound_k(1001, 0.5)["dasgupta-gupta"]["k"]
     332
     >>> bound_k(1000, 0.5, 0.1)["achlioptas"]  # ceil((4 ln 1000 + 2 ln 10) / (1/8 - 1/24))
     {'k': 387, 'failure': 0.1}
+    >>> bound_k(10, 0.1, 0.1, kind="clustering")["mmr-clustering"]  # ceil(ln(10 / 0.1) / 0.1^2)
+    {'k': 461, 'failure': None}
     """
     n = np.asarray(float(n_points))
     return {name: {"k": int(rule(n, np.asarray(eps))), "failure": at}
-            for name, (rule, at) in sorted(rules_at(failure).items())}
+            for name, (rule, at) in sorted(rules_at(failure, kind).items())}
 
 
-def rule_constants(eps: float, failure: Optional[float] = None) -> dict[str, float]:
-    """C_rule of every published rule at ``eps`` and ``failure`` (k ~= C_rule ln n); see the module text.
+def rule_constants(eps: float, failure: Optional[float] = None, kind: Optional[str] = None) -> dict[str, float]:
+    """C_rule of every published rule of ``kind`` that grows as ln n, at ``eps`` and ``failure``
+    (k ~= C_rule ln n); see the module text.
 
     >>> round(rule_constants(0.5)["dasgupta-gupta"], 1)  # 4 / (1/8 - 1/24) = 48
     48.0
+    >>> {name: round(C, 1) for name, C in rule_constants(0.1, 0.1, "clustering").items()}  # 1 / 0.1^2; CEMMP is linear in K
+    {'mmr-clustering': 100.0}
     """
     low, high = (np.asarray(np.exp(x)) for x in _LOG_SPAN)
     eps = np.asarray(eps)
+    logarithmic = {name for name, bound in theory.bounds_for(kind).items() if bound.logarithmic}
     return {name: float(rule(high, eps) - rule(low, eps)) / (_LOG_SPAN[1] - _LOG_SPAN[0])
-            for name, (rule, _) in sorted(rules_at(failure).items())}
+            for name, (rule, _) in sorted(rules_at(failure, kind).items()) if name in logarithmic}
 
 
 def ratio(bound: float, measured: Optional[float]) -> Optional[float]:

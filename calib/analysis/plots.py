@@ -195,9 +195,8 @@ def law_plot(analysis: dict, family: str) -> Plot:
                 ax.plot(span[side], values[side], "--", color=colour)
     eps = laws[0]["theory"]["eps"] if laws else None
     if eps is not None:
-        for rule_name, rule in sorted(theory.RULES.items()):
-            ax.plot(span, rule(span, np.asarray(eps)), ":", color=BOUND_COLOURS.get(rule_name, "grey"),
-                    label=f"{rule_name} at eps = {eps:g}")
+        for name, bound in sorted(theory.bounds_for(laws[0]["kind"]).items()):
+            ax.plot(span, bound.k(span, np.asarray(eps)), ":", color=BOUND_COLOURS.get(name, "grey"), label=f"{name} at eps = {eps:g}")
     _log_x(ax)
     ax.set_yscale("log")
     ax.set_xlabel("n (points the JL theory counts)")

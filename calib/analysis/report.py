@@ -241,19 +241,51 @@ def figures(table: dict, analysis: dict, timings: pd.DataFrame) -> list[str]:
 
 def glance_table(table: dict, analysis: dict, timings: pd.DataFrame) -> str:
     """The one-screen answer (:func:`calib.analysis.summary.summary_lines`) as an HTML table."""
-    from calib.analysis.summary import HEADER, cells, summary_lines
+    from calib.analysis.summary import answer_table, best_lines, retrieval_note, summary_lines
     from calib.analysis.tables import class_labels
 
     lines = summary_lines(analysis, timings, class_labels(analysis))
-    head = "".join(f'<th class="text">{escape(name)}</th>' for name in HEADER)
+    header, rows, one = answer_table(lines)
+    head = "".join(f'<th class="text">{escape(name)}</th>' for name in header)
+    note = retrieval_note(lines, one)
     body = []
-    for line in lines:
-        values = cells(line)
+    for line, values in zip(best_lines(lines), rows):
         css = "sketch" if line["verdict"] == "sketch" else "dont"
         body.append(f'<tr class="{css}">' + "".join(f'<td class="text">{escape(value)}</td>' for value in values[:2])
                     + "".join(f"<td>{escape(value)}</td>" for value in values[2:-1])
                     + f'<td class="answer">{escape(values[-1])}</td></tr>')
-    return f'<div class="fold glance"><table>\n<tr>{head}</tr>\n' + "\n".join(body) + "\n</table></div>"
+    caption = f"<p>{escape(note)}.</p>" if note else ""
+    return f'<div class="fold glance">{caption}<table>\n<tr>{head}</tr>\n' + "\n".join(body) + "\n</table></div>"
+
+
+def retrieval_table(analysis: dict) -> str:
+    """Per LP class, size and projector holding several retrievals: each retrieval's class safe k, and its
+    success rate and median error at the largest tested k below m ("" when no cell holds two retrievals)."""
+    cells: dict = {}
+    for entry in _sorted(analysis):
+        if entry["kind"] == "lp":
+            cells.setdefault((entry["family"], entry["size"], entry["projector"]), []).append(entry)
+    rows = []
+    for (family, size, projector), entries in cells.items():
+        if len(entries) < 2:
+            continue
+        below = [point["k"] for point in entries[0]["grid"] if point["k"] < entries[0]["projected_dim"]]
+        k = max(below) if below else None
+        for entry in entries:
+            point = next((point for point in entry["grid"] if point["k"] == k), None)
+            rows.append([family, size, projector, entry["retrieval"], _k_text(entry["class"]["safe_k"], entry["class"]["safe_fraction"]),
+                         "–" if point is None else k, "–" if point is None else f"{point['successes']}/{point['trials']}",
+                         "–" if point is None or point["error_median"] is None else _number(point["error_median"])])
+    if not rows:
+        return ""
+    return ("<h2>Judged on the decision</h2><p>The same projected solves, retrieved two ways. <code>completion</code> "
+            "keeps the user's decision variables of the projected solution (coefficients, servings, flows, the signal) "
+            "and completes the residual and slack columns exactly, so its point is what a user would take; "
+            "<code>basis-lstsq</code> and the other retrievals judge every column. Where completion does not help, "
+            "the decision itself is off (a covering LP's projected optimum collapses to buying nothing): "
+            "docs/decision.md.</p>"
+            + html_table(["class", "size", "projector", "retrieval", "class safe k (k/m)", "largest k < m", "successes",
+                          "median error"], rows))
 
 
 def _frame_table(frame: pd.DataFrame) -> str:
@@ -301,6 +333,7 @@ def build_report(table: dict, timings: pd.DataFrame, spec: dict) -> str:
         '<div class="cards">', *[answer_card(answer) for answer in answers], "</div>",
     ]
     parts += [f"<p>Left out: {escape(item['family'])} ({escape(item['reason'])}).</p>" for item in first["excluded"]]
+    parts += [retrieval_table(first)]
     parts += [f"<h2>Figures ({escape(predicate_text(first['predicate']))})</h2>"]
     parts += figures(table, first, timings)
     parts += ["<h2>Time against the fair baseline</h2>", f"<p><strong>{escape(time_verdict(timings, first))}</strong></p>",

@@ -25,9 +25,12 @@ Presets (README, "Reading the table"):
 - ``classify``: only the feasibility verdict of the projected problem must match the original.
 - ``distortion``: point sets; the worst pairwise distortion of squared distances is at most
   ``distortion`` (this tolerance is the JL eps itself).
+- ``clustering``: clustering; the partition found on the projected points costs, on the original
+  points, at most 1 + ``cost`` times the partition found on them by the same method from the same
+  starts: ``cluster_cost_ratio - 1 <= cost`` (one-sided: a ratio below 1, a better partition, passes).
 
-Cost (``faster``, set by the ``policy`` preset or ``--faster`` on any preset): a trial of an LP, SDP
-or QP also needs t_total < t_baseline, i.e. sketch + projected solve + this retrieval (with its
+Cost (``faster``, set by the ``policy`` preset or ``--faster`` on any preset): a trial of an LP, SDP,
+QP or clustering also needs t_total < t_baseline, i.e. sketch + projected solve + this retrieval (with its
 extra solves) took less wall time than the original solved by its fastest configured method; a
 warm start must also have saved simplex iterations (iterations_saved > 0). Such a verdict depends
 on measured times, so it can differ between two runs of one campaign.
@@ -59,9 +62,13 @@ from calib.metrics import FIELDS
 
 #: tolerance name -> stored metric column, in the order "the primary error" is chosen
 TOLERANCE_METRICS = {"gap": "proj_gap", "obj": "obj_error", "feas": "feas_error", "sign": "sign_violation",
-                     "distortion": "distortion_max"}
+                     "distortion": "distortion_max", "cost": "cluster_cost_ratio"}
+#: metrics whose error is their excess over a reference value, signed (one-sided tolerance): column -> reference
+EXCESS_OVER = {"cluster_cost_ratio": 1.0}
 #: problem kinds whose projected solve has a feasibility verdict
-OPTIMIZATION_KINDS = ("lp", "sdp", "qp")
+OPTIMIZATION_KINDS = ("lp", "sdp", "qp", "milp")
+#: problem kinds whose trials are timed against a fair baseline (the cost condition applies to them)
+TIMED_KINDS = OPTIMIZATION_KINDS + ("clustering",)
 
 
 @dataclass(frozen=True)
@@ -76,9 +83,14 @@ class Predicate:
     distortion: Optional[float] = None
     classify: bool = True
     faster: bool = False
+    cost: Optional[float] = None
 
     def as_dict(self) -> dict:
-        return asdict(self)
+        """The fields; ``cost`` only when set (a table of a predicate without it keeps its former keys)."""
+        values = asdict(self)
+        if values["cost"] is None:
+            del values["cost"]
+        return values
 
     def checks(self, kind: str) -> list[str]:
         """Tolerance names checked on rows of ``kind`` (metrics the kind does not fill are skipped)."""
@@ -122,17 +134,18 @@ PRESETS = {
     "bound": Predicate("bound", gap=0.05),
     "classify": Predicate("classify", gap=None),
     "distortion": Predicate("distortion", gap=None, distortion=0.2, classify=False),
+    "clustering": Predicate("clustering", gap=None, cost=0.05, classify=False),
 }
 #: former preset names still accepted
 ALIASES = {"solution": "usable"}
 
 #: tolerance -> the command-line option that sets it (acceptance thresholds of the analysis, not solver settings)
 OPTIONS = {"gap": "--max-gap", "obj": "--max-obj-error", "feas": "--max-infeasibility", "sign": "--max-sign-violation",
-           "distortion": "--max-distortion"}
+           "distortion": "--max-distortion", "cost": "--max-cost-excess"}
 
 #: preset -> tolerances that its tau moves
 PRIMARY = {"usable": ("obj", "feas", "sign"), "policy": ("obj", "feas", "sign"), "bound": ("gap",), "classify": (),
-           "distortion": ("distortion",)}
+           "distortion": ("distortion",), "clustering": ("cost",)}
 
 
 def _positive(value, where: str) -> float:
@@ -227,6 +240,20 @@ def _numbers(rows: pd.DataFrame, column: str) -> pd.Series:
     return pd.to_numeric(rows[column], errors="coerce")
 
 
+def metric_error(values: pd.Series, column: str) -> pd.Series:
+    """The error of a stored metric that its tolerance bounds: |value|, or the signed excess
+    value - reference for the one-sided metrics of :data:`EXCESS_OVER`.
+
+    >>> import pandas as pd
+    >>> metric_error(pd.Series([1.02, 0.97]), "cluster_cost_ratio").round(6).tolist(), metric_error(pd.Series([-0.2]), "obj_error").tolist()
+    ([0.02, -0.03], [0.2])
+    """
+    import pandas as pd
+
+    values = pd.to_numeric(values, errors="coerce")
+    return values - EXCESS_OVER[column] if column in EXCESS_OVER else values.abs()
+
+
 def saves_time(rows: pd.DataFrame) -> pd.Series:
     """Per row: faster end to end than the fair baseline (t_total < t_baseline), and for a warm start
     fewer simplex iterations than the cold solve (iterations_saved > 0 where recorded).
@@ -258,13 +285,13 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
             continue
         kinds = FIELDS[column].classes.split()
         applies = rows["kind"].isin(kinds)
-        if column != "distortion_max":
-            applies &= orig_feasible  # objective metrics exist only when the original has an optimum
-        values = pd.to_numeric(rows[column], errors="coerce").abs()
+        # objective metrics of a solved kind exist only when the original has an optimum
+        applies &= orig_feasible | ~rows["kind"].isin(OPTIMIZATION_KINDS)
+        values = metric_error(rows[column], column)
         # a checked metric that is missing where it applies is a failure, never a pass
         success &= ~applies | (values.le(tolerance) & values.notna())
     if predicate.faster:
-        success &= ~rows["kind"].isin(OPTIMIZATION_KINDS) | saves_time(rows)
+        success &= ~rows["kind"].isin(TIMED_KINDS) | saves_time(rows)
     elif predicate.judges_points() and "exact" in rows:
         success &= ~rows["exact"].eq(True)  # solved the original: no answer of the reduction, and no time to judge it by
     covered = rows["kind"].map(predicate.covers).astype(bool)

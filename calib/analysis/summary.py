@@ -92,6 +92,27 @@ def summary_lines(analysis: dict, timings: Optional[pd.DataFrame], label) -> lis
     return lines
 
 
+def best_lines(lines: list[dict]) -> list[dict]:
+    """One line per (class, size, projector): the retrieval with the smallest safe k (a k before none),
+    ties to the kind's default retrieval (:data:`calib.metrics.DEFAULT_RETRIEVALS`), then by name.
+
+    >>> pick = best_lines([{"family": "f", "label": "", "size": "s", "projector": "p", "kind": "lp", "k": k,
+    ...                     "retrieval": name} for k, name in ((40, "basis-lstsq"), (40, "completion"), (None, "x"))])
+    >>> [(line["retrieval"], line["k"]) for line in pick]
+    [('completion', 40)]
+    """
+    from calib.metrics import DEFAULT_RETRIEVALS
+
+    best: dict = {}
+    for line in lines:
+        key = (line["family"], line["label"], line["size"], line["projector"])
+        rank = (line["k"] is None, line["k"] or 0, line["retrieval"] != DEFAULT_RETRIEVALS.get(line["kind"]),
+                line["retrieval"])
+        if key not in best or rank < best[key][0]:
+            best[key] = (rank, line)
+    return [line for _, line in best.values()]
+
+
 def _float(value) -> Optional[float]:
     return None if value is None or pd.isna(value) else float(value)
 
@@ -139,14 +160,42 @@ def heading(table: dict, analysis: dict) -> list[str]:
             f"solved by its fastest method over sketch + projected solve + retrieval at that k (medians)"]
 
 
+#: columns of the answer right-aligned as numbers
+NUMERIC = {"m", "safe k", "k/m", "speed-up"}
+
+
+def answer_table(lines: list[dict]) -> tuple[list[str], list[list[str]], Optional[str]]:
+    """(header, text rows, retrieval) of the answer: the :func:`best_lines` of ``lines``, with a retrieval
+    column when the cells' best retrievals differ; else that one retrieval (for the heading) and no column."""
+    chosen = best_lines(lines)
+    names = sorted({line["retrieval"] for line in chosen})
+    if len(names) <= 1:
+        return HEADER, [cells(line) for line in chosen], names[0] if names else None
+    return (HEADER[:4] + ["retrieval"] + HEADER[4:], [cells(line)[:4] + [line["retrieval"]] + cells(line)[4:]
+                                                      for line in chosen], None)
+
+
+def retrieval_note(lines: list[dict], one: Optional[str]) -> Optional[str]:
+    """A heading line naming the retrieval the answer is for, when the table holds several."""
+    held = sorted({line["retrieval"] for line in lines})
+    if len(held) <= 1:
+        return None
+    which = f"retrieval {one}" if one else "the retrieval named per line"
+    return (f"{which}: of the table's retrievals ({', '.join(held)}), the one with the smallest safe k per cell "
+            f"(ties to the kind's default)")
+
+
 def summary_text(table: dict, analysis: dict, timings: Optional[pd.DataFrame], label) -> str:
-    """The lines of :func:`summary_lines` as a fixed-width block under :func:`heading` (wrapped)."""
+    """The :func:`answer_table` of :func:`summary_lines` as a fixed-width block under :func:`heading` (wrapped)."""
     import textwrap
 
-    rows = [HEADER] + [cells(line) for line in summary_lines(analysis, timings, label)]
-    widths = [max(len(row[column]) for row in rows) for column in range(len(HEADER) - 1)]
-    numeric = {2, 4, 5, 6}
-    out = [line for text in heading(table, analysis) for line in textwrap.wrap(text, WIDTH, break_on_hyphens=False)]
+    lines = summary_lines(analysis, timings, label)
+    header, body, one = answer_table(lines)
+    rows = [header] + body
+    widths = [max(len(row[column]) for row in rows) for column in range(len(header) - 1)]
+    numeric = {column for column, name in enumerate(header) if name in NUMERIC}
+    texts = heading(table, analysis) + [note for note in [retrieval_note(lines, one)] if note]
+    out = [line for text in texts for line in textwrap.wrap(text, WIDTH, break_on_hyphens=False)]
     for row in rows:
         parts = [value.rjust(width) if column in numeric else value.ljust(width)
                  for column, (value, width) in enumerate(zip(row, widths))]

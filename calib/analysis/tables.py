@@ -44,7 +44,7 @@ from typing import Iterable, Optional
 import numpy as np
 import pandas as pd
 
-from calib import SCHEMA_VERSION, __version__, theory
+from calib import SCHEMA_VERSION, __version__
 from calib.analysis import bounds
 from calib.analysis import policy as policy_answer
 # safe_k_rule and load_rows are also imported from here by lookup, export and older callers
@@ -55,7 +55,7 @@ from calib.analysis.law import Law, fit_law
 from calib.features import NUMERIC, median_features
 from calib.analysis.logistic import LogisticFit
 from calib.analysis.rows import load_rows
-from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate, primary_tau, with_tau
+from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate, metric_error, primary_tau, with_tau
 from calib.analysis.tablefile import FORMAT, VERSION, dumps, seal
 from calib.errors import InputError
 from calib.sweep.store import Store
@@ -104,13 +104,13 @@ def solver_error_mask(rows: pd.DataFrame) -> pd.Series:
 
 
 def _error_column(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
-    """Per row: |value| of the error metric of its kind under the predicate (NaN when none)."""
+    """Per row: the error of its kind's error metric under the predicate (:func:`metric_error`; NaN when none)."""
     error = pd.Series(np.nan, index=rows.index)
     for kind in rows["kind"].unique():
         metric = predicate.error_metric(kind)
         if metric is not None:
             mask = rows["kind"].eq(kind)
-            error[mask] = pd.to_numeric(rows.loc[mask, metric], errors="coerce").abs()
+            error[mask] = metric_error(rows.loc[mask, metric], metric)
     return error
 
 
@@ -165,7 +165,7 @@ def _theory(kind: str, n_points: int, safe_k: Optional[int], class_safe_k: Optio
     return {"eps": chosen, "eps_source": source, "failure": delta,
             "bounds": {name: {"k": bound["k"], "failure": bound["failure"], "ratio": num(bounds.ratio(bound["k"], safe_k)),
                               "class_ratio": num(bounds.ratio(bound["k"], class_safe_k))}
-                       for name, bound in bounds.bound_k(n_points, chosen, delta).items()}}
+                       for name, bound in bounds.bound_k(n_points, chosen, delta, kind).items()}}
 
 
 def _class_json(stats: CellStats, projected_dim: int, confidence: Confidence) -> dict:
@@ -297,7 +297,7 @@ def class_law(entries: list[dict], rule: Optional[dict] = None, rules: Optional[
     swept, rules = rules, {}
     if eps is not None:
         rules = {name: {"C": num(constant), "ratio": num(bounds.ratio(constant, safe_law.C))}
-                 for name, constant in bounds.rule_constants(eps, first["theory"]["failure"]).items()}
+                 for name, constant in bounds.rule_constants(eps, first["theory"]["failure"], first["kind"]).items()}
     law = {key: first[key] for key in ("family", "class_params", "projector", "retrieval", "kind")} | {
         "safe_k_law": safe_json, "class_safe_k_law": class_json, "k50_law": k50_json,
         "theory": {"eps": eps, "eps_source": source, "rules": rules}, "policy_rule": rule,
@@ -366,7 +366,7 @@ def unbounded_exclusions(rows: pd.DataFrame) -> tuple[pd.Series, list[dict]]:
     every k, so its trials would only count as failures (or trivial successes) that say nothing
     about k. They are left out of the success rates and listed with the reason.
     """
-    mask = rows["kind"].isin(["lp", "sdp", "qp"]) & rows["orig_status"].isin(NO_OPTIMUM)
+    mask = rows["kind"].isin(OPTIMIZATION_KINDS) & rows["orig_status"].isin(NO_OPTIMUM)
     items = []
     for (family, kind, status), group in rows[mask].groupby(["family", "kind", "orig_status"], sort=True):
         items.append({"family": family, "kind": kind,
@@ -439,6 +439,7 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
         raise InputError(str(store.path), "the store has no trial rows yet", "run `calib run SPEC` first")
     predicates = [predicate] if not taus else [with_tau(predicate, tau) for tau in sorted(set(taus))]
     meta = store.meta()
+    kinds = sorted(set(rows["kind"]))
     table = {
         "format": FORMAT, "format_version": VERSION, "code_version": __version__,
         "campaign": {"name": meta.get("name"), "spec_fingerprint": meta.get("fingerprint"),
@@ -452,7 +453,7 @@ def build_table(store: Store, predicate: Predicate, confidence: Confidence,
                                "covariance over instances (Student t with instances - 1 degrees of freedom)",
                    "solver_errors": solver_errors, "solver_errors_rule": SOLVER_ERROR_TEXT[solver_errors],
                    "time_limit": TIME_LIMIT_TEXT},
-        "theory": {"rules": sorted(theory.RULES), "eps_choice": eps, "eps_convention": bounds.EPS_CONVENTION,
+        "theory": {"rules": bounds.rule_names(kinds), "eps_choice": eps, "eps_convention": bounds.eps_convention(kinds),
                    "failure": confidence.delta},
         "notice": NOTICE,
         "analyses": [build_analysis(rows, each, confidence, eps, solver_errors, policy,

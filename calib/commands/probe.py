@@ -43,7 +43,8 @@ from calib.wording import counted, fold, wrapped
 RETRIEVAL_FIELDS = ("obj_error", "obj_ratio", "feas_error", "sign_violation", "decision_error", "completion_shortfall",
                     "cut_ratio", "cut_gain_kept", "exact", "retrieval_iterations",
                     "widening_rounds", "columns_share", "iterations_saved", "warm_seconds_saved", "t_retrieve", "t_factor", "t_total",
-                    "time_saved", "distortion_max", "distortion_q99", "pairs_checked")
+                    "time_saved", "distortion_max", "distortion_q99", "pairs_checked", "rows_violated", "cluster_cost_ratio",
+                    "cluster_disagreement")
 #: fields that describe the projection and its solve (shared by the retrievals of one replicate)
 PROJECTION_FIELDS = ("proj_status", "proj_method", "proj_objective", "proj_feasible", "proj_gap", "feasibility_agrees",
                      "proj_iterations", "t_sketch", "t_solve_proj")
@@ -232,7 +233,7 @@ def run(args: argparse.Namespace) -> int:
     check_target(args.json, "--json")
     choice = _projector_choice(args)
     target = resolve_target(args)
-    predicate, confidence = _predicate(args, "distortion" if target.kind == "points" else "usable")
+    predicate, confidence = _predicate(args, {"points": "distortion", "clustering": "clustering"}.get(target.kind, "usable"))
     handler = HANDLERS[target.kind]
     retrievals = _check_retrievals(args, target.kind)
     m = handler.projected_dim(target.problem)

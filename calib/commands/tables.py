@@ -23,7 +23,9 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
                             "'policy': usable and faster end to end than the original solved by its fastest method; "
                             "'bound': the projected optimum is within --max-gap of the original; "
                             "'classify': only the feasibility verdict must match; "
-                            "'distortion': point sets, worst pairwise distortion within --max-distortion")
+                            "'distortion': point sets, worst pairwise distortion within --max-distortion; "
+                            "'clustering': the projected partition's cost on the original points within 1 + "
+                            "--max-cost-excess of the original partition's")
     group.add_argument("--faster", action="store_true",
                        help="on any preset: a trial also has to be faster end to end (sketch + projected solve + "
                             "retrieval) than the fair baseline; depends on measured times")
@@ -32,6 +34,7 @@ def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--max-infeasibility", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
     group.add_argument("--max-sign-violation", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
     group.add_argument("--max-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
+    group.add_argument("--max-cost-excess", type=float, metavar="TAU", help="clustering: cluster_cost_ratio - 1 of the projected partition (clustering preset: 0.05)")
     group.add_argument("--delta", type=float, help="target success rate is 1 - delta (default 0.1, or the k search's own)")
     group.add_argument("--confidence", type=float,
                        help="confidence of the lower bound and the intervals (default 0.95, or the k search's own)")
@@ -63,7 +66,8 @@ def predicate_from(args: argparse.Namespace, default="usable", default_confidenc
     from calib.analysis.tables import Confidence
 
     predicate = make_predicate(args.preset or default, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
-                               feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion)
+                               feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion,
+                               cost=getattr(args, "max_cost_excess", None))
     stated = default_confidence or Confidence()
     return predicate, Confidence(delta=stated.delta if args.delta is None else args.delta,
                                  level=stated.level if args.confidence is None else args.confidence)

@@ -193,6 +193,13 @@ def measure(points: PointSet, projected: np.ndarray) -> dict:
     return dict(distortion_max=worst, distortion_q99=q99, pairs_checked=checked, pairs_total=total_pairs(points.n_points))
 
 
+def sketched(points, projector: Projector) -> tuple[np.ndarray, float]:
+    """(the projected points T x_i as rows, shape (n, k); t_sketch: drawing T plus applying it, in s)."""
+    start = time.perf_counter()
+    projected = np.asarray(projector.apply(points.columns)).T
+    return projected, projector.draw_seconds + (time.perf_counter() - start)
+
+
 class PointsHandler(Handler):
     """Coordinates projected (d -> k); the distortion is the whole measurement (retrieval ``none``)."""
 
@@ -219,8 +226,6 @@ class PointsHandler(Handler):
     def trial_records(cls, points: PointSet, original: SolveResult, projector: Projector, retrievals: list[str],
                       solver: dict, baseline: Optional[dict] = None) -> list[dict]:
         """One record (retrieval ``none``): distortion max, 99th percentile, pairs checked and in all, t_sketch."""
-        start = time.perf_counter()
-        projected = np.asarray(projector.apply(points.columns)).T
-        t_sketch = projector.draw_seconds + (time.perf_counter() - start)
+        projected, t_sketch = sketched(points, projector)
         values = measure(points, projected)
         return [record(**values, t_sketch=t_sketch) for _ in cls.retrieval_names(retrievals)]

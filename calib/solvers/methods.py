@@ -9,6 +9,7 @@ lp    ``simplex`` (HiGHS dual simplex), ``ipm`` (HiGHS interior point; crossover
       basis is needed, see :func:`calib.solvers.highs.method_options`)
 qp    ``highs`` (HiGHS's QP solver; not applicable with a ball ||B x|| <= r), ``scs``
 sdp   ``scs``
+milp  ``highs`` (HiGHS branch and cut, :mod:`calib.solvers.milp`)
 ===== ====================================================================================
 
 **The fair baseline** (:func:`race`). The original problem of an instance is solved once with
@@ -40,7 +41,7 @@ from calib.errors import InputError
 from calib.solvers.result import SolveResult
 
 #: kind -> methods in the default order
-DEFAULT_METHODS = {"lp": ("simplex", "ipm"), "qp": ("highs", "scs"), "sdp": ("scs",)}
+DEFAULT_METHODS = {"lp": ("simplex", "ipm"), "qp": ("highs", "scs"), "sdp": ("scs",), "milp": ("highs",)}
 #: an LP whose projected matrix has at least this many nonzeros ...
 DENSE_IPM_NONZEROS = 200_000
 #: ... filling at least this share of its entries is solved by interior point under ``auto``
