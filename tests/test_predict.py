@@ -19,14 +19,16 @@ from sklearn.model_selection import LeaveOneGroupOut
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
+from calib import atlas
 from calib.analysis import predict
+from calib.analysis.saferule import ALL_PASS
 
 ATLAS = Path(__file__).resolve().parent.parent / "results" / "atlas"
 
 
 @pytest.fixture(scope="module")
 def tables():
-    return [json.loads((ATLAS / name).read_text()) for name in ("safe_k.json", "safe_k-points.json")]
+    return [json.loads((ATLAS / name).read_text()) for name in atlas.ATLAS_FILES]  # every shipped campaign
 
 
 def _design(tables, response):
@@ -40,14 +42,14 @@ def _design(tables, response):
                 value = entry["class"]["safe_k"] if response == "safe_k" else entry["transition"]["k50"]
                 if value is None or (response == "safe_k" and value >= entry["projected_dim"]):
                     continue
-                if response == "safe_k" and entry["class"]["reason"] == "every swept k passes":
+                if response == "safe_k" and entry["class"]["reason"] == ALL_PASS:  # censored: an upper bound
                     continue
                 f = entry["features"]
                 rows.append([math.log(f["rows"]), math.log(f["cols"]), math.log(f["nonzeros"]), math.log(f["rank"]),
                              math.log(f["stable_rank"]), f["row_coherence"], math.log(analysis["tau"])]
                             + [float(entry["projector"] == name) for name in projectors[1:]])
                 y.append(math.log(value))
-                klass = entry["family"] + (" rank=10" if entry["family"] == "lp-planted" else "")
+                klass = entry["family"] + " " + json.dumps(entry["class_params"], sort_keys=True)
                 families.append(entry["family"])
                 sizes.append(f"{klass} | {entry['size']}")
                 classes.append(klass)
@@ -75,8 +77,10 @@ def test_the_reported_leave_one_group_out_errors_are_scikit_learns(tables, respo
         errors = _sklearn_errors(X, y, groups)
         reported = block[split]
         assert reported["typical_error"] == pytest.approx(_typical(errors), rel=1e-3)  # 4 significant digits
-        for klass in sorted(set(classes)):
-            assert reported["per_class"][klass] == pytest.approx(_typical(errors[classes == klass]), rel=1e-3)
+        # per class: the same figures (calib names a class by the parameters that tell it apart, here by all)
+        ours = sorted(reported["per_class"].values())
+        theirs = sorted(_typical(errors[classes == klass]) for klass in set(classes))
+        assert ours == pytest.approx(theirs, rel=1e-3)
         np.testing.assert_allclose(np.sort(reported["ln_errors"]), np.sort(errors), rtol=1e-8, atol=1e-10)
 
 
@@ -109,6 +113,9 @@ def test_the_readme_quotes_the_figures_the_predictor_reports(tables):
         block = predict.assess(tables)["responses"][response]
         for split in ("family", "size"):
             assert f"±{block[split]['typical_error'] * 100:.0f}%" in section
-            for klass, value in block[split]["per_class"].items():
-                assert f"{klass} ±{value * 100:.0f}%" in section
+        for klass in block["family"]["per_class"]:
+            pair = f"{block['family']['per_class'][klass] * 100:.0f}% / ±{block['size']['per_class'][klass] * 100:.0f}%"
+            assert f"{klass} ±{pair}" in " ".join(section.split())
         assert f"{block['cells']} ({block['censored']})" in section
+    safe = predict.assess(tables)["responses"]["safe_k"]
+    assert f"{safe['censored_contradicted']} of the {safe['censored_beyond_grid']} cells" in section
