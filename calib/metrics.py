@@ -162,7 +162,7 @@ FIELDS: dict[str, Field] = {
                          "claim covers all but a bounded share of the pairs (calib.reduce.points.sampled_claim)",
                          "count", "points"),
     "rows_violated": Field("share of the original's rows that the completed point violates by more than 1e-9 of "
-                           "max(1, |b_i|): the rows whose slack would be negative (kept at 0), calib.milp.complete",
+                           "max(1, |b_i|): the rows whose slack would be negative (kept at 0), calib.reduce.milp.complete_milp",
                            "ratio", "milp", "proj optimal"),
     "cluster_cost_ratio": Field("k-means cost on the original points of the partition found on the projected points, "
                                 "over that of the partition found on the original points by the same method from the "

@@ -10,7 +10,8 @@ singleton column (one entry +1 for a <= row, -1 for a >= row). :func:`from_inequ
 from ``a_i x <= b_i`` / ``a_i x >= b_i`` rows. The column bounds and the integrality are not
 constraints rows: a row projection T A z = T b keeps them as they are.
 
-**Completion** (:func:`complete`): a decision x (from the projected model, where the slacks are
+**Completion** (:func:`rounded_decision`, then :func:`calib.reduce.completion.complete` on the
+decision columns, the LP completion's closed form per row): a decision x (from the projected model, where the slacks are
 aggregated into T's columns and mean nothing) is judged in the original by recomputing each slack
 from its own row, s_i = (b_i - a_i x) / sigma_i with sigma_i the slack's entry, and keeping
 s_i = 0 where that is negative (the row cannot be completed; its violation |b_i - a_i x| stays
@@ -28,7 +29,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.errors import InputError
-from calib.problems import StandardLP
+from calib.problems import DecisionMap, StandardLP
 
 
 @dataclass
@@ -55,6 +56,8 @@ class StandardMILP(StandardLP):
         super().__post_init__()
         self.upper = np.asarray(self.upper, dtype=float).ravel()
         self.integer = np.asarray(self.integer, dtype=bool).ravel()
+        if self.decision is None and self.n_decision:
+            self.decision = DecisionMap.select(self.n_cols, np.arange(self.n_decision))
 
     def validate(self) -> "StandardMILP":
         """The LP's checks, then the bounds and that integrality sits on decision columns."""
@@ -91,46 +94,28 @@ def from_inequalities(c, A, b, sense: str, upper, integer, name: str = "milp") -
                         n_decision=n, name=name).validate()
 
 
-def slack_rows(problem: StandardMILP) -> tuple[np.ndarray, np.ndarray]:
-    """(row, entry) of each slack column (the columns after the decision), each a singleton; cached.
-
-    >>> p = from_inequalities([1.0], [[2.0], [3.0]], [1.0, 1.0], ">=", [5.0], [True])
-    >>> [values.tolist() for values in slack_rows(p)]
-    [[0, 1], [-1.0, -1.0]]
-    """
-    cached = problem.__dict__.get("_calib_slacks")
-    if cached is None:
-        slacks = sp.csc_array(problem.A)[:, problem.n_decision:]
-        slacks.sum_duplicates()
-        counts = np.diff(slacks.indptr)
-        if np.any(counts != 1):
-            raise ValueError(f"{problem.name}: a slack column is not a singleton")
-        cached = (slacks.indices.astype(np.int64), slacks.data.astype(float))
-        problem.__dict__["_calib_slacks"] = cached
-    return cached
-
-
-def complete(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
-    """The decision of ``z`` (integers rounded) with every slack recomputed from its own row (module docstring).
+def rounded_decision(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
+    """``z`` with its integer decision columns rounded to the nearest integer and every decision clipped to
+    its bounds (a MIP solver returns integers within its integrality tolerance); the slacks are left as
+    they are, for :func:`calib.reduce.completion.complete` to recompute. Shape (N,) -> (N,).
 
     >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
-    >>> complete(p, np.array([1.0, 1.0, 7.0, 7.0])).tolist()   # row 0 cannot be completed: 1 - 2 < 0
-    [1.0, 1.0, 0.0, 1.0]
+    >>> rounded_decision(p, np.array([0.9999999, 1.2, 7.0, 7.0])).tolist()
+    [1.0, 1.0, 7.0, 7.0]
     """
-    decision = np.asarray(z[:problem.n_decision], dtype=float).copy()
+    out = np.asarray(z, dtype=float).copy()
+    decision = out[:problem.n_decision]
     integer = problem.integer[:problem.n_decision]
     decision[integer] = np.round(decision[integer])
-    decision = np.clip(decision, 0.0, problem.upper[:problem.n_decision])
-    rows, entries = slack_rows(problem)
-    left = problem.b - np.asarray(problem.A[:, :problem.n_decision] @ decision).ravel()
-    return np.concatenate([decision, np.maximum(left[rows] / entries, 0.0)])
+    out[:problem.n_decision] = np.clip(decision, 0.0, problem.upper[:problem.n_decision])
+    return out
 
 
 def violated_rows(problem: StandardMILP, z: np.ndarray, tolerance: float = 1e-9) -> float:
     """Share of the rows whose residual |a_i z - b_i| exceeds ``tolerance`` times max(1, |b_i|).
 
     >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
-    >>> violated_rows(p, complete(p, np.array([1.0, 1.0, 0.0, 0.0])))
+    >>> violated_rows(p, np.array([1.0, 1.0, 0.0, 1.0]))
     0.5
     """
     return float(np.mean(np.abs(problem.residual(z)) > tolerance * np.maximum(1.0, np.abs(problem.b))))

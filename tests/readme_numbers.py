@@ -246,7 +246,8 @@ def _demo_prose(entries: list[dict], speed: dict, every: list[dict]) -> str:
                     for e in at_m]
             slow = [value for value in slow if value is not None and value < 1]
             text += f", {span([1 / value for value in slow])} times slower than the original" if slow else ", at no saving"
-        parts.append(text + ": at 90-150 jobs the answer is \"don't sketch\" (at 20,000 jobs it is not: below).")
+        parts.append(text + ": at 90-150 jobs the answer is \"don't sketch\" (at 20,000 jobs sketching pays: \"Judged on the user's "
+                     "decision\" below).")
     return "\n\n".join(paragraph(part) for part in parts) + "\n"
 
 

@@ -13,7 +13,8 @@ import scipy.sparse as sp
 
 from calib import projectors
 from calib.families import get
-from calib.milp import complete, from_inequalities, violated_rows
+from calib.milp import from_inequalities, violated_rows
+from calib.reduce.milp import complete_milp
 from calib.reduce import HANDLERS
 from calib.solvers.milp import MIP_OPTIONS, solve_milp
 from reduce_helpers import SOLVER, OrthogonalProjector, instance
@@ -57,7 +58,7 @@ def test_original_optimum_is_highspys_on_the_inequality_model(name, params, sens
     theirs = _highspy_optimum(*_inequality_data(problem), sense)
     assert ours.objective == pytest.approx(theirs, rel=2 * GAP)
     # its point is integral, within the bounds and satisfies every row exactly once completed
-    z = complete(problem, ours.x)
+    z = complete_milp(problem, ours.x)
     assert np.abs(problem.residual(z)).max() <= 1e-9 * np.abs(problem.b).max() and violated_rows(problem, z) == 0.0
 
 
@@ -85,7 +86,7 @@ def test_completion_recomputes_each_slack_from_its_row():
     # slack stays 0 and its residual is the violation w_i x - c_i
     problem = from_inequalities([-1.0, -1.0, -1.0], [[1.0, 2.0, 0.0], [0.0, 1.0, 1.0]], [4.0, 1.0], "<=",
                                 [1.0, 1.0, 1.0], [True, True, True])
-    z = complete(problem, np.array([1.0, 1.0, 0.9999999, 5.0, 5.0]))  # the integer 1 within tolerance
+    z = complete_milp(problem, np.array([1.0, 1.0, 0.9999999, 5.0, 5.0]))  # the integer 1 within tolerance
     np.testing.assert_array_equal(z, [1.0, 1.0, 1.0, 1.0, 0.0])
     np.testing.assert_array_equal(problem.residual(z), [0.0, 1.0])
     assert violated_rows(problem, z) == 0.5

@@ -142,7 +142,7 @@ def resolve_target(args: argparse.Namespace) -> Target:
     params = family.resolve(given, where)
     ref = InstanceRef(family.name, params, 0, args.seed)
     instance = ref.build()
-    label = family.name + " " + " ".join(f"{key}={value}" for key, value in sorted(params.items()))
+    label = family.name + " " + " ".join(f"{key}={value}" for key, value in sorted(params.items()) if value is not None)
     return Target(label, instance.kind, instance.problem, ref, family.n_points(params))
 
 

@@ -11,8 +11,9 @@ random vectors in R^k all lie in one half-space with probability 2^{1-m} sum_{i<
 1/2 at m = 2k). Then every decision can be matched by some slacks >= 0, the projected rows hold
 for any x within its bounds, and the projected optimum is the best x of the bounds alone.
 
-Retrieval ``completion`` (:func:`calib.milp.complete`): keep the projected decision, recompute every
-slack exactly from its own original row, and judge the completed point in the original: its
+Retrieval ``completion`` (:func:`complete_milp`): keep the projected decision (integers rounded,
+:func:`calib.milp.rounded_decision`), recompute every slack exactly from its own original row (the
+closed form per row of :mod:`calib.reduce.completion`, the LP completion), and judge the completed point in the original: its
 feasibility error is the residual of the rows that cannot be completed (``feas_error`` on the
 scale of :mod:`calib.metrics`, ``rows_violated`` their share), its objective against the original
 optimum (``obj_error``, ``obj_ratio``). The fair baseline is the original solved by HiGHS MIP
@@ -21,13 +22,27 @@ optimum (``obj_error``, ``obj_ratio``). The fair baseline is the original solved
 
 from __future__ import annotations
 
-from calib.milp import StandardMILP, complete, violated_rows
+import numpy as np
+
+from calib.milp import StandardMILP, rounded_decision, violated_rows
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size, relative_residual
+from calib.reduce.completion import complete
 from calib.solvers.milp import solve_milp
 
 
+def complete_milp(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
+    """The decision of ``z`` (integers rounded) with every slack recomputed from its own row, shape (N,).
+
+    >>> from calib.milp import from_inequalities
+    >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
+    >>> complete_milp(p, np.array([1.0, 1.0, 7.0, 7.0])).tolist()   # row 0 cannot be completed: 1 - 2 < 0
+    [1.0, 1.0, 0.0, 1.0]
+    """
+    return complete(problem, rounded_decision(problem, z), problem.decision).x
+
+
 def _completion(context: Context) -> Retrieved:
-    return Retrieved(complete(context.problem, context.projected.x))
+    return Retrieved(complete_milp(context.problem, context.projected.x))
 
 
 class MILPHandler(RowProjectionHandler):
