@@ -65,7 +65,8 @@ def test_mps_probe_with_eps_and_one_retrieval(capsys):
     assert "k = 5 (eps = 0.99 by ln-over-eps2 with 52 points)" in text
     assert "warm-start" not in text
     # the header says how n and m are counted, with their values: 27 rows, 51 + 1 points
-    assert "(lp; projected dimension m = 27, n = 52 points)" in text and "\n  n and m: n = the columns" in text
+    flat = " ".join(text.split())  # the header wraps where the file's path makes it long
+    assert "(lp; projected dimension m = 27, n = 52 points)" in flat and "\n  n and m: n = the columns" in text
     # the objective is printed with its digits: Netlib's published optimum of afiro is -4.6475314286E+02
     # (the Netlib lp/data index; from memory); 10 significant digits must agree
     printed = float(text.split("original: optimal, objective ")[1].split(",")[0])
