@@ -299,6 +299,23 @@ def _measured(entries: list[dict], query: Query) -> Optional[int]:
     return None
 
 
+def decision_caveat(analysis: dict, entry: dict) -> str:
+    """A note when an LP's answer comes from a predicate that never looks at the retrieved point
+    (``bound``, ``classify``): the user's decision, completed (retrieval ``completion``), can be usable
+    at a smaller k than the projected optimum is close (docs/decision.md); "" otherwise.
+
+    >>> decision_caveat({"predicate": {"name": "bound"}}, {"kind": "lp"})[:40]
+    'this table judges the projected optimum '
+    >>> decision_caveat({"predicate": {"name": "usable"}}, {"kind": "lp"})
+    ''
+    """
+    if entry["kind"] != "lp" or analysis["predicate"]["name"].split("+")[0] not in ("bound", "classify"):
+        return ""
+    return ("this table judges the projected optimum (preset bound), not the decision a user takes from it: completed "
+            "(retrieval completion) the decision can be usable at a smaller k (docs/decision.md); measure your model "
+            "with `calib probe MODEL --retrieval completion --find-k`")
+
+
 def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) -> dict:
     """The k for ``query`` at ``confidence`` (default: the table's target), with how it was found."""
     target = table["target"]
@@ -306,6 +323,7 @@ def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) ->
     confidence = confidence or stated
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)
+    note = "; ".join(filter(None, [note, decision_caveat(analysis, entries[0])]))
     sizes = [entry["n_points"] for entry in entries]
     answers = safe_ks(entries, confidence, query.scope, stated)
     censored = [censoring(k, reason, entry["projected_dim"]) for (k, reason), entry in zip(answers, entries)]
