@@ -60,6 +60,8 @@ def run(args: argparse.Namespace) -> int:
         print(short_cap, file=sys.stderr)
 
     previous = signal.signal(signal.SIGTERM, _interrupt)  # `kill PID` stops as cleanly as Ctrl-C
+    # a shell starts a background job (`calib run ... &`) with SIGINT ignored: `kill -INT` must still stop it cleanly
+    previous_int = signal.signal(signal.SIGINT, signal.default_int_handler)
     bar = None if args.quiet else _ProgressBar(spec.name)
     try:
         summary = run_campaign(spec, args.out, workers=args.workers, scheduler=args.scheduler,
@@ -67,6 +69,7 @@ def run(args: argparse.Namespace) -> int:
                                progress=bar.update if bar is not None else None)
     finally:
         signal.signal(signal.SIGTERM, previous)
+        signal.signal(signal.SIGINT, previous_int)
         if bar is not None:
             bar.close()
     print(f"store: {summary.store_path}")
