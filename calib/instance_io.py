@@ -52,7 +52,7 @@ import scipy.sparse as sp
 from calib.errors import InputError
 from calib.families.base import Instance
 from calib.keys import stable_id
-from calib.problems import INF_BOUND, StandardLP, read_mps
+from calib.problems import INF_BOUND, StandardLP, read_mps_standard
 
 LAYOUT = "calib-arrays/1"
 MANIFEST_FORMAT = "calib-instance/1"
@@ -122,8 +122,9 @@ def _within_highs_limits(lp: StandardLP, A: sp.csc_array) -> None:
 
 
 def read_standard_lp(path: PathLike) -> StandardLP:
-    """Read an MPS file into standard form (InputError naming the file when it is malformed)."""
-    return read_mps(path).to_standard().lp
+    """Read an MPS file into standard form with its structural decision, as a campaign reads it
+    (:func:`calib.problems.read_mps_standard`; InputError naming the file when it is malformed)."""
+    return read_mps_standard(path)
 
 
 # --- arrays layout ---------------------------------------------------------------------------

@@ -287,6 +287,13 @@ class GeneralLP:
         return np.flatnonzero(rows_per_column + boxed >= 2)
 
 
+def read_mps_standard(path: Union[str, Path], decision_prefix: Optional[str] = None) -> StandardLP:
+    """An MPS file's standard form with its decision from the structure (:meth:`GeneralLP.structural_decision`),
+    or the columns whose names start with ``decision_prefix``: the one reading of a model file as an LP."""
+    general = read_mps(path)
+    return general.to_standard(decision=general.structural_decision(decision_prefix)).lp
+
+
 def singleton_columns(A: Matrix) -> np.ndarray:
     """Boolean mask (n,): the columns of A with exactly one nonzero entry.
 

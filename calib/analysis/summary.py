@@ -29,6 +29,7 @@ from typing import Optional
 import pandas as pd
 
 from calib.keys import canonical_json
+from calib.metrics import DEFAULT_RETRIEVALS
 
 #: the widest line :func:`summary_text` aims for
 WIDTH = 120
@@ -101,8 +102,6 @@ def best_lines(lines: list[dict]) -> list[dict]:
     >>> [(line["retrieval"], line["k"]) for line in pick]
     [('completion', 40)]
     """
-    from calib.metrics import DEFAULT_RETRIEVALS
-
     best: dict = {}
     for line in lines:
         key = (line["family"], line["label"], line["size"], line["projector"])

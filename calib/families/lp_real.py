@@ -33,7 +33,7 @@ import numpy as np
 
 from calib.errors import InputError
 from calib.families.base import Family, register, require
-from calib.problems import read_mps
+from calib.problems import read_mps, read_mps_standard
 from calib.theory import lp_points
 
 NETLIB_DIR = Path(__file__).resolve().parent.parent / "data" / "netlib"
@@ -68,9 +68,8 @@ def _shape(path: Path) -> tuple:
 
 
 def _read_standard(path: Path, name: str, prefix=None):
-    """The file's standard form; its decision columns from the structure, or by ``prefix`` of their names."""
-    general = read_mps(path)
-    lp = general.to_standard(decision=general.structural_decision(prefix)).lp
+    """The file's standard form named ``name`` (:func:`calib.problems.read_mps_standard`)."""
+    lp = read_mps_standard(path, prefix)
     lp.name = name
     return lp
 
