@@ -13,6 +13,7 @@ from typing import Any, Callable, Optional
 
 import numpy as np
 
+from calib.checks import is_integer, is_real
 from calib.errors import InputError
 
 
@@ -170,14 +171,14 @@ def require(condition: bool, where: str, problem: str, fix: str) -> None:
 
 def positive_int(params: dict, key: str, minimum: int = 1) -> None:
     value = params[key]
-    require(isinstance(value, int) and not isinstance(value, bool) and value >= minimum,
+    require(is_integer(value) and value >= minimum,
             key, f"must be an integer >= {minimum}, got {value!r}", f"set {key} to an integer >= {minimum}")
 
 
 def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed_low: bool = False,
              closed_high: bool = True) -> None:
     value = params[key]
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
+    ok = is_real(value) and np.isfinite(value)
     ok = ok and (low <= value if closed_low else low < value) and (value <= high if closed_high else value < high)
     bracket = ("[" if closed_low else "(") + f"{low}, {high}" + ("]" if closed_high else ")")
     require(ok, key, f"must lie in {bracket}, got {value!r}", f"pick {key} in that range")
@@ -186,7 +187,7 @@ def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed
 def positive(params: dict, key: str, high: float = np.inf) -> None:
     """A finite real number in (0, high]."""
     value = params[key]
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value) and 0 < value <= high
+    ok = is_real(value) and np.isfinite(value) and 0 < value <= high
     require(ok, key, f"must be a finite number in (0, {high}], got {value!r}", f"set {key} to a positive number")
 
 
