@@ -39,6 +39,7 @@ from calib.analysis.modelfit import resolved_size
 from calib.analysis.saferule import Confidence, censored_law, censoring, class_namer, safe_k_rule
 from calib.checks import is_integer
 from calib.errors import InputError
+from calib.keys import canonical_json
 
 SCOPES = ("class", "instances")
 
@@ -494,7 +495,7 @@ def speedup_at(found: dict, table: dict, query: Query, timings: Optional[list]) 
         where = f"measured at {entry['size']} (k = {k}), the nearest measured size; not extrapolated"
         if k is None:
             return None
-    params = json.dumps(entry["params"], sort_keys=True, separators=(",", ":"))
+    params = canonical_json(entry["params"])
     for row in timings:
         if (row.get("family"), row.get("params"), row.get("projector"), row.get("retrieval")) == \
                 (entry["family"], params, entry["projector"], entry["retrieval"]) and str(row.get("k")) == str(k):
