@@ -35,6 +35,8 @@ class SparseJLProjector(SparseSignProjector):
 
     @classmethod
     def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """``s``, the nonzeros per column (an integer in [1, k], default min(DEFAULT_S, k)), or
+        :class:`InputError`."""
         reject_unknown(cls.name, options, allowed=("s",))
         s = options.get("s", min(DEFAULT_S, k))
         if not is_integer(s) or not 1 <= s <= k:

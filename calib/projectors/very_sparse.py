@@ -37,6 +37,8 @@ class VerySparseProjector(SparseSignProjector):
 
     @classmethod
     def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """``density``, the expected share of nonzero entries (in (0, 1], default 1/sqrt(m); Li, Hastie
+        & Church 2006), or :class:`InputError`."""
         reject_unknown(cls.name, options, allowed=("density",))
         density = options.get("density", default_density(m))
         if not is_real(density) or not 0.0 < float(density) <= 1.0:
