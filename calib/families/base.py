@@ -119,6 +119,8 @@ class Family:
         return size_label(self.size_keys, params)
 
     def make(self, params: dict, index: int, rng: np.random.Generator) -> Instance:
+        """Instance number ``index`` of this family at full ``params``, drawn from ``rng`` (the
+        instance's own stream, :meth:`calib.sweep.trial.InstanceRef.build`)."""
         problem, info = self.build(params, rng)
         return Instance(family=self.name, params=params, index=index, kind=self.kind, problem=problem, info=info)
 
@@ -151,6 +153,7 @@ def size_label(keys, params: dict) -> str:
 
 
 def register(family: Family) -> Family:
+    """Add ``family`` to :data:`REGISTRY` under its name (a name registered twice is a ``ValueError``)."""
     if family.name in REGISTRY:
         raise ValueError(f"family {family.name!r} registered twice")
     REGISTRY[family.name] = family
@@ -158,6 +161,7 @@ def register(family: Family) -> Family:
 
 
 def get(name: str, where: str = "family") -> Family:
+    """The registered family ``name``, else :class:`InputError` naming ``where`` and the known names."""
     if name not in REGISTRY:
         raise InputError(where, f"unknown family {name!r}", f"choose one of {', '.join(sorted(REGISTRY))} (see `calib families`)")
     return REGISTRY[name]
@@ -170,6 +174,7 @@ def require(condition: bool, where: str, problem: str, fix: str) -> None:
 
 
 def positive_int(params: dict, key: str, minimum: int = 1) -> None:
+    """``params[key]`` is an integer >= ``minimum``, else :class:`InputError`."""
     value = params[key]
     require(is_integer(value) and value >= minimum,
             key, f"must be an integer >= {minimum}, got {value!r}", f"set {key} to an integer >= {minimum}")
@@ -177,6 +182,8 @@ def positive_int(params: dict, key: str, minimum: int = 1) -> None:
 
 def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed_low: bool = False,
              closed_high: bool = True) -> None:
+    """``params[key]`` is a finite number in the interval from ``low`` to ``high`` (ends open or closed
+    as asked), else :class:`InputError`."""
     value = params[key]
     ok = is_real(value) and np.isfinite(value)
     ok = ok and (low <= value if closed_low else low < value) and (value <= high if closed_high else value < high)
@@ -192,5 +199,6 @@ def positive(params: dict, key: str, high: float = np.inf) -> None:
 
 
 def one_of(params: dict, key: str, options: tuple) -> None:
+    """``params[key]`` is one of ``options``, else :class:`InputError` listing them."""
     value = params[key]
     require(value in options, key, f"must be one of {', '.join(map(repr, options))}, got {value!r}", f"pick one of {', '.join(map(str, options))}")
