@@ -116,7 +116,7 @@ def test_no_module_of_calib_is_part_of_an_import_cycle():
     assert _cycles(graph) == []
 
 
-@pytest.mark.parametrize("module", ["calib.problems", "calib.solvers.highs", "calib.sweep.plugins", "calib.sweep.tasks"])
+@pytest.mark.parametrize("module", ["calib.problems", "calib.solvers.highs", "calib.sweep.plugins", "calib.sweep.tasks", "calib.store.database", "calib.verdicts.target", "calib.trial"])
 def test_each_module_once_in_a_cycle_imports_alone(module):
     done = subprocess.run([sys.executable, "-c", f"import {module}"], capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr

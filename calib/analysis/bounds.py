@@ -42,7 +42,7 @@ from typing import Optional
 import numpy as np
 
 from calib import theory
-from calib.analysis.success import Predicate, primary_tau
+from calib.verdicts.success import Predicate, primary_tau
 
 _LOG_SPAN = (20.0, 50.0)
 
