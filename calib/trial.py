@@ -73,6 +73,9 @@ class InstanceRef:
 
 @dataclass(frozen=True)
 class Trial:
+    """One trial: an instance, a projector, a target dimension k >= 1 and a replicate index; ``k_label``
+    says where k came from in the grid (``fraction=0.1``, ``eps=0.3 (rule)``, "" for a value given)."""
+
     instance: InstanceRef
     projector: ProjectorChoice
     k: int
