@@ -25,9 +25,10 @@ from engine_helpers import write_search_spec as _spec
 
 from calib.cli import main
 from calib.errors import InputError
+from calib.spec_problems import SpecError
 from calib.sweep.runner import run_campaign
-from calib.sweep.search import PRIOR_STRENGTH, KSearch, confidence_sequence, decide, max_looks
-from calib.sweep.spec import SpecError, load_spec, parse_spec
+from calib.sweep.search import KSearch, PRIOR_STRENGTH, confidence_sequence, decide, max_looks
+from calib.sweep.spec import load_spec, parse_spec
 
 BASE = {"campaign": {"name": "s", "root_seed": 3, "replicates": 5},
         "families": [{"name": "lp-planted", "sizes": [{"rows": 12, "cols": 24}]}],
@@ -320,8 +321,8 @@ def test_added_retrieval_runs_only_for_the_missing_rows(tmp_path):
 
 
 def test_search_target_predicate_is_the_table_predicate():
-    # the run-time rule is calib.analysis.success.make_predicate with the [target] tolerance
-    from calib.analysis.success import make_predicate, with_tau
+    # the run-time rule is calib.verdicts.success.make_predicate with the [target] tolerance
+    from calib.verdicts.success import make_predicate, with_tau
 
     spec = parse_spec(_raw())
     assert spec.target.predicate == with_tau(make_predicate("bound"), 1e-6)

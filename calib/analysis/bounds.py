@@ -43,7 +43,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from calib import theory
-from calib.analysis.success import Predicate, primary_tau
+from calib.verdicts.success import Predicate, primary_tau
 
 _LOG_SPAN = (20.0, 50.0)
 

@@ -14,7 +14,7 @@ that value, and the rule is answered at two scopes:
   passes when (alpha / U)^(1/r) >= target, so r >= ln(alpha / U) / ln(target) trials per unit are
   needed (39 for 3 files at 90% and 95%): for a file, that is its replicates.
 - **the class** the units were drawn from (:func:`class_rule`): the units are the clusters of the
-  class-scope bound of a cell (:func:`calib.analysis.scope.class_scope`: a Clopper–Pearson bound
+  class-scope bound of a cell (:func:`calib.verdicts.scope.class_scope`: a Clopper–Pearson bound
   with the design effect of the intraclass correlation's upper limit; a binomial on units when each
   unit decides alone), so 29 units that each pass are needed to certify 90% at 95%.
 
@@ -30,15 +30,14 @@ like every safe k it is empirical evidence, not a proof. Costs: O(trials + value
 
 from __future__ import annotations
 
-import math
 from typing import Iterable, Optional
 
 import numpy as np
 from numpy.typing import ArrayLike
 
-from calib.analysis.cells import safe_k_rule
-from calib.analysis.scope import class_scope, cell_counts, instances_needed, refusal
-from calib.analysis.stats import clopper_pearson_lower
+from calib.verdicts.saferule import safe_k_rule
+from calib.verdicts.scope import cell_counts, class_scope, instances_needed, refusal
+from calib.verdicts.stats import clopper_pearson_lower, trials_per_unit_needed
 
 PREFIX = "fraction="
 RULE = "k = f m"
@@ -120,16 +119,6 @@ def class_rule(values: ArrayLike, unit: ArrayLike, success: ArrayLike, unit_name
     return {"value": chosen, "reason": "" if chosen is not None else reason, "statement": statement, "units": units,
             "units_needed": instances_needed(target, confidence), "failing": _failing(counts, at, target, unit_name),
             "failing_at": float(counts.ks[at]), "grid": grid}
-
-
-def trials_per_unit_needed(units: int, target: float, confidence: float) -> int:
-    """Trials per unit, all successes, for each of ``units`` Clopper–Pearson bounds at confidence
-    1 - (1 - confidence) / units to reach ``target`` (module text).
-
-    >>> trials_per_unit_needed(1, 0.9, 0.95), trials_per_unit_needed(3, 0.9, 0.95)
-    (29, 39)
-    """
-    return int(math.ceil(math.log((1.0 - confidence) / units) / math.log(target) - 1e-12))
 
 
 def units_rule(values: ArrayLike, unit: ArrayLike, success: ArrayLike, unit_name: dict, target: float,

@@ -106,3 +106,11 @@ def law_formula(a: float, C: float, C_se: Optional[float]) -> str:
     se = f" ± {C_se:.3g}" if C_se is not None else ""
     sign = "-" if C < 0 else "+"
     return f"k = {a:.3g} {sign} {abs(C):.3g}{se} ln n"
+
+
+def censored_law(n: list[int], values: list, censored: list[str]) -> Law:
+    """The law k = a + C ln n over the uncensored sizes only (at least two needed)."""
+    law = fit_law(n, [None if why else value for value, why in zip(values, censored)])
+    if not law.ok and any(censored):
+        return Law(reason=f"{law.reason} ({sum(map(bool, censored))} censored size(s) are not fitted as values)")
+    return law

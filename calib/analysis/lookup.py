@@ -5,11 +5,11 @@
 - the size is given in the family's own terms (its size keys, an MPS file, a saved instance: see
   :func:`size_of`), from which the family's own rules give n (the JL point count) and the projected
   dimension m; ``n`` alone (and ``m``) remain for experts;
-- the scope: the class answer by default (the class safe k of each size, :mod:`calib.analysis.scope`),
+- the scope: the class answer by default (the class safe k of each size, :mod:`calib.verdicts.scope`),
   or the answer for the instances measured (``scope="instances"``); each size's safe k is recomputed
   from the stored counts when delta or the confidence differ from the table's (the same rules);
 - a size that was measured is answered with its measured safe k; another size with the law
-  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.saferule.censored_law`),
+  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.law.censored_law`),
   rounded up; never below 1 and never above m: a value above m is answered "no reduction meets
   the target at this size", a value below 1 is raised to 1 with a flag;
 - an n outside the measured sizes is an extrapolation, flagged with how far (x the largest, or
@@ -34,12 +34,13 @@ from typing import Optional
 
 import numpy as np
 
-from calib.analysis.law import fit_law
+from calib.analysis.classnames import class_namer
+from calib.analysis.law import censored_law, fit_law
 from calib.analysis.modelfit import resolved_size
-from calib.analysis.saferule import Confidence, censored_law, censoring, class_namer, safe_k_rule
 from calib.checks import is_integer
 from calib.errors import InputError
 from calib.keys import canonical_json
+from calib.verdicts.saferule import Confidence, censoring, safe_k_rule
 
 SCOPES = ("class", "instances")
 
@@ -165,8 +166,8 @@ def class_entries(analysis: dict, query: Query) -> list[dict]:
 
 def _lower_bounds(entry: dict, confidence: Confidence, scope: str) -> np.ndarray:
     """Per-k lower bounds of one entry in ``scope`` at ``confidence``, recomputed from its counts."""
-    from calib.analysis.scope import Anova, class_lower_bound, design_rho
-    from calib.analysis.stats import clopper_pearson_lower
+    from calib.verdicts.scope import Anova, class_lower_bound, design_rho
+    from calib.verdicts.stats import clopper_pearson_lower
 
     grid = entry["grid"]
     successes, trials = [p["successes"] for p in grid], [p["trials"] for p in grid]
@@ -200,7 +201,7 @@ def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class",
         lower = _lower_bounds(entry, confidence, scope)
         safe, reason = safe_k_rule([p["k"] for p in entry["grid"]], lower >= confidence.target)
         if scope == "class" and safe is None:
-            from calib.analysis.scope import class_reason
+            from calib.verdicts.scope import class_reason
 
             pooled = _lower_bounds(entry, confidence, "instances")
             mine, mine_reason = safe_k_rule([p["k"] for p in entry["grid"]], pooled >= confidence.target)

@@ -3,7 +3,7 @@
 A team setting a reduction policy asks two things at a given k: is the answer usable, and did the
 reduction save time? Per cell (family, size, projector, retrieval) and swept k this module counts
 the *policy successes*: trials that succeed under the table's predicate **and** are faster end to
-end than the fair baseline (:func:`calib.analysis.success.saves_time`: sketch + projected solve +
+end than the fair baseline (:func:`calib.verdicts.success.saves_time`: sketch + projected solve +
 retrieval, repairs and warm solves included, against the original solved by its fastest
 configured method). A k *meets the target* when the one-sided Clopper–Pearson lower bound of that
 count reaches the target rate 1 - delta (C. J. Clopper and E. S. Pearson, Biometrika 26:404–413,
@@ -28,8 +28,8 @@ import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
-from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate
+from calib.verdicts.stats import clopper_pearson_lower
+from calib.verdicts.success import OPTIMIZATION_KINDS, Predicate, evaluate
 
 if TYPE_CHECKING:  # annotation only
     from calib.analysis.saferule import Confidence

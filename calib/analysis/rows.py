@@ -1,6 +1,6 @@
 """The store edge of the analysis: the tidy frame of stored rows every statistic is computed from.
 
-:func:`load_rows` reads a campaign store (SQLite, :class:`calib.sweep.store.Store`) into one row per
+:func:`load_rows` reads a campaign store (SQLite, :class:`calib.store.database.Store`) into one row per
 (trial, retrieval) with the instance's columns (family, params, size label, class parameters,
 projected dimension m, JL point count n) and every metric field of :data:`calib.metrics.FIELDS`
 expanded into its own column. Everything downstream (:mod:`calib.analysis.cells`,
@@ -17,7 +17,8 @@ from calib.checks import is_integer
 from calib.errors import InputError
 from calib.metrics import FIELDS
 from calib.solvers.result import FORMER_STATUSES
-from calib.sweep.store import DAMAGED_FIX, Store
+from calib.store.database import Store
+from calib.store.sqlite import DAMAGED_FIX
 
 
 def _size_keys(family: str, params: dict) -> tuple:

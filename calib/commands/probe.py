@@ -5,7 +5,7 @@ family); an MPS file (read as an LP in standard form: the family ``mps-dir`` wit
 folder as written and ``name`` = the file name); or a saved instance (the ``STEM.json`` manifest of
 :func:`calib.instance_io.save_instance`, any kind). The original is solved once; then each
 replicate draws a projector, solves the projected problem and runs the retrievals, exactly as one
-campaign trial does (:func:`calib.sweep.trial.run_trial`). The random streams are those of a
+campaign trial does (:func:`calib.trial.run_trial`). The random streams are those of a
 campaign with ``root_seed = --seed`` on the same instance (family, parameters, index), so a probe
 reproduces that campaign's rows. The output lists the metrics of every replicate, then the median
 and maximum of each metric and the success count under the chosen predicate with its one-sided
@@ -99,7 +99,7 @@ class Target:
     label: str
     kind: str
     problem: Any
-    ref: Any  # calib.sweep.trial.InstanceRef
+    ref: Any  # calib.trial.InstanceRef
     n_points: int
 
 
@@ -124,7 +124,7 @@ def parse_assignments(items: list[str], where: str) -> dict:
 def resolve_target(args: argparse.Namespace) -> Target:
     """The instance named by ``args.target``, built deterministically (rules in the module docstring)."""
     from calib import families
-    from calib.sweep.trial import InstanceRef
+    from calib.trial import InstanceRef
 
     path = Path(args.target)
     if args.target.lower().endswith(".json"):
@@ -151,7 +151,7 @@ def _saved_target(path: Path, args: argparse.Namespace) -> Target:
     """A saved instance (:func:`calib.instance_io.load_instance`); streams of its family, params and index."""
     from calib import families
     from calib.instance_io import load_instance
-    from calib.sweep.trial import InstanceRef
+    from calib.trial import InstanceRef
 
     if args.param:
         raise InputError("--param", "parameters apply to families, not to a saved instance", "drop --param")
@@ -228,7 +228,7 @@ def run(args: argparse.Namespace) -> int:
     from calib.outputs import check_target, write_file
     from calib.reduce import HANDLERS
     from calib.solvers.methods import baseline_info
-    from calib.sweep.trial import Trial, run_trial
+    from calib.trial import Trial, run_trial
 
     _check_numbers(args)
     check_target(args.json, "--json")
@@ -328,8 +328,8 @@ def _trial_success(target: Target, choice, k: int, replicate: int, original, ret
     """Success of one campaign trial under ``predicate``; a trial that raises counts as a failure, as in a campaign."""
     import pandas as pd
 
-    from calib.analysis.success import evaluate
-    from calib.sweep.trial import Trial, run_trial
+    from calib.trial import Trial, run_trial
+    from calib.verdicts.success import evaluate
 
     try:
         (record,) = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, [retrieval], solver)
@@ -349,7 +349,7 @@ def _check_numbers(args: argparse.Namespace) -> None:
 
 def _projector_choice(args: argparse.Namespace):
     from calib import projectors
-    from calib.sweep.spec import ProjectorChoice
+    from calib.trial import ProjectorChoice
 
     projectors.check_name(args.projector, "--projector")
     options = parse_assignments(args.projector_opt, "--projector-opt")
@@ -392,8 +392,8 @@ def summarise(records: list[dict], kind: str, predicate, confidence) -> dict:
     their one-sided Clopper–Pearson lower bound under ``predicate``."""
     import pandas as pd
 
-    from calib.analysis.stats import clopper_pearson_lower
-    from calib.analysis.success import evaluate, saves_time
+    from calib.verdicts.stats import clopper_pearson_lower
+    from calib.verdicts.success import evaluate, saves_time
 
     first = [row for row in records if row["retrieval"] == records[0]["retrieval"]]
     statuses: dict = {}

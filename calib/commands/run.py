@@ -48,6 +48,7 @@ def run(args: argparse.Namespace) -> int:
     if args.dry_run:
         print(dry_run(spec, args))
         return 0
+    from calib.store.reading import count_solver_errors
     from calib.sweep.estimate import check_memory, design_warning, search_warning, size_plans, skipped_lines
     from calib.sweep.runner import run_campaign
     from calib.wording import counted
@@ -115,20 +116,6 @@ def target_text(predicate) -> str:
     return f"'{predicate.name}' ({predicate.describe()})"
 
 
-def count_solver_errors(store_path) -> int:
-    """Trials of the store that ran but whose projected solve ended in a solver error."""
-    from calib.sweep.store import Store
-
-    store = Store.open_existing(store_path)
-    try:
-        (count,) = store.db.execute(
-            "SELECT COUNT(DISTINCT trial_id) FROM trials WHERE status = 'ok' "
-            "AND json_extract(metrics, '$.proj_status') = 'solver_failed'").fetchone()
-    finally:
-        store.close()
-    return int(count)
-
-
 #: local worker processes allowed per core: each runs one solver thread, more only adds memory
 WORKERS_PER_CORE = 4
 
@@ -180,7 +167,7 @@ class _ProgressBar:
 def _stored_in_plan(spec, done: set, planned: int) -> int:
     """Stored trials this spec would run: for a grid the planned trial ids found in the store (a
     store can hold trials of an earlier, different spec); for a search, at most its planned count."""
-    from calib.sweep.trial import expand
+    from calib.sweep.expansion import expand
 
     if spec.k_grid.is_search:
         return min(len(done), planned)
@@ -189,9 +176,10 @@ def _stored_in_plan(spec, done: set, planned: int) -> int:
 
 def dry_run(spec, args: argparse.Namespace) -> str:
     """The --dry-run report (creates nothing)."""
+    from calib.store.database import Store
+    from calib.store.resume import locate
     from calib.sweep.estimate import check_memory, probe_sizes, render_plan, size_plans
     from calib.sweep.executors import default_workers
-    from calib.sweep.store import Store, locate
 
     path, exists = locate(spec, args.out, args.new_campaign)
     stored = 0

@@ -11,7 +11,7 @@ from calib.wording import fold, wrapped
 
 def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     """Options that choose the success predicate and the confidence target (shared with `probe`)."""
-    from calib.analysis.success import PRESETS
+    from calib.verdicts.success import PRESETS
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
     group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
@@ -62,8 +62,8 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
 def predicate_from(args: argparse.Namespace, default="usable", default_confidence=None):
     """(predicate, confidence) from the parsed options; ``default`` (a preset name or a predicate) when
     --preset is not given, ``default_confidence`` (else 0.1 at 0.95) for --delta and --confidence not given."""
-    from calib.analysis.success import make_predicate
-    from calib.analysis.tables import Confidence
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import make_predicate
 
     predicate = make_predicate(args.preset or default, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
                                feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion,
@@ -89,9 +89,9 @@ def search_spec(raw_spec: dict, store_path):
 
 def store_defaults(store, rows) -> tuple:
     """(default predicate, default confidence, parsed search spec or None) of a store: a k search's
-    own [target], else :func:`calib.analysis.success.default_predicate` of the kinds it holds."""
-    from calib.analysis.success import default_predicate
-    from calib.analysis.tables import Confidence
+    own [target], else :func:`calib.verdicts.success.default_predicate` of the kinds it holds."""
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import default_predicate
 
     spec = search_spec(store.stored_spec(), store.path)
     if spec is not None:
@@ -102,8 +102,9 @@ def store_defaults(store, rows) -> tuple:
 def search_verdicts(spec, store):
     """The store's k searches replayed (:func:`calib.sweep.runner.replay_searches`) as the
     :class:`calib.analysis.tables.SearchVerdicts` a table states for the searched cells."""
-    from calib.analysis.tables import Confidence, SearchVerdicts
+    from calib.analysis.tables import SearchVerdicts
     from calib.sweep.runner import replay_searches
+    from calib.verdicts.saferule import Confidence
 
     cells = replay_searches(spec, store)
     verdicts = {}
@@ -122,9 +123,10 @@ def analyse(args: argparse.Namespace, policy: bool = False):
     options (defaults from the store: :func:`store_defaults`); a store written by a k search states the
     searches' claims in the analysis of their own rule; the policy answer is added when ``policy`` or
     ``--policy`` asks for it."""
-    from calib.analysis.tables import build_table, load_rows
+    from calib.analysis.rows import load_rows
+    from calib.analysis.tables import build_table
     from calib.errors import InputError
-    from calib.sweep.store import Store
+    from calib.store.database import Store
 
     if args.eps is not None and not 0.0 < args.eps < 1.0:
         raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")

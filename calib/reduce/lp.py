@@ -35,7 +35,7 @@ Retrieval maps the projected solution x' (with its basis B and duals y') back to
     (``completion_shortfall``), never repaired by solving the original.
 
 ``exact`` retrievals return the original's own optimum: their errors are zero by construction, so
-the analysis judges them on time saved alone (:mod:`calib.analysis.success`).
+the analysis judges them on time saved alone (:mod:`calib.verdicts.success`).
 
 The projected LP is solved by the method of :mod:`calib.solvers.methods` (``auto``: interior
 point on a large dense projected matrix); ``basis-lstsq``, ``restricted-repair`` and ``warm-start``

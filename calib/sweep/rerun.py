@@ -21,11 +21,11 @@ from dataclasses import dataclass, field
 from calib.checks import is_real
 from calib.errors import InputError
 from calib.metrics import FIELDS
+from calib.store.database import Store
+from calib.store.sqlite import DAMAGED_FIX
 from calib.sweep.plugins import allowed
-from calib.sweep.spec import ProjectorChoice
-from calib.sweep.store import DAMAGED_FIX, Store
-from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask
-from calib.sweep.trial import InstanceRef, Trial
+from calib.sweep.tasks import Failure, ORIGINAL_FIELDS, OriginalTask, TrialTask
+from calib.trial import InstanceRef, ProjectorChoice, Trial
 
 #: metric fields that measure time: shown side by side, never compared
 TIMING_FIELDS = tuple(name for name, field in FIELDS.items() if field.units == "s")

@@ -31,10 +31,11 @@ from pathlib import Path
 from typing import Callable, Optional
 
 from calib.keys import canonical_json
+from calib.store.database import Store
+from calib.sweep.expansion import count_trials, instance_refs, instance_trials
 from calib.sweep.spec import Spec
-from calib.sweep.store import Store
-from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask, failed_original
-from calib.sweep.trial import InstanceRef, Trial, count_trials, instance_refs, instance_trials
+from calib.sweep.tasks import Failure, ORIGINAL_FIELDS, OriginalTask, TrialTask, failed_original
+from calib.trial import InstanceRef, Trial
 
 #: what a coordinator keeps per stored trial: the retrievals it has rows for
 Stored = dict
@@ -291,8 +292,8 @@ class SearchCell:
 
     @property
     def label(self) -> str:
-        from calib.families.base import size_label
         from calib.families import get
+        from calib.families.base import size_label
 
         return f"{self.family} {size_label(get(self.family).size_keys, self.params)} / {self.projector.label} / {self.retrieval}"
 
@@ -305,8 +306,8 @@ class SearchCell:
 def search_cells(spec: Spec) -> list[SearchCell]:
     """One :class:`SearchCell` per (size, projector, retrieval) of a search spec, in spec order."""
     from calib.families import get
+    from calib.sweep.kgrid import k_values, search_range
     from calib.sweep.search import KSearch
-    from calib.sweep.spec import k_values, search_range
 
     cells = []
     for cell in spec.families:
@@ -325,13 +326,13 @@ def search_cells(spec: Spec) -> list[SearchCell]:
 
 def trial_successes(rows: list[dict], kinds: dict[str, str], predicate) -> dict[str, dict[str, bool]]:
     """trial id -> retrieval -> success of stored trial rows under ``predicate``, in one
-    :func:`calib.analysis.success.evaluate` call; ``kinds`` maps each row's instance id to its kind."""
+    :func:`calib.verdicts.success.evaluate` call; ``kinds`` maps each row's instance id to its kind."""
     import json
 
     import pandas as pd
 
-    from calib.analysis.success import evaluate
     from calib.metrics import FIELDS
+    from calib.verdicts.success import evaluate
 
     records = []
     for row in rows:

@@ -48,7 +48,7 @@ level a grid's table uses, 0.96 against 0.95 at confidence 0.95):
    for the true threshold k*, the walk can claim a k below k* only if it passes the first lattice
    point below k*, a single fixed k whose fixed-N test has level 4 (1 - confidence) / 5, whichever
    trials the bisection had already read there. The walk is the step-down a full grid applies
-   (:func:`calib.analysis.saferule.safe_k_rule`), run only below k_b; it costs no new trial at a
+   (:func:`calib.verdicts.saferule.safe_k_rule`), run only below k_b; it costs no new trial at a
    k the bisection already decided, and a whole cap at each new k it passes.
 
 So P(the claimed k has p(k) < t) <= (1 - confidence) / 5 + 4 (1 - confidence) / 5. Both phases
@@ -68,7 +68,7 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import betaln
 
-from calib.analysis.stats import clopper_pearson_lower
+from calib.verdicts.stats import clopper_pearson_lower
 
 #: strength a + b of the Beta prior of the mixture (centred on the target rate)
 PRIOR_STRENGTH = 5.0

@@ -88,8 +88,9 @@ def _spec(folder: Path, name: str, case: str, seed: int, reduced: bool, search: 
 
 def grid_safe_k(store_path: Path, predicate, delta: float, level: float) -> dict:
     """projector -> the table's safe k (instances scope) of the (single-size) grid."""
-    from calib.analysis.tables import Confidence, build_table
-    from calib.sweep.store import Store
+    from calib.analysis.tables import build_table
+    from calib.store.database import Store
+    from calib.verdicts.saferule import Confidence
 
     store = Store.open_existing(store_path)
     try:

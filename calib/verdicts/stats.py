@@ -13,12 +13,18 @@ One-sided Wilson score lower bound with z = Phi^-1(confidence):
 Reference: E. B. Wilson, "Probable inference, the law of succession, and statistical
 inference", Journal of the American Statistical Association 22(158):209–212, 1927.
 
+Sample size: :func:`trials_per_unit_needed` gives the trials r per unit, all successes, that ``U``
+Bonferroni-corrected bounds need to reach a target t: alpha / U = t^r, r = ceil(ln(alpha / U) / ln t)
+(29 for one unit at 90% and 95%).
+
 Only ``scipy.special`` is imported (the beta quantile is ``betaincinv``, Phi^-1 is ``ndtri``: the
 functions ``scipy.stats.beta.ppf`` and ``scipy.stats.norm.ppf`` evaluate), so that reading a table
 stays light.
 """
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -101,3 +107,14 @@ def wilson_lower(successes: ArrayLike, trials: ArrayLike, confidence: float = 0.
     spread = z * np.sqrt(p * (1 - p) / n + z**2 / (4 * n**2))
     # x = 0 gives exactly 0 (centre = spread); rounding must not print it as 6e-18
     return np.where(x <= 0, 0.0, (centre - spread) / (1 + z**2 / n))
+
+
+def trials_per_unit_needed(units: int, target: float, confidence: float) -> int:
+    """Trials per unit, all successes, for each of ``units`` Clopper–Pearson bounds at confidence
+    1 - (1 - confidence) / units to reach ``target`` (Bonferroni over the units): a unit whose r trials
+    all succeed has the bound ((1 - confidence) / units)^(1/r), so r = ceil(ln((1 - confidence) / units) / ln target).
+
+    >>> trials_per_unit_needed(1, 0.9, 0.95), trials_per_unit_needed(3, 0.9, 0.95)
+    (29, 39)
+    """
+    return int(math.ceil(math.log((1.0 - confidence) / units) / math.log(target) - 1e-12))

@@ -5,7 +5,7 @@ Two questions have two answers.
 
 *For these instances* (conditional on the instances measured): the trials at one k are independent
 draws of the projection, so the one-sided Clopper–Pearson bound on all x successes of the N trials
-is exact (:func:`calib.analysis.stats.clopper_pearson_lower`).
+is exact (:func:`calib.verdicts.stats.clopper_pearson_lower`).
 
 *For the class* (the instances are a sample of the family's instances): the class-wide success
 probability at k is the mean over instances of each instance's own rate, and trials of one
@@ -56,7 +56,7 @@ from typing import Optional
 import numpy as np
 from scipy import special
 
-from calib.analysis.stats import clopper_pearson_lower
+from calib.verdicts.stats import clopper_pearson_lower
 from calib.wording import counted
 
 
