@@ -215,11 +215,13 @@ def test_the_walk_stays_on_the_lattice_and_reads_no_trial_twice():
     search = _fixed(lambda k: 80 if k >= 31 else 78 if k >= 21 else 0, 80, 5, 45, step=4)
     assert all((step.k - 5) % 4 == 0 for step in search.steps if step.k != 45)
     assert search.safe_k == 21
-    # k = 29 and 25 failed at the cap in the bisection (78 of 80 at its stricter level); the walk
-    # reads the same 80 trials again, passes them at its own level, and they count once
+    # k = 29 and 25 failed in the bisection (78 of 80 cannot reach its stricter level, 80 of 80: known
+    # at the first failure, the failures lead); the walk reads their 80 trials, passes them at its own
+    # level, and they count once
     both = {step.k for step in search.steps if step.phase == "walk"} & {step.k for step in search.steps if step.phase == "bisection"}
     assert both == {25, 29}
-    assert search.trials_read == 80 + 7 + 80 + 80 + 80 + 80 + 4  # k = 45, 5, 25, 33, 29, 21, 17
+    assert [step.trials for step in search.steps if step.phase == "bisection" and step.k in both] == [1, 1]
+    assert search.trials_read == 80 + 1 + 80 + 80 + 80 + 80 + 4  # k = 45, 5, 25, 33, 29, 21, 17
 
 
 def test_a_sharp_curve_gives_the_exact_k_with_few_trials():

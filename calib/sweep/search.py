@@ -72,8 +72,11 @@ from calib.analysis.stats import clopper_pearson_lower
 
 #: strength a + b of the Beta prior of the mixture (centred on the target rate)
 PRIOR_STRENGTH = 5.0
-#: the share of the error 1 - confidence spent on the bisection; the walk down spends the rest
+#: the share of the error 1 - confidence spent on the bisection (Bonferroni over its looks)
 BISECTION_SHARE = 0.2
+#: the share of the error 1 - confidence spent by the walk's Clopper–Pearson look at the cap; the rest
+#: (1 - BISECTION_SHARE - WALK_SHARE) by the walk's early passes on the confidence sequence
+WALK_SHARE = 0.75
 #: stated with every verdict
 MONOTONE = "bisection assumes the success rate does not fall as k grows; k values between tested ones were not run"
 
@@ -214,6 +217,19 @@ def max_looks(low: int, high: int, step: int = 1) -> int:
     return 2 + math.ceil(math.log2(lattice_count(low, high, step)))
 
 
+def bisection_looks(low: int, high: int, step: int = 1, top: Optional[int] = None) -> int:
+    """Most bisection looks in one run of a search on [low, high], extended up to ``top``: a run
+    either bisects [low, high] (high passes) or [high, top] (high fails, then top), so its looks
+    are at most the larger of the two counts (:func:`max_looks`).
+
+    >>> bisection_looks(10, 150, 2), bisection_looks(10, 150, 2, top=299), bisection_looks(10, 150, 2, top=1199)
+    (9, 9, 12)
+    """
+    if top is None or top <= high:
+        return max_looks(low, high, step)
+    return max(max_looks(low, high, step), max_looks(high, top, step))
+
+
 def all_pass_trials(rate: float, alpha: float) -> int:
     """The fewest trials, all successes, after which a k passes a look at error ``alpha``: the
     smaller of the confidence sequence's first possible pass and the Clopper–Pearson look at a cap
@@ -230,11 +246,33 @@ def all_pass_trials(rate: float, alpha: float) -> int:
     return sequence if passes == "pass" else fixed
 
 
+def fixed_pass_trials(rate: float, alpha: float) -> int:
+    """The fewest trials, all successes, whose one-sided Clopper–Pearson bound at 1 - ``alpha``
+    reaches ``rate``: n of n passes when alpha^(1/n) >= rate, i.e. n >= ln alpha / ln rate.
+
+    >>> fixed_pass_trials(0.9, 0.05), fixed_pass_trials(0.9, 0.01 / 8 / 2)
+    (29, 71)
+    """
+    return math.ceil(math.log(alpha) / math.log(rate) - 1e-12)
+
+
+def fewest_passing(cap: int, rate: float, alpha: float) -> int:
+    """The fewest successes in ``cap`` trials whose one-sided Clopper–Pearson lower bound at
+    1 - ``alpha`` reaches ``rate`` (cap + 1 when none does): the last look's pass threshold.
+
+    >>> fewest_passing(80, 0.9, 0.05), fewest_passing(80, 0.9, 0.0375), fewest_passing(80, 0.9, 0.01 / 11 / 2)
+    (77, 77, 80)
+    """
+    lower = np.asarray(clopper_pearson_lower(np.arange(cap + 1), cap, 1.0 - alpha))
+    passing = np.flatnonzero(lower >= rate)
+    return int(passing[0]) if passing.size else cap + 1
+
+
 @dataclass(frozen=True)
 class CapNeed:
     """What a search's cap of trials per k must reach for a k to pass at all (every trial a success)."""
 
-    bisection: int      # trials for a bisection look to pass (level 1 - alpha / 2)
+    bisection: int      # trials for a bisection look to pass (its last look, level 1 - alpha / 2)
     walk: int           # trials for a look of the walk down to pass (level 1 - walk alpha)
     bisection_level: float
     walk_level: float
@@ -245,16 +283,16 @@ class CapNeed:
         return max(self.bisection, self.walk)
 
 
-def cap_need(low: int, high: int, rate: float, confidence: float, step: int = 1) -> CapNeed:
+def cap_need(low: int, high: int, rate: float, confidence: float, step: int = 1, top: Optional[int] = None) -> CapNeed:
     """The trials per k a search on [low, high] needs before any k can pass (:class:`CapNeed`).
 
     >>> need = cap_need(4, 300, 0.9, 0.95)   # 11 bisection looks: level 1 - 0.01 / 11 / 2
     >>> need.bisection, need.walk, round(need.bisection_level, 5)
-    (74, 31, 0.99955)
+    (74, 32, 0.99955)
     """
-    search = KSearch(low, high, rate, confidence, cap=1, step=step)
+    search = KSearch(low, high, rate, confidence, cap=1, step=step, top=top)
     alpha = search.alpha / 2
-    return CapNeed(all_pass_trials(rate, alpha), all_pass_trials(rate, search.walk_alpha), 1 - alpha, 1 - search.walk_alpha)
+    return CapNeed(all_pass_trials(rate, alpha), fixed_pass_trials(rate, search.walk_alpha), 1 - alpha, 1 - search.walk_alpha)
 
 
 def cap_text(need: CapNeed, cap: int) -> str:
@@ -273,7 +311,7 @@ class Step:
     successes: int
     lower: float
     upper: float
-    verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target)
+    verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target) | "fail: cannot pass at the cap"
     phase: str = "bisection"  # "bisection" | "walk"
 
 
@@ -282,7 +320,9 @@ class KSearch:
     """The search on one cell; feed it outcomes at :meth:`demand`'s k until it is done.
 
     ``cap`` is the most trials read at one k (instances x replicates of the spec); ``step`` the
-    lattice of k values below ``high`` (low, low + step, ...): the resolution of the answer.
+    lattice of k values below ``high`` (low, low + step, ...): the resolution of the answer. ``top``
+    (the largest k that is still a reduction, m - 1) lets the search go on above ``high`` when
+    ``high`` fails; None stops at ``high`` (the old behaviour, ``extend = false`` in the spec).
     """
 
     low: int
@@ -291,6 +331,7 @@ class KSearch:
     confidence: float
     cap: int
     step: int = 1
+    top: Optional[int] = None
     steps: list = field(default_factory=list)
     safe_k: Optional[int] = None
     reason: str = ""
@@ -298,41 +339,92 @@ class KSearch:
 
     def __post_init__(self) -> None:
         error = 1.0 - self.confidence
-        self.alpha = error * BISECTION_SHARE / max_looks(self.low, self.high, self.step)  # one bisection look
-        self.walk_alpha = error * (1.0 - BISECTION_SHARE)  # every k of the walk down (fixed sequence)
+        if self.top is not None and self.top <= self.high:
+            self.top = None  # nothing above high is a reduction: no extension
+        self.looks = bisection_looks(self.low, self.high, self.step, self.top)
+        self.alpha = error * BISECTION_SHARE / self.looks  # one bisection look (its last look spends half)
+        self.walk_alpha = error * WALK_SHARE  # the walk's last look at every k (fixed sequence)
+        self.early_alpha = error * (1.0 - BISECTION_SHARE - WALK_SHARE)  # the walk's early passes
         self.phase = "bisection"
         self._passing, self._failing = None, None  # smallest passing, largest failing k so far
+        self._extending = False
         self.k: Optional[int] = self.high
         self._outcomes: list = []
+        self._thresholds: dict[float, int] = {}
+
+    # ----- what one look needs and decides ------------------------------------------------------
+    def _levels(self) -> tuple[Optional[float], float, float]:
+        """(early-pass alpha or None, early-fail alpha, last-look alpha) of the current phase."""
+        if self.phase == "walk":
+            return self.early_alpha, self.walk_alpha, self.walk_alpha
+        return self.alpha / 2, self.alpha / 2, self.alpha / 2  # half on the sequence, half on the last look
+
+    def _threshold(self, alpha: float) -> int:
+        if alpha not in self._thresholds:
+            self._thresholds[alpha] = fewest_passing(self.cap, self.rate, alpha)
+        return self._thresholds[alpha]
+
+    def _can_pass(self, successes: int, read: int) -> bool:
+        """Whether a pass is still possible after ``successes`` in ``read`` trials (all further succeed)."""
+        early, _, last = self._levels()
+        if successes + self.cap - read >= self._threshold(last):
+            return True
+        if early is None or read >= self.cap:
+            return False
+        more = trials_before_decision(successes, read, self.rate, early, self.cap, ("pass",))
+        return first_decision([True] * more, self.rate, early, ("pass",))[0] == "pass" if more else False
+
+    def _to_curtail(self, successes: int, read: int) -> int:
+        """Further trials, all failures, after which no pass is possible (exact curtailment)."""
+        for extra in range(1, self.cap - read + 1):
+            if not self._can_pass(successes, read + extra):
+                return extra
+        return self.cap - read
 
     def demand(self) -> Optional[tuple[int, int]]:
         """(k, n): the search needs the outcomes of the first n trials at k; None once done."""
         if self.done:
             return None
         successes, read = sum(self._outcomes), len(self._outcomes)
-        if self.phase == "walk":  # passes only at the cap: ask up to the first possible early fail
-            more = trials_before_decision(successes, read, self.rate, self.walk_alpha, self.cap, ("fail",))
-        else:
-            more = trials_before_decision(successes, read, self.rate, self.alpha / 2, self.cap)
+        early, fail, _ = self._levels()
+        more = min(trials_before_decision(successes, read, self.rate, fail, self.cap, ("fail",)),
+                   self._to_curtail(successes, read))
+        if early is not None:
+            more = min(more, trials_before_decision(successes, read, self.rate, early, self.cap, ("pass",)))
         return self.k, read + max(1, more)
 
     def offer(self, outcomes: Sequence[bool]) -> None:
         """Outcomes of the first trials at the current k, in trial order (a longer list is fine)."""
         outcomes = [bool(value) for value in outcomes[:self.cap]]
-        walking = self.phase == "walk"
-        alpha = self.walk_alpha if walking else self.alpha / 2
-        verdict, used = first_decision(outcomes, self.rate, alpha, ("fail",) if walking else ("pass", "fail"))
+        verdict, used = self._first_verdict(outcomes)
         if verdict is not None:
             self._record(verdict, outcomes[:used])
         elif len(outcomes) < self.cap:
             self._outcomes = outcomes
         else:  # the last look: a fixed-n Clopper–Pearson bound on all cap trials
-            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - alpha))
+            last = self._levels()[2]
+            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - last))
             self._record("pass" if lower >= self.rate else "fail at the cap", outcomes, lower)
+
+    def _first_verdict(self, outcomes: list) -> tuple[Optional[str], int]:
+        """The first prefix that decides: an early pass (walk), an early fail on the sequence, or a
+        curtailed fail (the last look can no longer pass); (None, len) when none does."""
+        early, fail, _ = self._levels()
+        verdict, used = first_decision(outcomes, self.rate, fail, ("fail",))
+        if early is not None:
+            passed, at = first_decision(outcomes, self.rate, early, ("pass",))
+            if passed is not None and at <= used:
+                verdict, used = passed, at
+        successes = 0
+        for read, outcome in enumerate(outcomes[:used], start=1):
+            successes += outcome
+            if not outcome and read < self.cap and not self._can_pass(successes, read):
+                return "fail: cannot pass at the cap", read  # curtailed: the last look's verdict, known sooner
+        return verdict, used
 
     def _record(self, verdict: str, outcomes: list, last_lower: float = 0.0) -> None:
         successes = sum(outcomes)
-        alpha = self.walk_alpha if self.phase == "walk" else self.alpha / 2
+        alpha = self._levels()[1]
         lower, upper = confidence_sequence(successes, len(outcomes), self.rate, alpha)
         lower = max(lower, last_lower)
         self.steps.append(Step(self.k, len(outcomes), successes, lower, upper, verdict, self.phase))
@@ -348,11 +440,18 @@ class KSearch:
         if self.k is None:
             self.done = True
 
+    # ----- where to look next -------------------------------------------------------------------
     def _next_k(self) -> Optional[int]:
         if self._passing is None:
-            need = cap_need(self.low, self.high, self.rate, self.confidence, self.step)
+            if self.top is not None and not self._extending:
+                self._extending = True  # high failed: the range above it, up to top, is searched too
+                return self.top
+            need = cap_need(self.low, self.high, self.rate, self.confidence, self.step, self.top)
             if self.cap < need.bisection:
                 self.reason = cap_text(need, self.cap)
+            elif self._extending:
+                self.reason = (f"k = {self.top} = m - 1 does not reach the target either: no k below "
+                               f"m = {self.top + 1} meets the target")
             else:
                 self.reason = f"the high end k = {self.high} does not reach the target: widen the range"
             return None
@@ -366,13 +465,18 @@ class KSearch:
         return inside[(len(inside) - 1) // 2]
 
     def _lattice_between(self, failing: int, passing: int) -> list[int]:
+        if failing >= self.high:  # above high: the lattice high, high + step, ... (and top)
+            return list(range(failing + self.step, passing, self.step))
         first = self.low + self.step * max(0, -(-(failing + 1 - self.low) // self.step))
         return list(range(first, passing, self.step))
 
     def _walk(self, passed: int) -> Optional[int]:
         """The walk down's next k: the lattice point below ``passed`` (the smallest k passed so far)."""
         self.phase, self._passing = "walk", passed
-        below = self.low + self.step * ((passed - 1 - self.low) // self.step)
+        if passed > self.high:  # above high the lattice is high + j step
+            below = self.high + self.step * ((passed - 1 - self.high) // self.step)
+        else:
+            below = self.low + self.step * ((passed - 1 - self.low) // self.step)
         if below < self.low:
             return self._finish(passed, f"the low end k = {self.low} passes: a smaller k may be safe too")
         return below
