@@ -370,3 +370,43 @@ def test_the_example_search_spec_reads():
 
     spec = load_spec(Path(__file__).resolve().parents[1] / "instances" / "quickstart-search.toml")
     assert spec.k_grid.is_search and spec.target.rate == pytest.approx(0.9)
+
+
+# ----- the whole range: above high up to m - 1 -----------------------------------------------
+
+def _all_at(curve, search: KSearch) -> KSearch:
+    while (demand := search.demand()) is not None:
+        k, count = demand
+        search.offer([curve(k)] * count)
+    return search
+
+
+def test_a_failing_high_end_goes_on_up_to_m_minus_1():
+    # a sharp curve safe from k = 70 on, searched on [1, 40] of m = 100: the old search said "widen the
+    # range"; the extended one brackets [40, 99] and finds 70 (module text: one run bisects one bracket)
+    search = _all_at(lambda k: k >= 70, KSearch(1, 40, 0.9, 0.95, 80, top=99))
+    assert search.safe_k == 70 and search.steps[0].k == 40 and search.steps[1].k == 99
+    assert search.looks == max(max_looks(1, 40), max_looks(40, 99))
+    assert all(step.k >= 40 for step in search.steps)  # low is not tested once high failed
+    nothing = _all_at(lambda k: False, KSearch(1, 40, 0.9, 0.95, 80, top=99))
+    assert nothing.safe_k is None and "no k below m = 100 meets the target" in nothing.reason
+    assert [step.k for step in nothing.steps] == [40, 99]
+    old = _all_at(lambda k: k >= 70, KSearch(1, 40, 0.9, 0.95, 80))  # top=None: stop at high
+    assert old.safe_k is None and "widen the range" in old.reason
+
+
+def test_extend_is_a_search_option():
+    assert parse_spec(_raw()).k_grid.extend
+    assert not parse_spec(_raw(sweep__k={"search": {"low": 1, "high": 6, "extend": False}})).k_grid.extend
+    with pytest.raises(SpecError, match="sweep.k.search.extend"):
+        parse_spec(_raw(sweep__k={"search": {"low": 1, "high": 6, "extend": "yes"}}))
+
+
+def test_a_curtailed_look_fails_with_the_verdict_of_its_last_look():
+    # at the bisection's level on [1, 40] (1 - 0.01/8/2) 80 of 80 are needed at the cap of 80
+    # (0.9^80 = 2.2e-4 <= 6.25e-4 < P(Binomial(80, 0.9) >= 79) = 2.2e-3, scipy.stats.binom): the
+    # first failure decides, whatever follows
+    search = KSearch(1, 40, 0.9, 0.95, 80)
+    search.offer([False] + [True] * 79)
+    assert search.steps[0].verdict.startswith("fail") and search.steps[0].trials == 1
+    assert stats.binom.sf(78, 80, 0.9) > search.alpha / 2 >= stats.binom.sf(79, 80, 0.9)

@@ -30,30 +30,49 @@ pass at that k has probability <= alpha/2 + alpha/2 (a union bound; the look at 
 event whatever the sequence did before). The last look is what lets a k with, say, 79 successes in
 80 trials pass, where the anytime bound alone would need more trials than the cap.
 
-Many k, in two phases that share the error 1 - confidence (a fifth, :data:`BISECTION_SHARE`, on
-the bisection, the rest on the walk: the walk makes the claim, so its level stays close to the
-level a grid's table uses, 0.96 against 0.95 at confidence 0.95):
+Many k, in two phases that share the error e = 1 - confidence: the bisection spends
+:data:`BISECTION_SHARE` e (0.2 e), the walk's last look :data:`WALK_SHARE` e (0.75 e: at confidence
+0.95 its level 0.9625 needs 77 of 80 successes, the same count as a grid's table at 0.95), and the
+walk's early passes the rest (0.05 e):
 
-1. Bracket and bisection. On the lattice low, low + step, low + 2 step, ... (and high), it tests
-   at most K = 2 + ceil(log2(ceil((high - low) / step))) values of k (high, low, then halving the
-   gap between the smallest passing and the largest failing k), each at alpha = (1 - confidence)
-   / (5 K) (Bonferroni: a bisection can look at several k below the true threshold, and each is a
-   chance of a false pass). Its answer k_b is the smallest tested k that passed, above a failing
-   one. When high does not pass there is no claim; when low passes, low is the answer.
-2. Walk down. From k_b the lattice points below it are tested in decreasing order, each at the
-   level 4 (1 - confidence) / 5 by the Clopper–Pearson look on its N trials (a k clearly below
-   the target stops early, on the confidence sequence at the same level); the walk stops at the
-   first k that does not pass, and the answer is the last k that did. This is fixed-sequence
-   testing along a monotone family (Maurer, Hothorn & Lehmacher 1995; Westfall & Krishen 2001):
-   for the true threshold k*, the walk can claim a k below k* only if it passes the first lattice
-   point below k*, a single fixed k whose fixed-N test has level 4 (1 - confidence) / 5, whichever
-   trials the bisection had already read there. The walk is the step-down a full grid applies
-   (:func:`calib.analysis.saferule.safe_k_rule`), run only below k_b; it costs no new trial at a
-   k the bisection already decided, and a whole cap at each new k it passes.
+1. Bracket and bisection. On the lattice low, low + step, ... (and high), high is tested first.
+   If it passes, low, then the gap between the smallest passing and the largest failing k is halved.
+   If it fails and the cell has a reduction above high (``top`` = m - 1, the largest k below the
+   projected dimension m), the search goes on: top, then the gap between high and top on the
+   lattice high + j step is halved; when top fails too, the verdict is "no k below m meets the
+   target". One run bisects one of the two brackets, so it tests at most
+   K = max(K(low, high), K(high, top)) values, K(a, b) = 2 + ceil(log2(ceil((b - a) / step))), and
+   each look gets alpha = 0.2 e / K (Bonferroni over the looks of a run: the j-th look, whichever k
+   the earlier looks chose, is a fresh set of trials at a k tested once, so P(some look at a k
+   below the threshold passes) <= sum_j alpha = 0.2 e; a run that extends has no low look, a run
+   that does not has no top look, so the longer bracket bounds both). Half of a look's alpha is
+   on the sequence, half on the last look. The answer k_b is the smallest tested k that passed,
+   above a failing one (or low, when low passes).
+2. Walk down. From k_b the lattice points below it are tested in decreasing order; at each the
+   test T_k passes when the confidence sequence at 0.05 e lies above t (an early pass) or, at the
+   cap, the Clopper–Pearson look at 0.75 e does, so P(T_k passes | p(k) < t) <= 0.8 e (a union
+   bound). The walk stops at the first k that does not pass; the answer is the last k that did.
+   This is fixed-sequence testing along a monotone family (Maurer, Hothorn & Lehmacher 1995;
+   Westfall & Krishen 2001): for the true threshold k* (the smallest lattice k with p(k) >= t), if
+   k_b >= k* the walk claims a k below k* only if T at the first lattice point below k* passes, a
+   single fixed event on fixed trials, whichever trials the bisection had already read there.
 
-So P(the claimed k has p(k) < t) <= (1 - confidence) / 5 + 4 (1 - confidence) / 5. Both phases
-assume p(k) does not fall as k grows (monotone success), as the grid's rule does; k values
-between tested ones are not checked, and this assumption is stated with every verdict.
+Curtailment (all looks). A look fails as soon as no continuation can pass it: neither the last
+look (too many failures already for the pass threshold at the cap, :func:`fewest_passing`) nor an
+early pass within the cap (all further trials successes). This is the verdict the look would give
+at the cap, known sooner (a curtailed fixed-n test; common practice in group-sequential designs),
+so it changes no verdict and spends no error; only the trials read drop (a bisection look at the
+strict level fails at its first failure).
+
+So P(the claimed k has p(k) < t) <= P(k_b < k*) + P(T at k* - step passes) <= 0.2 e + 0.8 e = e.
+Both phases assume p(k) does not fall as k grows (monotone success), as the grid's rule does; k
+values between tested ones are not checked, and this assumption is stated with every verdict.
+
+What a flat curve costs. Where p(k) rises slowly the walk passes many k, each by the fixed-n look
+(an early pass needs 71 or more successes in a row at 0.05 e with the Beta prior): the walk reproduces the grid's
+step-down decision at every k it passes (same trials, same pass count at a cap of 80), which is
+what keeps its answer on the grid's; a search that skipped lattice points would save trials there
+but could step over the grid's largest failing k, whose place on a flat curve is itself noise.
 
 Costs: each look is O(1) (log-beta functions); a search holds the outcomes at its current k only.
 """
@@ -503,9 +522,10 @@ def trace_lines(search: KSearch, target_text: str) -> list[str]:
     for step in sorted(search.steps, key=lambda step: (step.k, step.phase)):
         lines.append(f"  {step.k:>6} {step.trials:>7} {step.successes:>9}  {step.lower:>6.3f} {step.upper:>6.3f}  "
                      f"{step.phase:9}  {step.verdict}")
-    looks = max_looks(search.low, search.high, search.step)
+    looks = search.looks
     if search.safe_k is None:
-        verdict = f"no safe k in [{search.low}, {search.high}]: {search.reason}" if search.done else "search not finished"
+        upper = search.top if search.top is not None else search.high
+        verdict = f"no safe k in [{search.low}, {upper}]: {search.reason}" if search.done else "search not finished"
     else:
         verdict = f"safe k = {search.safe_k}: {target_text} at confidence {search.confidence:g}"
         verdict += f" ({search.reason})" if search.reason else ""
@@ -513,5 +533,5 @@ def trace_lines(search: KSearch, target_text: str) -> list[str]:
     lines.append(f"  bounds: bisection k at {1 - search.alpha / 2:.4g} (a beta-binomial confidence sequence, then a "
                  f"Clopper–Pearson look at the cap; Bonferroni over at most {looks} k values), then a walk down the "
                  f"k lattice (step {search.step}) with a Clopper–Pearson look at the cap at {1 - search.walk_alpha:.4g} "
-                 f"per k (fixed sequence); {MONOTONE}")
+                 f"per k and early passes on the sequence at {1 - search.early_alpha:.4g} (fixed sequence); {MONOTONE}")
     return lines
