@@ -212,7 +212,9 @@ def search_need(spec: Spec, plan: SizePlan):
     """The :class:`calib.sweep.search.CapNeed` of the k search of one size of a search spec."""
     from calib.sweep.search import cap_need
 
-    return cap_need(plan.ks[0], plan.ks[-1], spec.target.rate, spec.target.confidence, spec.k_grid.step)
+    m = get_family(plan.family).projected_dim(plan.params)
+    top = m - 1 if spec.k_grid.extend else None  # the search goes on above high up to m - 1 (calib.sweep.search)
+    return cap_need(plan.ks[0], plan.ks[-1], spec.target.rate, spec.target.confidence, spec.k_grid.step, top=top)
 
 
 def search_advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:

@@ -35,6 +35,7 @@ class KGrid:
     values: tuple
     rule: Optional[str] = None
     step: int = 1  # a search's lattice of k: low, low + step, ... (the resolution of its answer)
+    extend: bool = True  # a search whose high end fails goes on above it, up to m - 1 (False: stop at high)
 
     @property
     def is_search(self) -> bool:
@@ -93,7 +94,7 @@ def _parse_search(value, errors: ProblemList) -> KGrid:
     """``{low, high}`` (integers 1 <= low < high) or ``{low_fraction, high_fraction}`` (0 < low < high <= 1),
     with an optional ``step`` (integer >= 1, default 1): the lattice low, low + step, ... of k tested."""
     path = "sweep.k.search"
-    ends = set(value) - {"step"} if isinstance(value, dict) else None
+    ends = set(value) - {"step", "extend"} if isinstance(value, dict) else None
     if not isinstance(value, dict) or ends not in ({"low", "high"}, {"low_fraction", "high_fraction"}):
         errors.add(path, f"cannot read {value!r}", _SEARCH_FIX)
         return KGrid("search", ())
@@ -101,6 +102,9 @@ def _parse_search(value, errors: ProblemList) -> KGrid:
     if not is_integer(step) or step < 1:
         errors.add(f"{path}.step", f"invalid value {step!r}", "step is an integer >= 1 (1: every k)")
         step = 1
+    extend = value.get("extend", True)
+    if not isinstance(extend, bool):
+        errors.add(f"{path}.extend", f"invalid value {extend!r}", "extend is true (go on above high up to m - 1) or false")
     fractions = "low_fraction" in value
     keys = ("low_fraction", "high_fraction") if fractions else ("low", "high")
     good = True
@@ -116,7 +120,7 @@ def _parse_search(value, errors: ProblemList) -> KGrid:
     low, high = (value[key] for key in keys)
     if good and not low < high:
         errors.add(path, f"{keys[0]} = {low} is not below {keys[1]} = {high}", _SEARCH_FIX)
-    return KGrid("search-fractions" if fractions else "search", (low, high), step=step)
+    return KGrid("search-fractions" if fractions else "search", (low, high), step=step, extend=extend is not False)
 
 
 def check_grid(cells, k_grid: KGrid, errors: ProblemList, registry) -> None:

@@ -313,13 +313,15 @@ def search_cells(spec: Spec) -> list[SearchCell]:
     for cell in spec.families:
         family = get(cell.name)
         for params in cell.sizes:
-            low, high = search_range(spec.k_grid, family.projected_dim(params))
+            m = family.projected_dim(params)
+            low, high = search_range(spec.k_grid, m)
+            top = m - 1 if spec.k_grid.extend else None  # above high: up to the largest reduction
             label = k_values(spec.k_grid, family, params)[1][0]
             refs = [InstanceRef(cell.name, params, index, spec.root_seed) for index in range(cell.instances)]
             for choice in spec.projectors:
                 for retrieval in retrieval_names(family.kind, spec.retrievals):
                     search = KSearch(low, high, spec.target.rate, spec.target.confidence, len(refs) * spec.replicates,
-                                     spec.k_grid.step)
+                                     spec.k_grid.step, top=top)
                     cells.append(SearchCell(cell.name, params, refs, choice, retrieval, label, search))
     return cells
 

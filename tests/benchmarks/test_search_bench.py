@@ -36,6 +36,9 @@ CASES = {
                              '["gaussian", "srht", "countsketch", "sparse-jl"]', (2, 240), 'preset = "bound"\ntolerance = 1e-6'),
     "points": ('"points-gaussian"', "{points = 100, dim = 1000}", "{}", '["gaussian"]', (10, 1000),
                'preset = "distortion"\ntolerance = 0.2'),
+    # a family the search was not tuned on: sparse 0/1 vectors, CountSketch (issue 24)
+    "points-binary": ('"points-binary"', "{points = 100, dim = 1000}", "{density = 0.05}", '["countsketch"]', (10, 1000),
+                      'preset = "distortion"\ntolerance = 0.2'),
 }
 
 #: the reduced run for a shared 2-core machine: the same families and success rules, smaller sizes
@@ -43,6 +46,7 @@ REDUCED = {
     "basis-pursuit": ("{measurements = 60, length = 80, sparsity = 8}", (4, 60)),
     "planted-4-projectors": ("{rows = 60, cols = 120}", (2, 60)),
     "points": ("{points = 20, dim = 1000}", (200, 1000)),  # 20 points: a safe k near 600, inside the range
+    "points-binary": ("{points = 20, dim = 600}", (100, 600)),
 }
 
 INSTANCES, REPLICATES = 2, 40  # cap per k: 80 trials
