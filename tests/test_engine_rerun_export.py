@@ -61,6 +61,30 @@ def test_rerun_flags_a_tampered_row(campaign, tmp_path, capsys):
     assert line.endswith("DIFFERENT")
 
 
+def test_a_stated_sample_covers_each_cell_once_and_depends_on_its_seed_alone(campaign, capsys):
+    """The sample's cells are the (family, size, projector) groups read with sqlite3 directly."""
+    from calib.store.database import Store
+    from calib.sweep.rerun import sample_trials
+
+    _, store_path = campaign
+    with sqlite3.connect(store_path) as db:
+        cell_of = {trial: (family, params, projector) for trial, family, params, projector in db.execute(
+            "SELECT t.trial_id, i.family, i.params, t.projector FROM trials t JOIN instances i USING (instance_id)")}
+    cells = set(cell_of.values())
+    store = Store.open_existing(store_path)
+    try:
+        every = sample_trials(store, len(cells) + 5, seed=3)
+        again = sample_trials(store, len(cells) + 5, seed=3)
+        two = sample_trials(store, 2, seed=3)
+    finally:
+        store.close()
+    assert every == again and len(every) == len(cells) and {cell_of[trial] for trial in every} == cells
+    assert two == every[:2]
+    assert main(["rerun", str(store_path), "--sample", "2", "--seed", "3"]) == 0
+    out = capsys.readouterr().out
+    assert all(f"trial {trial}" in out for trial in two) and "sample of 2 cell(s) (seed 3): 2 identical, 0 differ" in out
+
+
 def test_rerun_of_an_unknown_trial_is_a_user_error(campaign, capsys):
     _, store = campaign
     assert main(["rerun", str(store), "ffffffffffff"]) == 2

@@ -194,6 +194,16 @@ class Store:
             rows += [dict(zip(names, row)) for row in cursor.fetchall()]
         return rows
 
+    def trial_cells(self) -> dict[tuple[str, str, str], list[str]]:
+        """(family, params JSON, projector label) -> the ids of its stored trials, sorted: the cells a
+        table reports, for a sample that covers them (:func:`calib.sweep.rerun.sample_trials`)."""
+        rows = self.db.execute("SELECT DISTINCT i.family, i.params, t.projector, t.trial_id FROM trials t "
+                               "JOIN instances i ON i.instance_id = t.instance_id ORDER BY t.trial_id")
+        cells: dict[tuple[str, str, str], list[str]] = {}
+        for family, params, projector, trial_id in rows:
+            cells.setdefault((family, params, projector), []).append(trial_id)
+        return cells
+
     def matching_trial_ids(self, prefix: str, limit: int = 5) -> list[str]:
         """Stored trial ids starting with ``prefix`` (at most ``limit``)."""
         rows = self.db.execute("SELECT DISTINCT trial_id FROM trials WHERE trial_id >= ? AND trial_id < ? LIMIT ?",
