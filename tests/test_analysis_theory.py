@@ -18,7 +18,7 @@ from analysis_campaign import run_spec
 from calib import projectors, theory
 from calib.analysis.success import make_predicate
 from calib.analysis.tables import Confidence, build_analysis, build_table
-from calib.conic import PointSet
+from calib.problems.points import PointSet
 from calib.reduce.points import PointsHandler
 from calib.sweep.store import Store
 

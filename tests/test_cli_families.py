@@ -58,7 +58,7 @@ def _counted_from_the_problem(kind: str, problem) -> tuple[int, int]:
 
 
 def test_every_kind_says_how_n_and_m_are_counted_and_the_families_count_so(capsys):
-    from calib.theory import COUNTING
+    from calib.problems.kinds import COUNTING
 
     assert set(COUNTING) == {family.kind for family in REGISTRY.values()} == set(KIND_EXAMPLES)
     for kind, (name, params) in KIND_EXAMPLES.items():

@@ -17,7 +17,7 @@ from calib.analysis.tables import Confidence, build_analysis
 from calib.cli import main
 from calib.families import get
 from calib.families.lp_real import NETLIB_DIR
-from calib.problems import read_mps
+from calib.problems.mps import read_mps
 
 FAMILY = "lp-planted"
 

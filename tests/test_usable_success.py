@@ -7,8 +7,8 @@ from scipy.optimize import linprog, minimize
 
 from calib import projectors
 from calib.analysis.success import PRESETS, evaluate, make_predicate, saves_time
-from calib.conic import QP
 from calib.metrics import SCALE_FLOOR, record
+from calib.problems.qp import QP
 from calib.reduce.base import Context
 from calib.reduce.lp import LPHandler
 from calib.reduce.qp import QPHandler, ReducedQP
