@@ -18,6 +18,7 @@ from typing import Union
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 
@@ -31,7 +32,7 @@ INF_BOUND = 1e20
 SYMMETRY_RTOL = 1e-10
 
 
-def finite_or_inf(values) -> np.ndarray:
+def finite_or_inf(values: ArrayLike) -> np.ndarray:
     """A float copy of ``values`` with every entry of magnitude >= :data:`INF_BOUND` set to +-inf (same shape).
 
     >>> finite_or_inf([1.0, 1e20, -3e21]).tolist()
@@ -43,19 +44,19 @@ def finite_or_inf(values) -> np.ndarray:
     return values
 
 
-def as_matrix(A) -> Matrix:
+def as_matrix(A: Union[ArrayLike, Matrix]) -> Matrix:
     """Float CSR for sparse input, a 2-D float ndarray otherwise (the one coercion of constraint matrices)."""
     return sp.csr_array(A, dtype=float) if sp.issparse(A) else np.atleast_2d(np.asarray(A, dtype=float))
 
 
-def check_finite(name: str, where: str, values) -> None:
+def check_finite(name: str, where: str, values: Union[ArrayLike, Matrix]) -> None:
     """Raise :class:`InputError` at ``where`` when the array (dense or sparse) ``name`` holds NaN or +-inf."""
     data = values.data if sp.issparse(values) else np.asarray(values)
     if not np.all(np.isfinite(data)):
         raise InputError(where, f"{name} contains NaN or infinite entries", "replace them with finite numbers")
 
 
-def max_abs(X) -> float:
+def max_abs(X: Matrix) -> float:
     """max |X_ij| of a dense or sparse array, 0 when it has no (stored) entry.
 
     >>> max_abs(np.array([[1.0, -4.0]])), max_abs(sp.csr_array((2, 2)))
@@ -66,7 +67,7 @@ def max_abs(X) -> float:
     return float(np.abs(X).max()) if X.size else 0.0
 
 
-def is_symmetric(X) -> bool:
+def is_symmetric(X: Matrix) -> bool:
     """max |X - X^T| <= :data:`SYMMETRY_RTOL` * max(1, max |X|) for a square dense or sparse X.
 
     >>> is_symmetric(np.array([[1.0, 2.0], [2.0, 3.0]])), is_symmetric(np.array([[1.0, 2.0], [0.0, 3.0]]))

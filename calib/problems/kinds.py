@@ -1,7 +1,7 @@
 """The problem kinds by name, and how each counts n (the JL points) and m (the projected dimension).
 
 A family, a stored trial and a table name a problem kind by a short string (``lp``, ``sdp``, ``qp``,
-``points``, ``clustering``, ``milp``); :func:`container` gives its container class. Each container
+``points``, ``clustering``, ``milp``); :func:`containers` maps it to its container class. Each container
 states its own count: ``jl_points`` on a built problem, ``jl_points_for(size)`` from a family's sizes
 before building, and ``COUNTING``, the one text ``calib families``, ``calib probe`` and the docs
 show (:func:`counting`).
@@ -13,30 +13,30 @@ bounds`` reach :func:`counting` through the command modules and must not pay for
 
 from __future__ import annotations
 
-import importlib
 
-#: problem kind -> (module, class) of its container
-CONTAINERS: dict[str, tuple[str, str]] = {
-    "lp": ("calib.problems.lp", "StandardLP"), "sdp": ("calib.problems.sdp", "StandardSDP"),
-    "qp": ("calib.problems.qp", "QP"), "points": ("calib.problems.points", "PointSet"),
-    "clustering": ("calib.problems.clustering", "ClusteringProblem"), "milp": ("calib.problems.milp", "StandardMILP"),
-}
+def containers() -> dict[str, type]:
+    """Problem kind -> its container class.
 
-
-def container(kind: str) -> type:
-    """The container class of ``kind`` (KeyError for an unknown kind: kinds come from the registry, not users).
-
-    >>> container("qp").__name__
-    'QP'
+    >>> sorted(containers())
+    ['clustering', 'lp', 'milp', 'points', 'qp', 'sdp']
     """
-    module, name = CONTAINERS[kind]
-    return getattr(importlib.import_module(module), name)
+    # here, not at import: the module docstring's start-up reason
+    from calib.problems.clustering import ClusteringProblem
+    from calib.problems.lp import StandardLP
+    from calib.problems.milp import StandardMILP
+    from calib.problems.points import PointSet
+    from calib.problems.qp import QP
+    from calib.problems.sdp import StandardSDP
+
+    return {"lp": StandardLP, "sdp": StandardSDP, "qp": QP, "points": PointSet, "clustering": ClusteringProblem,
+            "milp": StandardMILP}
 
 
 def counting(kind: str) -> str:
-    """How ``kind`` counts n and m: its container's ``COUNTING`` text.
+    """How ``kind`` counts n and m: its container's ``COUNTING`` text (KeyError for an unknown kind:
+    kinds come from the family registry, not from users).
 
     >>> counting("points")
     'n = the number of points; m = their dimension, reduced to k'
     """
-    return container(kind).COUNTING
+    return containers()[kind].COUNTING

@@ -45,6 +45,7 @@ from typing import ClassVar, Optional
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 from calib.problems.arrays import Matrix, as_matrix, check_finite, finite_or_inf
@@ -74,7 +75,7 @@ class DecisionMap:
         self.shift = np.zeros(self.matrix.shape[0]) if self.shift is None else np.asarray(self.shift, dtype=float).ravel()
 
     @classmethod
-    def select(cls, n_cols: int, columns, names: Optional[tuple] = None) -> "DecisionMap":
+    def select(cls, n_cols: int, columns: ArrayLike, names: Optional[tuple] = None) -> "DecisionMap":
         """The decision variables x[columns] themselves (a selection of the standard-form columns).
 
         >>> DecisionMap.select(4, [0, 2]).columns.tolist()
@@ -209,6 +210,7 @@ class GeneralLP:
         self.col_lo, self.col_hi = finite_or_inf(self.col_lo), finite_or_inf(self.col_hi)
 
     def validate(self) -> "GeneralLP":
+        """Check shapes, NaN, finiteness of A and c, and uncrossed bounds; raise :class:`InputError` naming the problem."""
         m, n = self.A.shape
         if m == 0 or n == 0:
             raise InputError(self.name, f"empty constraint matrix of shape {self.A.shape}", "an LP needs at least one row and one column")
@@ -225,7 +227,7 @@ class GeneralLP:
             raise InputError(self.name, "a lower bound exceeds its upper bound", "fix the crossed bounds (the model is trivially infeasible)")
         return self
 
-    def to_standard(self, decision=None) -> "StandardForm":
+    def to_standard(self, decision: Optional[ArrayLike] = None) -> "StandardForm":
         """Convert to standard form with slacks and split free variables.
 
         Columns: x_j = lo_j + x'_j (lower bound finite), x_j = hi_j - x'_j (only upper finite) or
@@ -338,6 +340,7 @@ class StandardForm:
     shift: np.ndarray = field(repr=False)
 
     def original_point(self, z: np.ndarray) -> np.ndarray:
+        """The general-form point x = shift + recover @ z of a standard-form point z (shape (n_std,) -> (n,))."""
         return self.shift + self.recover @ z
 
     def standard_point(self, x: np.ndarray) -> np.ndarray:

@@ -26,6 +26,7 @@ from typing import ClassVar
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 from calib.problems.lp import DecisionMap, StandardLP
@@ -77,7 +78,8 @@ class StandardMILP(StandardLP):
         return self
 
 
-def from_inequalities(c, A, b, sense: str, upper, integer, name: str = "milp") -> StandardMILP:
+def from_inequalities(c: ArrayLike, A: ArrayLike, b: ArrayLike, sense: str, upper: ArrayLike, integer: ArrayLike,
+                      name: str = "milp") -> StandardMILP:
     """The standard form of min c^T x s.t. a_i x <= b_i (``sense`` "<=") or >= b_i (">="), 0 <= x <= upper.
 
     One slack column per row: +1 for "<=", -1 for ">=" (a surplus), continuous and unbounded above.

@@ -89,6 +89,7 @@ class QP:
 
     @property
     def n_vars(self) -> int:
+        """Number of variables n (the dimension a variable projection reduces to k)."""
         return self.c.size
 
     @property

@@ -26,6 +26,7 @@ from typing import ClassVar, Optional, Sequence
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 from calib.problems.arrays import Matrix, as_matrix, check_finite, is_symmetric
@@ -68,7 +69,8 @@ class StandardSDP:
         self.b = np.asarray(self.b, dtype=float).ravel()
 
     @classmethod
-    def from_matrices(cls, C, constraints: Sequence, b, offset: float = 0.0, name: str = "sdp") -> "StandardSDP":
+    def from_matrices(cls, C: Matrix, constraints: Sequence[Matrix], b: ArrayLike, offset: float = 0.0,
+                      name: str = "sdp") -> "StandardSDP":
         """Build from the symmetric matrices A_i themselves (dense or sparse, each n x n)."""
         C = np.atleast_2d(np.asarray(C.toarray() if sp.issparse(C) else C, dtype=float))
         return cls(C=C, A=svec_stack(constraints, C.shape[0], name), b=b, offset=offset, name=name)
@@ -127,15 +129,15 @@ class StandardSDP:
         row = self.A[[i]].toarray().ravel() if sp.issparse(self.A) else self.A[i]
         return smat(row)
 
-    def _vec(self, X) -> np.ndarray:
+    def _vec(self, X: ArrayLike) -> np.ndarray:
         X = np.asarray(X, dtype=float)
         return svec(X) if X.ndim == 2 else X
 
-    def objective(self, X) -> float:
+    def objective(self, X: ArrayLike) -> float:
         """<C, X> + offset for X given as an (n, n) matrix or as svec(X)."""
         return float(self.c_vec @ self._vec(X) + self.offset)
 
-    def residual(self, X) -> np.ndarray:
+    def residual(self, X: ArrayLike) -> np.ndarray:
         """<A_i, X> - b_i, shape (m,), for X as a matrix or svec."""
         return np.asarray(self.A @ self._vec(X)).ravel() - self.b
 

@@ -22,6 +22,7 @@ from typing import Sequence
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
 from calib.problems.arrays import is_symmetric
@@ -72,7 +73,7 @@ def svec_index(rows: np.ndarray, cols: np.ndarray, order: int) -> np.ndarray:
     return low * order - low * (low - 1) // 2 + (high - low)
 
 
-def svec(X) -> np.ndarray:
+def svec(X: ArrayLike | sp.sparray | sp.spmatrix) -> np.ndarray:
     """svec of a symmetric matrix (dense or sparse), shape (n(n+1)/2,). Only the lower triangle is read.
 
     >>> svec(np.array([[1.0, 2.0], [2.0, 3.0]])).round(6).tolist()
