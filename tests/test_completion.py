@@ -1,5 +1,5 @@
 """The user's decision: decision columns, the exact completion, and the completion retrieval
-(calib.problems.DecisionMap, calib.reduce.completion, calib.reduce.lp ``completion``)."""
+(calib.problems.lp.DecisionMap, calib.reduce.completion, calib.reduce.lp ``completion``)."""
 
 from pathlib import Path
 

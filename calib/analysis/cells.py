@@ -23,6 +23,7 @@ from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from calib.analysis.logistic import LogisticFit, fit_clustered
 from calib.analysis.saferule import ALL_PASS, safe_k_rule
@@ -49,15 +50,21 @@ class CellStats:
 
     @property
     def ks(self) -> np.ndarray:
+        """The swept k (projected dimensions), sorted, shape (K,)."""
         return self.counts.ks
 
     @property
     def instances_per_k(self) -> np.ndarray:
+        """Instances with at least one trial at each swept k, shape (K,)."""
         return (self.counts.trials > 0).sum(axis=1)
 
 
-def cell_stats(k, instance, success, target: float, confidence: float) -> CellStats:
-    """Both scopes and the clustered transition of one cell from one row per trial (module text)."""
+def cell_stats(k: ArrayLike, instance: ArrayLike, success: ArrayLike, target: float, confidence: float) -> CellStats:
+    """Both scopes and the clustered transition of one cell from one row per trial (module text).
+
+    ``k`` (projected dimension), ``instance`` (its label) and ``success`` (0/1) have shape (T,), one
+    value per trial; ``target`` (1 - delta) and ``confidence`` are probabilities in (0, 1).
+    """
     counts = cell_counts(k, instance, success)
     successes, trials = counts.successes.sum(axis=1), counts.trials.sum(axis=1)
     lower = clopper_pearson_lower(successes, trials, confidence)

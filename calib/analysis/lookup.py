@@ -37,7 +37,9 @@ import numpy as np
 from calib.analysis.law import fit_law
 from calib.analysis.modelfit import resolved_size
 from calib.analysis.saferule import Confidence, censored_law, censoring, class_namer, safe_k_rule
+from calib.checks import is_integer
 from calib.errors import InputError
+from calib.keys import canonical_json
 
 SCOPES = ("class", "instances")
 
@@ -58,10 +60,10 @@ class Query:
     size: str = ""
 
     def __post_init__(self) -> None:
-        if isinstance(self.n, bool) or not isinstance(self.n, (int, np.integer)) or self.n < 2:
+        if not is_integer(self.n) or self.n < 2:
             raise InputError("--n", f"must be an integer >= 2 (points the projection keeps), got {self.n!r}",
                              "for an LP with rows projected give its columns + 1")
-        if self.m is not None and (isinstance(self.m, bool) or not isinstance(self.m, (int, np.integer)) or self.m < 1):
+        if self.m is not None and (not is_integer(self.m) or self.m < 1):
             raise InputError("--m", f"must be a positive integer (the projected dimension), got {self.m!r}",
                              "for an LP with rows projected give its rows")
         if self.scope not in SCOPES:
@@ -493,7 +495,7 @@ def speedup_at(found: dict, table: dict, query: Query, timings: Optional[list]) 
         where = f"measured at {entry['size']} (k = {k}), the nearest measured size; not extrapolated"
         if k is None:
             return None
-    params = json.dumps(entry["params"], sort_keys=True, separators=(",", ":"))
+    params = canonical_json(entry["params"])
     for row in timings:
         if (row.get("family"), row.get("params"), row.get("projector"), row.get("retrieval")) == \
                 (entry["family"], params, entry["projector"], entry["retrieval"]) and str(row.get("k")) == str(k):
@@ -566,7 +568,7 @@ def _interpolate_error(entry: dict, k: float) -> dict:
 
 def success_for(table: dict, query: Query, k: int) -> dict:
     """Expected success at ``k`` (logistic model) and the measured error there (nearest size)."""
-    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+    if not is_integer(k) or k < 1:
         raise InputError("--k", f"must be a positive integer, got {k!r}", "e.g. --k 64")
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)

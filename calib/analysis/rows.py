@@ -11,9 +11,9 @@ from __future__ import annotations
 
 import json
 
-import numpy as np
 import pandas as pd
 
+from calib.checks import is_integer
 from calib.errors import InputError
 from calib.metrics import FIELDS
 from calib.solvers.result import FORMER_STATUSES
@@ -79,7 +79,7 @@ def _check_rows(rows: pd.DataFrame, path) -> None:
         if pd.api.types.is_integer_dtype(values.dtype):  # what SQLite gives for INTEGER cells: one vector test
             good = values >= minimum
         else:
-            good = values.map(lambda v: isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= minimum)
+            good = values.map(lambda v: is_integer(v) and v >= minimum)
         if not good.all():
             bad = rows.loc[~good.astype(bool)].iloc[0]
             raise InputError(str(path), f"trial {bad['trial_id']} has {column} = {bad[column]!r}, not an integer >= {minimum}", DAMAGED_FIX)

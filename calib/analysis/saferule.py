@@ -17,9 +17,10 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass
-from typing import Optional
+from typing import Callable, Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from calib.analysis.law import Law, fit_law
 from calib.errors import InputError
@@ -27,8 +28,14 @@ from calib.errors import InputError
 ALL_PASS = "all swept k pass: the safe k may be smaller than the grid shows"
 
 
-def safe_k_rule(ks, passes) -> tuple[Optional[int], str]:
+def safe_k_rule(ks: ArrayLike, passes: ArrayLike) -> tuple[Optional[int], str]:
     """The monotone safe-k rule on a grid sorted by k: (safe k or None, reason).
+
+    ``ks`` (projected dimensions, increasing) and ``passes`` (whether the bound at that k reaches
+    the target) have shape (K,). The safe k is ks[j] for the smallest j with passes[j:] all true:
+    the fixed-sequence step-down over k from the largest (each k tested at the full level only after
+    every larger k passed; Maurer, Hothorn & Lehmacher 1995), common practice for a monotone
+    acceptance criterion. The reason is "" or :data:`ALL_PASS` with a k, the failure without.
 
     >>> safe_k_rule([4, 8, 16, 32], [True, False, True, True])
     (16, '')
@@ -59,10 +66,11 @@ class Confidence:
 
     @property
     def target(self) -> float:
+        """The success rate to certify, 1 - delta."""
         return 1.0 - self.delta
 
 
-def censoring(value, reason: str, projected_dim: int) -> str:
+def censoring(value: Optional[int], reason: str, projected_dim: int) -> str:
     """Why a size's value is not fitted as a value ('' when it is): none, no reduction, an upper bound.
 
     >>> censoring(None, "no swept k reaches the target", 40)
@@ -89,7 +97,7 @@ def censored_law(n: list[int], values: list, censored: list[str]) -> Law:
     return law
 
 
-def class_namer(items: list[dict]):
+def class_namer(items: list[dict]) -> Callable[[dict], str]:
     """class_params -> short text naming only the parameters that differ between the items' classes.
 
     A parameter left at None (its family's default, e.g. no low rank) reads "without KEY"; text values

@@ -136,6 +136,7 @@ class Anova:
         return float(min(1.0, max(0.0, (ratio - 1.0) / (ratio + self.n0 - 1.0))))
 
     def as_dict(self) -> dict:
+        """The sums of squares, degrees of freedom, n0 and instance count, JSON-ready."""
         return {"ss_between": self.ss_between, "ss_within": self.ss_within, "df_between": self.df_between,
                 "df_within": self.df_within, "n0": self.n0, "instances": self.groups}
 

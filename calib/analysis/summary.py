@@ -28,6 +28,7 @@ from typing import Optional
 
 import pandas as pd
 
+from calib.checks import is_real
 from calib.keys import canonical_json
 from calib.metrics import DEFAULT_RETRIEVALS
 
@@ -141,7 +142,7 @@ TOLERANCE_WORDS = {"gap": "projected optimum's gap", "obj": "objective error", "
 def predicate_text(predicate: dict) -> str:
     """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
     checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
-              if key in TOLERANCE_WORDS and isinstance(value, (int, float)) and not isinstance(value, bool)]
+              if key in TOLERANCE_WORDS and is_real(value)]
     if predicate.get("classify"):
         checks.append("the feasibility verdict matches the original's")
     extras = [f"{key.replace('_', ' ')}" for key, value in sorted(predicate.items())

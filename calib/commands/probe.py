@@ -35,6 +35,7 @@ from typing import Any
 
 import numpy as np
 
+from calib.checks import is_real
 from calib.errors import InputError
 from calib.problems.kinds import counting
 from calib.wording import counted, fold, wrapped
@@ -375,7 +376,7 @@ def _predicate(args: argparse.Namespace, default_preset: str):
 
 
 def _stats(values: list) -> dict:
-    numbers = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)]
+    numbers = [float(v) for v in values if is_real(v) and math.isfinite(v)]
     if not numbers:
         return {}
     return {"median": float(np.median(numbers)), "max": float(np.max(numbers)), "n": len(numbers)}

@@ -46,6 +46,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Optional
 
+from calib.checks import is_integer, is_real
 from calib.errors import InputError
 from calib.keys import canonical_json, stable_id, stable_key
 
@@ -163,7 +164,7 @@ class _Collector:
         if value is None:
             self.add(path, "missing", f"set {key} to an integer >= {minimum}")
             return None
-        if isinstance(value, bool) or not isinstance(value, int):
+        if not is_integer(value):
             self.add(path, f"must be an integer, got {value!r}", f"set {key} to an integer >= {minimum}")
             return None
         if value < minimum:
@@ -333,7 +334,7 @@ def _number_list(values, path: str, errors: _Collector, check, fix: str) -> tupl
         return ()
     good = []
     for index, value in enumerate(values):
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value) or not check(value):
+        if not is_real(value) or not math.isfinite(value) or not check(value):
             errors.add(f"{path}[{index}]", f"invalid value {value!r}", fix)
         else:
             good.append(value)
@@ -383,7 +384,7 @@ def _parse_search(value, errors: _Collector) -> KGrid:
         errors.add(path, f"cannot read {value!r}", _SEARCH_FIX)
         return KGrid("search", ())
     step = value.get("step", 1)
-    if isinstance(step, bool) or not isinstance(step, int) or step < 1:
+    if not is_integer(step) or step < 1:
         errors.add(f"{path}.step", f"invalid value {step!r}", "step is an integer >= 1 (1: every k)")
         step = 1
     fractions = "low_fraction" in value
@@ -392,9 +393,9 @@ def _parse_search(value, errors: _Collector) -> KGrid:
     for key in keys:
         item = value[key]
         if fractions:
-            ok = not isinstance(item, bool) and isinstance(item, (int, float)) and math.isfinite(item) and 0 < item <= 1
+            ok = is_real(item) and math.isfinite(item) and 0 < item <= 1
         else:
-            ok = not isinstance(item, bool) and isinstance(item, int) and item >= 1
+            ok = is_integer(item) and item >= 1
         if not ok:
             errors.add(f"{path}.{key}", f"invalid value {item!r}", "fractions lie in (0, 1]" if fractions else "k is an integer >= 1")
             good = False
@@ -431,7 +432,7 @@ def _parse_target(value, k_grid: KGrid, errors: _Collector) -> Optional[SearchTa
     predicate = make_predicate(preset)
     if "tolerance" in value:
         tolerance = value["tolerance"]
-        if isinstance(tolerance, bool) or not isinstance(tolerance, (int, float)) or not (math.isfinite(tolerance) and tolerance > 0):
+        if not is_real(tolerance) or not (math.isfinite(tolerance) and tolerance > 0):
             errors.add("target.tolerance", f"must be a positive number, got {tolerance!r}", "e.g. tolerance = 0.05")
             return None
         try:
@@ -442,7 +443,7 @@ def _parse_target(value, k_grid: KGrid, errors: _Collector) -> Optional[SearchTa
     numbers = {}
     for key, default, example in (("delta", 0.1, "0.1 for a 90% success target"), ("confidence", 0.95, "0.95")):
         number = value.get(key, default)
-        if isinstance(number, bool) or not isinstance(number, (int, float)) or not 0 < number < 1:
+        if not is_real(number) or not 0 < number < 1:
             errors.add(f"target.{key}", f"must lie in (0, 1), got {number!r}", f"e.g. {key} = {example}")
             return None
         numbers[key] = float(number)
@@ -489,7 +490,7 @@ _RESERVED_HIGHS = {"threads": "calib runs one solver thread per worker", "time_l
 
 def _seconds(table: dict, key: str, default, errors: _Collector) -> Optional[float]:
     value = table.get(key, default)
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not (0 < value < 1e6):
+    if not is_real(value) or not (0 < value < 1e6):
         errors.add(f"solver.{key}", f"must be a positive number of seconds below 1e6, got {value!r}", f"e.g. {key} = 60")
         return None
     return float(value)
@@ -546,8 +547,7 @@ def _parse_scs(value, errors: _Collector) -> dict:
         kind = SCS_SETTINGS.get(key)
         if kind is None:
             errors.add(f"solver.scs.{key}", "is not an SCS setting a spec may change", f"use one of {', '.join(sorted(SCS_SETTINGS))}")
-        elif isinstance(setting, bool) != (kind is bool) or not isinstance(setting, (int, float)) \
-                or (kind is int and not isinstance(setting, int)):
+        elif not (isinstance(setting, bool) if kind is bool else is_integer(setting) if kind is int else is_real(setting)):
             errors.add(f"solver.scs.{key}", f"must be a {kind.__name__}, got {setting!r}", "give one value of that type")
         else:
             good[key] = kind(setting)
@@ -563,7 +563,7 @@ def _parse_projected_caps(value: dict, solver: dict, errors: _Collector) -> None
             solver["projected_time_limit_s"] = seconds
     if "projected_max_iters" in value:
         cap = value["projected_max_iters"]
-        if isinstance(cap, bool) or not isinstance(cap, int) or not 1 <= cap <= 10**9:
+        if not is_integer(cap) or not 1 <= cap <= 10**9:
             errors.add("solver.projected_max_iters", f"must be a whole number of iterations >= 1, got {cap!r}",
                        "e.g. projected_max_iters = 5000")
         else:

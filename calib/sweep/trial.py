@@ -15,6 +15,8 @@ from dataclasses import dataclass
 from functools import cached_property
 from typing import Iterator
 
+import numpy as np
+
 from calib import SCHEMA_VERSION
 from calib.keys import stable_id, stable_key, stream
 from calib.sweep.spec import ProjectorChoice, Spec, k_values
@@ -31,14 +33,17 @@ class InstanceRef:
 
     @property
     def identity(self) -> dict:
+        """What names the instance: family, full parameters and index (the root seed left out)."""
         return {"family": self.family, "params": self.params, "index": self.index}
 
     @cached_property
     def key(self) -> int:
+        """The stable integer key of :attr:`identity`: the first entropy word of its stream."""
         return stable_key(self.identity)
 
     @cached_property
     def instance_id(self) -> str:
+        """The stored id: the identity with the root seed and the schema version, hashed."""
         return stable_id({**self.identity, "root_seed": self.root_seed, "schema": SCHEMA_VERSION})
 
     def build(self):
@@ -51,6 +56,9 @@ class InstanceRef:
 
 @dataclass(frozen=True)
 class Trial:
+    """One projected solve: an instance, a projector, k and a replicate number (its k label: the rule
+    that gave k, e.g. ``fraction=0.3``, or empty)."""
+
     instance: InstanceRef
     projector: ProjectorChoice
     k: int
@@ -59,6 +67,7 @@ class Trial:
 
     @cached_property
     def trial_id(self) -> str:
+        """The stored id: a hash of the instance id, projector, options, k and replicate."""
         return stable_id({"instance": self.instance.instance_id, "projector": self.projector.label,
                           "projector_options": dict(self.projector.options), "k": self.k,
                           "replicate": self.replicate})
@@ -68,7 +77,8 @@ class Trial:
         """Entropy of the trial's stream: [instance_key, projector_key, k, replicate, root_seed]."""
         return [self.instance.key, self.projector.key, self.k, self.replicate, self.instance.root_seed]
 
-    def rng(self):
+    def rng(self) -> np.random.Generator:
+        """The trial's own random stream, from :attr:`stream_keys` (the projection is drawn from it)."""
         return stream(*self.stream_keys[:-1], root_seed=self.instance.root_seed)
 
 
