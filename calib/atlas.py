@@ -177,11 +177,10 @@ def rule_k(rules: Union[str, Path], projector: str, mps: Union[str, Path, None] 
     document = read_rules(rules)
     if mps is not None:
         from calib.features import instance_features
-        from calib.problems import read_mps
-        from calib.theory import lp_points
+        from calib.problems.mps import read_mps_standard
 
-        lp = read_mps(mps).to_standard().lp
-        features, n, m = instance_features("lp", lp), lp_points(lp.n_cols), int(lp.n_rows)
+        lp = read_mps_standard(mps)
+        features, n, m = instance_features("lp", lp), lp.jl_points, int(lp.n_rows)
     if features is None or n is None or m is None:
         raise InputError("rule_k", "no model given", "give mps=FILE, or features with n and m")
     found = [item for item in document["classes"] if item["projector"] == projector

@@ -14,12 +14,9 @@ Manifest, one JSON object: ``format`` ("calib-instance/1"), ``family``, ``kind``
 JSON-able entries of ``instance.info``), and ``info_data`` / ``info_sha256`` when arrays exist.
 Loading checks both digests, so an edited file is refused rather than silently used.
 
-MPS (our writer): free format, rows ``r0..``, columns ``x0..``, objective row ``cost``; every
-number in Python's shortest round-trip form, so HiGHS reads back exactly the same doubles; the
-objective constant is the negated right-hand side of the objective row (the MPS convention).
-HiGHS's own model limits apply on reading exactly as when solving: matrix entries of magnitude
-<= 1e-9 are dropped, >= 1e15 refused (so the writer refuses them), costs and right-hand sides of
-magnitude >= 1e20 count as infinite (refused too), and a cost of -0.0 reads back as 0.0.
+MPS: the free-MPS text of :func:`calib.problems.mps.mps_text` (its module docstring states the
+format and HiGHS's limits on it), read back by :func:`calib.problems.mps.read_mps_standard` with the
+decision a campaign gives the file.
 
 Arrays layout (``.npz``, readable with ``numpy.load(path, allow_pickle=False)``; no pickles):
 
@@ -52,7 +49,9 @@ import scipy.sparse as sp
 from calib.errors import InputError
 from calib.families.base import Instance
 from calib.keys import stable_id
-from calib.problems import INF_BOUND, StandardLP, read_mps_standard
+from calib.problems.arrays import INF_BOUND
+from calib.problems.lp import StandardLP
+from calib.problems.mps import mps_text, read_mps_standard
 
 LAYOUT = "calib-arrays/1"
 MANIFEST_FORMAT = "calib-instance/1"
@@ -60,71 +59,10 @@ DEFAULT_FOLDER = Path("instances")
 _ARRAY_NAME = re.compile(r"[A-Za-z0-9_-]+")
 _FIXED_TIME = (1980, 1, 1, 0, 0, 0)
 PathLike = Union[str, Path]
-#: HiGHS refuses matrix entries of at least this magnitude (its ``large_matrix_value``).
-HIGHS_LARGE_ENTRY = 1e15
 
 
 def sha256_hex(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
-
-
-# --- MPS -------------------------------------------------------------------------------------
-
-def _num(value: float) -> str:
-    return repr(float(value))
-
-
-def mps_text(lp: StandardLP) -> str:
-    """Free-MPS text of min c^T x + offset, A x = b, x >= 0 (validated first).
-
-    >>> print(mps_text(StandardLP(c=[1.0, 0.0], A=[[2.0, 3.0]], b=[4.0], offset=0.5, name="tiny")), end="")
-    NAME tiny
-    ROWS
-     N cost
-     E r0
-    COLUMNS
-     x0 cost 1.0
-     x0 r0 2.0
-     x1 r0 3.0
-    RHS
-     rhs r0 4.0
-     rhs cost -0.5
-    ENDATA
-    """
-    lp.validate()
-    A = sp.csc_array(lp.A)
-    A.sum_duplicates()
-    A.eliminate_zeros()
-    _within_highs_limits(lp, A)
-    title = re.sub(r"\s+", "_", lp.name.strip()) or "lp"
-    lines = [f"NAME {title}", "ROWS", " N cost"]
-    lines += [f" E r{i}" for i in range(lp.n_rows)]
-    lines.append("COLUMNS")
-    for j in range(lp.n_cols):
-        start, stop = A.indptr[j], A.indptr[j + 1]
-        if lp.c[j] != 0 or start == stop:  # an empty column is declared by its cost
-            lines.append(f" x{j} cost {_num(lp.c[j])}")
-        lines += [f" x{j} r{i} {_num(v)}" for i, v in zip(A.indices[start:stop], A.data[start:stop])]
-    lines.append("RHS")
-    lines += [f" rhs r{i} {_num(v)}" for i, v in enumerate(lp.b) if v != 0 or np.signbit(v)]
-    if lp.offset != 0:
-        lines.append(f" rhs cost {_num(-lp.offset)}")
-    lines.append("ENDATA")
-    return "\n".join(lines) + "\n"
-
-
-def _within_highs_limits(lp: StandardLP, A: sp.csc_array) -> None:
-    if A.nnz and np.abs(A.data).max() >= HIGHS_LARGE_ENTRY:
-        raise InputError(lp.name, f"a matrix entry reaches {HIGHS_LARGE_ENTRY:g} in magnitude, which HiGHS refuses", "rescale the rows or columns")
-    for label, values in (("costs", lp.c), ("right-hand sides", lp.b), ("offset", np.array([lp.offset]))):
-        if np.abs(values).max(initial=0.0) >= INF_BOUND:
-            raise InputError(lp.name, f"{label} reach {INF_BOUND:g} in magnitude, which HiGHS reads as infinite", "rescale the problem")
-
-
-def read_standard_lp(path: PathLike) -> StandardLP:
-    """Read an MPS file into standard form with its structural decision, as a campaign reads it
-    (:func:`calib.problems.read_mps_standard`; InputError naming the file when it is malformed)."""
-    return read_mps_standard(path)
 
 
 # --- arrays layout ---------------------------------------------------------------------------
@@ -177,7 +115,7 @@ def load_arrays(path: PathLike) -> tuple:
 
     Sparse matrices come back as CSR arrays, their index structure checked. Floating arrays
     holding NaN or infinite entries are refused (an infinite bound is stored as a magnitude of
-    at least :data:`calib.problems.INF_BOUND`, as everywhere in calib). Object arrays are never
+    at least :data:`calib.problems.arrays.INF_BOUND`, as everywhere in calib). Object arrays are never
     unpickled.
     """
     path = Path(path)
@@ -254,7 +192,7 @@ def arrays_codec(to_arrays: Callable[[Any], tuple], from_arrays: Callable[[dict,
 
 
 def _decode_lp(path: Path, facts: dict) -> StandardLP:
-    lp = read_standard_lp(path)
+    lp = read_mps_standard(path)
     if facts.get("dense"):
         lp.A = lp.A.toarray()
     return lp

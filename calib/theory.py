@@ -1,8 +1,9 @@
 """Published target-dimension bounds for Johnson–Lindenstrauss projections.
 
-``n`` is the number of points whose pairwise geometry the projection must keep. For an LP whose
-rows are projected, the points are the n columns of A and the right-hand side b, so n_points =
-n_cols + 1 (the choice made throughout calib; see :func:`lp_points`). ``eps`` is the relative
+``n`` is the number of points whose pairwise geometry the projection must keep. Each problem
+container counts its own (``jl_points``, :mod:`calib.problems.kinds`): for an LP whose rows are
+projected, the points are the n columns of A and the right-hand side b, so n_points = n_cols + 1
+(:attr:`calib.problems.lp.StandardLP.jl_points`). ``eps`` is the relative
 distortion of squared distances, 0 < eps < 1: (1 - eps)·|u - v|² <= |Tu - Tv|² <= (1 + eps)·|u - v|².
 
 Every bound is computable both ways and vectorised over numpy arrays (broadcasting ``n`` against
@@ -417,34 +418,3 @@ def eps_from_k(rule: str, n: int, k: int) -> float:
     """
     bound = check_rule(rule)
     return float(bound.eps(check_points(n), check_k(k)))
-
-
-#: how each kind counts n (the points the JL theory counts) and the projected dimension m: the one
-#: text ``calib families``, ``calib probe`` and the docs show (the functions below compute them)
-COUNTING = {
-    "lp": "n = the columns of the standard form's A plus b (cols + 1), the points a row projection T A, T b "
-          "must keep; m = the rows of A (its equality constraints), reduced to k",
-    "sdp": "n = d(d + 1)/2 + 1 for order d, the svec columns of [A | b] a constraint projection must keep; "
-           "m = the number of linear constraints, reduced to k",
-    "qp": "n = the rows of A plus c and the optimum (rows + 2), the vectors a variable projection x = T^T u "
-          "must keep; m = the number of variables, reduced to k",
-    "points": "n = the number of points; m = their dimension, reduced to k",
-    "clustering": "n = the number of clusters K (the clustering bounds depend on K and eps, not on the number of "
-                  "points); m = the dimension of the points, reduced to k",
-    "milp": "n = the columns of the standard form's A (decisions and slacks) plus b (cols + 1), as for an LP; "
-            "m = its rows, reduced to k (bounds and integrality are kept)",
-}
-
-
-def counting(kind: str) -> str:
-    """How ``kind`` counts n and m (:data:`COUNTING`).
-
-    >>> counting("points")
-    'n = the number of points; m = their dimension, reduced to k'
-    """
-    return COUNTING[kind]
-
-
-def lp_points(n_cols: int) -> int:
-    """Points an LP row projection must keep: the n columns of A and b (n + 1)."""
-    return int(n_cols) + 1

@@ -17,7 +17,7 @@ from scipy import optimize, stats
 from analysis_campaign import run_spec
 from calib import projectors, theory
 from calib.analysis.tables import build_analysis, build_table
-from calib.conic import PointSet
+from calib.problems.points import PointSet
 from calib.reduce.points import PointsHandler
 from calib.store.database import Store
 from calib.verdicts.saferule import Confidence

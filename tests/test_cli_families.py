@@ -58,15 +58,15 @@ def _counted_from_the_problem(kind: str, problem) -> tuple[int, int]:
 
 
 def test_every_kind_says_how_n_and_m_are_counted_and_the_families_count_so(capsys):
-    from calib.theory import COUNTING
+    from calib.problems.kinds import containers, counting
 
-    assert set(COUNTING) == {family.kind for family in REGISTRY.values()} == set(KIND_EXAMPLES)
+    assert set(containers()) == {family.kind for family in REGISTRY.values()} == set(KIND_EXAMPLES)
     for kind, (name, params) in KIND_EXAMPLES.items():
         family = REGISTRY[name]
         full = family.resolve(params, "test")
         problem = family.make(full, 0, np.random.default_rng([0, 7])).problem
         assert (family.n_points(full), family.projected_dim(full)) == _counted_from_the_problem(kind, problem), kind
         assert main(["families", name, "--json"]) == 0
-        assert json.loads(capsys.readouterr().out)["counting"] == COUNTING[kind]
+        assert json.loads(capsys.readouterr().out)["counting"] == counting(kind)
         assert main(["families", name]) == 0
         assert "  n and m: n = " in capsys.readouterr().out

@@ -16,11 +16,12 @@ from sklearn.metrics import adjusted_rand_score
 
 from calib import projectors
 from calib.cli import main
-from calib.clustering import ClusteringProblem, disagreement, kmeans_cost
 from calib.errors import InputError
 from calib.families import get
 from calib.families.clustering import DIGITS_SHAPE, digits, gaussian_mixture
+from calib.problems.clustering import ClusteringProblem, kmeans_cost
 from calib.reduce import HANDLERS
+from calib.reduce.clustering import disagreement
 from calib.solvers.kmeans import SizedAssignment, cluster, iterate, nearest, squared_distances
 from calib.verdicts.success import PRESETS, evaluate, make_predicate
 

@@ -1,5 +1,5 @@
 """The user's decision: decision columns, the exact completion, and the completion retrieval
-(calib.problems.DecisionMap, calib.reduce.completion, calib.reduce.lp ``completion``)."""
+(calib.problems.lp.DecisionMap, calib.reduce.completion, calib.reduce.lp ``completion``)."""
 
 from pathlib import Path
 
@@ -13,7 +13,8 @@ from scipy.optimize import linprog
 
 from calib import projectors
 from calib.families.lp_quantile import check_loss, quantile_regression_lp
-from calib.problems import DecisionMap, GeneralLP, StandardLP, decision_of, read_mps
+from calib.problems.lp import DecisionMap, GeneralLP, StandardLP, decision_of
+from calib.problems.mps import read_mps
 from calib.reduce.completion import complete, complete_by_rows, unmet_share
 from calib.reduce.lp import LPHandler
 from calib.solvers.highs import solve_lp
@@ -259,7 +260,7 @@ def test_a_max_cut_record_judges_the_cut_and_a_square_orthogonal_sketch_keeps_it
     # retrieved matrix rounds to the original's expected cut: cut_ratio 1 and the whole gain kept.
     # Reference values: the expected cut of the original optimum is sum_ij w_ij arccos(X_ij) / pi
     # (Goemans and Williamson 1995), computed here with numpy from the graph's edges.
-    from calib.conic import smat
+    from calib.problems.svec import smat
     from calib.reduce.sdp import SDPHandler
     from reduce_helpers import OrthogonalProjector
 

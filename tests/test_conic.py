@@ -1,11 +1,17 @@
-"""Containers of calib.conic: the svec vectorisation, StandardSDP, QP and PointSet validation."""
+"""Containers of calib.problems (svec, sdp, qp, points): the svec vectorisation, StandardSDP, QP and PointSet validation."""
 
 import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from calib.conic import QP, PointSet, StandardSDP, smat, svec, svec_index, svec_positions, svec_stack
+from calib.problems.points import PointSet
+
+from calib.problems.qp import QP
+
+from calib.problems.sdp import StandardSDP
+
 from calib.errors import InputError
+from calib.problems.svec import smat, svec, svec_index, svec_positions, svec_stack
 
 
 def _symmetric(rng, n):

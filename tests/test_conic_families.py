@@ -6,10 +6,10 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 
-from calib.conic import svec_size
 from calib.errors import InputError
 from calib.families import REGISTRY, get
 from calib.families.graphs import edges
+from calib.problems.svec import svec_size
 from calib.solvers.qp import solve_qp
 from calib.solvers.scs_sdp import solve_sdp
 

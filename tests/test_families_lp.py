@@ -359,7 +359,7 @@ def test_out_of_range_parameters_are_input_errors(name, params, bad):
 def test_standard_point_inverts_original_point():
     # common practice: the slack-form lift of a feasible point is feasible and maps back to it
     # (checked on a model with an upper-only column, a boxed column and ranged, <= and >= rows)
-    from calib.problems import GeneralLP
+    from calib.problems.lp import GeneralLP
 
     A = np.array([[1.0, 2.0, -1.0], [0.5, -1.0, 3.0], [1.0, 1.0, 1.0]])
     general = GeneralLP(c=[1.0, -1.0, 2.0], A=A, row_lo=[-5.0, -np.inf, 0.0], row_hi=[5.0, 4.0, np.inf],

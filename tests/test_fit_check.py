@@ -17,7 +17,7 @@ from calib.cli import main
 from calib.families import get
 from calib.families.lp_real import NETLIB_DIR
 from calib.keys import stable_key, stream
-from calib.problems import read_mps
+from calib.problems.mps import read_mps
 
 AFIRO = NETLIB_DIR / "feasible" / "afiro.mps"
 CLASS = ("--family", "lp-planted", "--param", "rank=10", "--projector", "gaussian")

@@ -12,9 +12,9 @@ import scipy.sparse as sp
 
 from calib.errors import InputError
 from calib.families import get
-from calib.instance_io import (load_arrays, load_instance, mps_text, problem_bytes, read_standard_lp,
-                               save_arrays, save_instance, saved_manifests)
-from calib.problems import StandardLP, read_mps
+from calib.instance_io import load_arrays, load_instance, problem_bytes, save_arrays, save_instance, saved_manifests
+from calib.problems.lp import StandardLP
+from calib.problems.mps import mps_text, read_mps, read_mps_standard
 from calib.solvers.highs import solve_lp
 
 CASES = [
@@ -64,7 +64,7 @@ def test_round_trip_keeps_an_objective_offset_and_empty_columns(tmp_path):
     lp = StandardLP(c=[1 / 3, -2.5, 0.0, 1e-300, 7.0, 1e19], A=A, b=[0.1, -1e19, 0.0, np.pi], offset=-12.75, name="with offset")
     path = tmp_path / "x.mps"
     path.write_text(mps_text(lp))
-    back = read_standard_lp(path)
+    back = read_mps_standard(path)
     assert back.A.toarray().tobytes() == A.tobytes()
     assert back.c.tobytes() == lp.c.tobytes() and back.b.tobytes() == lp.b.tobytes()
     assert back.offset == -12.75

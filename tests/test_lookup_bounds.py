@@ -16,7 +16,7 @@ from calib.analysis.tables import build_analysis
 from calib.cli import main
 from calib.families import get
 from calib.families.lp_real import NETLIB_DIR
-from calib.problems import read_mps
+from calib.problems.mps import read_mps
 from calib.verdicts.saferule import Confidence
 from calib.verdicts.success import make_predicate
 

@@ -10,7 +10,8 @@ from scipy.optimize import linprog
 from calib import projectors
 from calib.errors import InputError
 from calib.families import get
-from calib.problems import GeneralLP, StandardLP, read_mps
+from calib.problems.lp import GeneralLP, StandardLP
+from calib.problems.mps import read_mps
 from calib.reduce.lp import basis_lstsq, project_lp
 from calib.solvers.highs import solve_lp
 from tests.conftest import NETLIB

@@ -13,9 +13,9 @@ import scipy.sparse as sp
 
 from calib import projectors
 from calib.families import get
-from calib.milp import from_inequalities, violated_rows
-from calib.reduce.milp import complete_milp
+from calib.problems.milp import from_inequalities
 from calib.reduce import HANDLERS
+from calib.reduce.milp import complete_milp, violated_rows
 from calib.solvers.milp import MIP_OPTIONS, solve_milp
 from reduce_helpers import SOLVER, OrthogonalProjector, instance
 

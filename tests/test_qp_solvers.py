@@ -10,9 +10,9 @@ method run with Hessian regularisation 1e-10 (the adapter's setting): objectives
 import numpy as np
 import pytest
 
-from calib.conic import QP
 from calib.errors import InputError
 from calib.families import get
+from calib.problems.qp import QP
 from calib.solvers.qp import solve_qp, solve_qp_highs, solve_qp_scs
 
 TIGHT = {"eps_abs": 1e-7, "eps_rel": 1e-7}

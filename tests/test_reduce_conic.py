@@ -6,11 +6,11 @@ from scipy import stats
 from scipy.spatial.distance import pdist
 
 from calib import projectors
+from calib.problems.svec import smat, svec
 from calib.reduce import points as points_module
 from calib.reduce.points import PointsHandler, pair_sample
 from calib.reduce.qp import QPHandler
 from calib.reduce.sdp import SDPHandler, psd_clip, psd_violation
-from calib.conic import smat, svec
 from reduce_helpers import SOLVER, OrthogonalProjector, instance
 
 #: SCS runs at eps_abs = eps_rel = 1e-6 (calib.solvers.scs_base); objective values agree to about

@@ -7,7 +7,7 @@ import pytest
 from scipy import stats
 
 from calib import projectors
-from calib.problems import read_mps
+from calib.problems.mps import read_mps
 from calib.reduce.affine import AffineSet, alternate
 from calib.reduce.base import Context
 from calib.reduce.lp import RETRIEVALS, LPHandler

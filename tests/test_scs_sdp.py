@@ -13,8 +13,8 @@ import numpy as np
 import pytest
 import scs
 
-from calib.conic import StandardSDP
 from calib.families import get
+from calib.problems.sdp import StandardSDP
 from calib.solvers.result import STATUSES
 from calib.solvers.scs_base import STATUS_TABLE
 from calib.solvers.scs_sdp import primal_matrix, solve_sdp

@@ -6,8 +6,8 @@ import pytest
 from scipy.optimize import linprog, minimize
 
 from calib import projectors
-from calib.conic import QP
 from calib.metrics import SCALE_FLOOR, record
+from calib.problems.qp import QP
 from calib.reduce.base import Context
 from calib.reduce.lp import LPHandler
 from calib.reduce.qp import QPHandler, ReducedQP

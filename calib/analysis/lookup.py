@@ -85,14 +85,14 @@ def size_of_mps(path) -> tuple[int, int, str]:
     """(n, m, label) of an LP in an MPS file: its standard form's columns + 1 and rows (row projection)."""
     from pathlib import Path
 
-    from calib.problems import read_mps
-    from calib.theory import lp_points
+    # here, not at import: reading a model needs scipy.sparse and HiGHS, which a lookup by size never loads
+    from calib.problems.mps import read_mps_standard
 
     path = Path(path)
     if not path.is_file():
         raise InputError(str(path), "no such MPS file", "give the path of an .mps or .mps.gz file")
-    lp = read_mps(path).to_standard().lp
-    return lp_points(lp.n_cols), int(lp.n_rows), path.name
+    lp = read_mps_standard(path)
+    return lp.jl_points, int(lp.n_rows), path.name
 
 
 def size_of_instance(path) -> tuple[str, int, int, str, dict]:

@@ -61,12 +61,12 @@ def resolved_size(family_name: str, size: dict, params: Optional[dict] = None):
 def mps_model(path) -> dict:
     """The model of an MPS file: its standard form's features and the probe command that measures it."""
     from calib.features import instance_features
-    from calib.problems import read_mps
+    from calib.problems.mps import read_mps_standard
 
     path = Path(path)
     if not path.is_file():
         raise InputError(str(path), "no such MPS file", "give the path of an .mps or .mps.gz file")
-    lp = read_mps(path).to_standard().lp
+    lp = read_mps_standard(path)
     return {"features": instance_features("lp", lp, CHECK_SVD_FLOPS), "source": f"the MPS file {path.name}",
             "probe": f"calib probe {path} --find-k"}
 

@@ -14,7 +14,7 @@ WIDTH = 100
 
 def describe(family: Family) -> dict:
     """A JSON-able description of one family."""
-    from calib.theory import counting
+    from calib.problems.kinds import counting
 
     return {
         "name": family.name,

@@ -37,9 +37,9 @@ def run(args: argparse.Namespace) -> int:
     print(predict.cells_json(assessment) if args.json else "\n".join(predict.verdict_lines(assessment)))
     if args.mps:
         from calib.features import instance_features
-        from calib.problems import read_mps
+        from calib.problems.mps import read_mps_standard
 
-        features = instance_features("lp", read_mps(args.mps).to_standard().lp)
+        features = instance_features("lp", read_mps_standard(args.mps))
         answer = predict.predict(tables, features, args.projector, args.tau)
         print(f"{args.mps}: " + (f"k = {answer['k']}, {answer['reason']}" if answer["k"] is not None else answer["reason"]))
     return 0

@@ -37,7 +37,7 @@ import numpy as np
 
 from calib.checks import is_real
 from calib.errors import InputError
-from calib.theory import counting
+from calib.problems.kinds import counting
 from calib.wording import counted, fold, wrapped
 
 #: metric fields that differ between the retrievals of one replicate (the rest describe the solves)

@@ -31,7 +31,7 @@ class Instance:
     kind : str
         "lp", "sdp", "qp" or "points".
     problem : object
-        The problem container (e.g. :class:`calib.problems.StandardLP`).
+        The problem container (e.g. :class:`calib.problems.lp.StandardLP`).
     info : dict
         Ground truth known by construction (planted point, certificate, expected feasibility...).
     """

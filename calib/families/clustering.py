@@ -28,8 +28,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from calib.clustering import METHODS, ClusteringProblem
 from calib.families.base import Family, fraction, one_of, positive_int, register, require
+from calib.problems.clustering import METHODS, ClusteringProblem
 
 #: seeds of the starts are drawn below this bound
 _SEED_BOUND = 2**31

@@ -23,8 +23,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.families.base import Family, fraction, positive, positive_int, register
-from calib.problems import GeneralLP
-from calib.theory import lp_points
+from calib.problems.lp import GeneralLP, StandardLP
 
 #: Core rows mixed into one redundant row (at most).
 MIX = 3
@@ -99,6 +98,6 @@ register(Family(
     },
     build=_build,
     projected_dim=lambda p: p["rows"] + p["cols"],
-    n_points=lambda p: lp_points(2 * p["cols"] + p["rows"]),
+    n_points=lambda p: StandardLP.jl_points_for(2 * p["cols"] + p["rows"]),
     check=_check,
 ))

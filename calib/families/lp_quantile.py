@@ -24,8 +24,7 @@ import scipy.sparse as sp
 
 from calib.errors import InputError
 from calib.families.base import Family, fraction, positive, positive_int, register, require
-from calib.problems import GeneralLP, StandardForm
-from calib.theory import lp_points
+from calib.problems.lp import GeneralLP, StandardForm, StandardLP
 
 
 def _check_data(X, y, tau):
@@ -138,7 +137,7 @@ register(Family(
     },
     build=_build_synthetic,
     projected_dim=lambda p: p["rows"],
-    n_points=lambda p: lp_points(2 * (p["features"] + 1) + 2 * p["rows"]),
+    n_points=lambda p: StandardLP.jl_points_for(2 * (p["features"] + 1) + 2 * p["rows"]),
     check=_check_synthetic,
 ))
 
@@ -216,6 +215,6 @@ register(Family(
     },
     build=_build_csv,
     projected_dim=lambda p: _csv_size(p)[0],
-    n_points=lambda p: lp_points(2 * _csv_size(p)[1] + 2 * _csv_size(p)[0]),
+    n_points=lambda p: StandardLP.jl_points_for(2 * _csv_size(p)[1] + 2 * _csv_size(p)[0]),
     check=_check_csv,
 ))

@@ -20,8 +20,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.families.base import Family, fraction, positive_int, register, require
-from calib.problems import DecisionMap, StandardLP
-from calib.theory import lp_points
+from calib.problems.lp import DecisionMap, StandardLP
 
 
 def _matrix(rows: int, cols: int, density: float, rng: np.random.Generator, rank=None, noise: float = 0.0):
@@ -133,7 +132,7 @@ register(Family(
                "cost": "'dual' (c = A^T y0 + z0, mixed signs) or 'nonnegative' (c > 0)"},
     build=_build_planted,
     projected_dim=lambda p: p["rows"],
-    n_points=lambda p: lp_points(p["cols"]),
+    n_points=lambda p: StandardLP.jl_points_for(p["cols"]),
     check=_check_planted,
     memory=lambda p: matrix_bytes(p["rows"], p["cols"], p["density"], p["rank"]),
 ))
@@ -148,7 +147,7 @@ register(Family(
     param_doc={**_LP_DOC, "margin": "certificate margin (unitless, in (0, 10]); larger is 'more infeasible'"},
     build=_build_farkas,
     projected_dim=lambda p: p["rows"],
-    n_points=lambda p: lp_points(p["cols"]),
+    n_points=lambda p: StandardLP.jl_points_for(p["cols"]),
     check=_check_farkas,
     memory=lambda p: matrix_bytes(p["rows"], p["cols"], p["density"]),
 ))

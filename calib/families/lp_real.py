@@ -1,6 +1,6 @@
 """Real LPs read from MPS files: the vendored Netlib subset and a folder of the user's own files.
 
-Both families read the file with :func:`calib.problems.read_mps` and convert it with
+Both families read the file with :func:`calib.problems.mps.read_mps` and convert it with
 :meth:`GeneralLP.to_standard`, so their size is fixed by the file; the rows of that standard form
 (equalities, then rows with a lower bound, rows with an upper bound, then finite column upper
 bounds, each inequality with its slack) are the rows projections act on. The random stream is not
@@ -33,8 +33,8 @@ import numpy as np
 
 from calib.errors import InputError
 from calib.families.base import Family, register, require
-from calib.problems import read_mps, read_mps_standard
-from calib.theory import lp_points
+from calib.problems.lp import StandardLP
+from calib.problems.mps import read_mps, read_mps_standard
 
 NETLIB_DIR = Path(__file__).resolve().parent.parent / "data" / "netlib"
 MPS_SUFFIXES = (".mps", ".mps.gz", ".MPS", ".MPS.gz")
@@ -57,7 +57,7 @@ def netlib_optima() -> dict:
 
 @functools.lru_cache(maxsize=64)
 def _standard_shape(path: str, stamp: tuple) -> tuple:
-    lp = read_mps(path).to_standard().lp
+    lp = read_mps_standard(path)
     return lp.n_rows, lp.n_cols
 
 
@@ -68,7 +68,7 @@ def _shape(path: Path) -> tuple:
 
 
 def _read_standard(path: Path, name: str, prefix=None):
-    """The file's standard form named ``name`` (:func:`calib.problems.read_mps_standard`)."""
+    """The file's standard form named ``name`` (:func:`calib.problems.mps.read_mps_standard`)."""
     lp = read_mps_standard(path, prefix)
     lp.name = name
     return lp
@@ -128,7 +128,7 @@ register(Family(
                "decision_prefix": _PREFIX_DOC},
     build=_build_netlib,
     projected_dim=lambda p: _shape(_netlib_path(p))[0],
-    n_points=lambda p: lp_points(_shape(_netlib_path(p))[1]),
+    n_points=lambda p: StandardLP.jl_points_for(_shape(_netlib_path(p))[1]),
     check=_check_netlib,
     fixed=True,
 ))
@@ -185,7 +185,7 @@ register(Family(
                "decision_prefix": _PREFIX_DOC},
     build=_build_user,
     projected_dim=lambda p: _shape(_user_path(p))[0],
-    n_points=lambda p: lp_points(_shape(_user_path(p))[1]),
+    n_points=lambda p: StandardLP.jl_points_for(_shape(_user_path(p))[1]),
     check=_check_user,
     expand=_folder_sizes,
     fixed=True,

@@ -28,8 +28,7 @@ import scipy.sparse as sp
 
 from calib.errors import InputError
 from calib.families.base import Family, one_of, positive_int, register, require
-from calib.problems import DecisionMap, StandardLP
-from calib.theory import lp_points
+from calib.problems.lp import DecisionMap, StandardLP
 
 SIGNS = ("signed", "nonnegative")
 
@@ -95,6 +94,6 @@ register(Family(
     },
     build=_build,
     projected_dim=lambda p: p["measurements"],
-    n_points=lambda p: lp_points(p["length"] * (2 if p["signs"] == "signed" else 1)),
+    n_points=lambda p: StandardLP.jl_points_for(p["length"] * (2 if p["signs"] == "signed" else 1)),
     check=_check,
 ))

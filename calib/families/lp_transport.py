@@ -22,8 +22,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.families.base import Family, fraction, positive, positive_int, register
-from calib.problems import GeneralLP, StandardForm
-from calib.theory import lp_points
+from calib.problems.lp import GeneralLP, StandardForm, StandardLP
 
 
 def transportation_lp(supply, demand, cost, name: str = "transport") -> StandardForm:
@@ -105,6 +104,6 @@ register(Family(
     },
     build=_build,
     projected_dim=lambda p: p["sources"] + p["sinks"],
-    n_points=lambda p: lp_points(p["sources"] * p["sinks"] + p["sources"] + p["sinks"]),
+    n_points=lambda p: StandardLP.jl_points_for(p["sources"] * p["sinks"] + p["sources"] + p["sinks"]),
     check=_check,
 ))

@@ -1,7 +1,7 @@
 """Integer-programming families: the rows of an MILP in standard form with slacks are projected.
 
-Both families are inequality models brought to :class:`calib.milp.StandardMILP` by
-:func:`calib.milp.from_inequalities` (one continuous slack per row); the decision is integer, the
+Both families are inequality models brought to :class:`calib.problems.milp.StandardMILP` by
+:func:`calib.problems.milp.from_inequalities` (one continuous slack per row); the decision is integer, the
 slacks are continuous. The projected dimension m is the number of rows; the JL count n is the
 standard form's columns plus b (decisions + slacks + 1), as for an LP.
 
@@ -25,8 +25,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.families.base import Family, fraction, positive_int, register, require
-from calib.milp import from_inequalities
-from calib.theory import lp_points
+from calib.problems.milp import StandardMILP, from_inequalities
 
 
 def _build_knapsack(params: dict, rng: np.random.Generator):
@@ -77,7 +76,7 @@ register(Family(
                "items": "0/1 items, integer >= 1",
                "tightness": "capacity of each row as a share of the row's total weight, in (0, 1)"},
     build=_build_knapsack, projected_dim=lambda p: p["constraints"],
-    n_points=lambda p: lp_points(p["items"] + p["constraints"]), check=_check_knapsack,
+    n_points=lambda p: StandardMILP.jl_points_for(p["items"] + p["constraints"]), check=_check_knapsack,
     memory=lambda p: 8 * p["constraints"] * (p["items"] + 2),
 ))
 register(Family(
@@ -92,6 +91,6 @@ register(Family(
                "demand": "demands are drawn uniformly from 1..demand, integer >= 1",
                "upper": "a set may be bought at most this many times, integer >= demand"},
     build=_build_cover, projected_dim=lambda p: p["elements"],
-    n_points=lambda p: lp_points(p["sets"] + p["elements"]), check=_check_cover,
+    n_points=lambda p: StandardMILP.jl_points_for(p["sets"] + p["elements"]), check=_check_cover,
     memory=lambda p: 8 * p["elements"] * p["sets"],
 ))

@@ -20,8 +20,8 @@ from math import comb
 
 import numpy as np
 
-from calib.conic import PointSet
 from calib.families.base import Family, fraction, positive_int, register, require
+from calib.problems.points import PointSet
 
 
 def _build_gaussian(params: dict, rng: np.random.Generator):

@@ -1,6 +1,6 @@
 """Convex QP families; the variables are projected (x = T^T u, feasible by construction).
 
-The JL count is rows + 2 points (:func:`calib.conic.qp_points`), finite bounds counted as rows.
+The JL count is rows + 2 points (:attr:`calib.problems.qp.QP.jl_points`), finite bounds counted as rows.
 
 ``qp-random``: min 1/2 x^T Q x + c^T x s.t. A x <= b and, when radius > 0, ||x|| <= radius.
 Q = F F^T / r + ridge I with F standard normal of shape (n, r); c and A standard normal. A point x0
@@ -24,9 +24,9 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.checks import is_real
-from calib.conic import QP, qp_points
 from calib.families.base import Family, fraction, positive_int, register, require
 from calib.families.lp_random import _matrix
+from calib.problems.qp import QP
 
 #: Factor variances (per year) of the market factor and of each style factor.
 MARKET_VARIANCE, STYLE_VARIANCE = 0.04, 0.01
@@ -121,7 +121,7 @@ register(Family(
     },
     build=_build_random,
     projected_dim=lambda p: p["vars"],
-    n_points=lambda p: qp_points(p["rows"]),
+    n_points=lambda p: QP.jl_points_for(p["rows"]),
     check=_check_random,
 ))
 
@@ -144,6 +144,6 @@ register(Family(
     },
     build=_build_portfolio,
     projected_dim=lambda p: p["assets"],
-    n_points=lambda p: qp_points(2 + p["sectors"] + 2 * p["assets"]),
+    n_points=lambda p: QP.jl_points_for(2 + p["sectors"] + 2 * p["assets"]),
     check=_check_portfolio,
 ))

@@ -1,7 +1,7 @@
 """SDP families in standard form (min <C, X>, <A_i, X> = b_i, X PSD); constraints are projected.
 
-Constraint matrices are stored as svec rows (:mod:`calib.conic`), so a projection T of the m
-constraints is T @ A and T @ b. The JL count is n(n+1)/2 + 1 points (:func:`calib.conic.sdp_points`).
+Constraint matrices are stored as svec rows (:mod:`calib.problems.svec`), so a projection T of the m
+constraints is T @ A and T @ b. The JL count is n(n+1)/2 + 1 points (:attr:`calib.problems.sdp.StandardSDP.jl_points`).
 
 ``sdp-planted``: feasible and bounded. The svec rows of A have N(0, 1) entries (symmetric A_i with
 N(0, 1) diagonal and N(0, 1/2) off-diagonal entries); X0 = V V^T / r with V of shape (n, r) is
@@ -26,10 +26,11 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-from calib.conic import StandardSDP, sdp_points, smat, svec, svec_index, svec_size
 from calib.families import graphs
 from calib.families.base import Family, fraction, positive_int, register, require
 from calib.families.lp_random import _matrix
+from calib.problems.sdp import StandardSDP
+from calib.problems.svec import smat, svec, svec_index, svec_size
 
 #: Smallest eigenvalue added to the planted dual slack S0 of sdp-planted.
 PLANTED_SLACK_FLOOR = 0.1
@@ -129,7 +130,7 @@ def _register_random(name: str, description: str, extra_defaults: dict, extra_do
     register(Family(
         name=name, kind="sdp", description=description, size_keys=("order", "constraints"),
         defaults={"order": None, "constraints": None, **extra_defaults}, param_doc={**_SIZED_DOC, **extra_doc},
-        build=build, projected_dim=lambda p: p["constraints"], n_points=lambda p: sdp_points(p["order"]), check=check,
+        build=build, projected_dim=lambda p: p["constraints"], n_points=lambda p: StandardSDP.jl_points_for(p["order"]), check=check,
     ))
 
 
@@ -138,7 +139,7 @@ def _register_graph(name: str, description: str, build, projected_dim) -> None:
     register(Family(
         name=name, kind="sdp", description=description, size_keys=("nodes",),
         defaults=dict(graphs.DEFAULTS), param_doc=dict(graphs.PARAM_DOC),
-        build=build, projected_dim=projected_dim, n_points=lambda p: sdp_points(p["nodes"]), check=graphs.check,
+        build=build, projected_dim=projected_dim, n_points=lambda p: StandardSDP.jl_points_for(p["nodes"]), check=graphs.check,
     ))
 
 

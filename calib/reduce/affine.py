@@ -4,7 +4,7 @@ The orthogonal projection of x onto {A x = b} is x - A^+ (A x - b), with A^+ the
 pseudoinverse: the smallest correction (in the Euclidean norm) that makes the equalities hold
 (or, when b is not in the range of A, that minimises ||A x - b||). For an SDP written in svec
 coordinates the Euclidean norm is the Frobenius norm of the matrix, so the same code gives the
-least-Frobenius-norm correction (see :mod:`calib.conic`).
+least-Frobenius-norm correction (see :mod:`calib.problems.svec`).
 
 Two ways to apply A^+, chosen by size: a dense SVD computed once per :class:`AffineSet` (exact,
 rank-revealing, O(m n min(m, n)) to build and O(m n) per projection) when A has at most

@@ -265,7 +265,7 @@ def relative_distance(point: np.ndarray, reference: np.ndarray) -> Optional[floa
 def relative_residual(problem: Any, x: np.ndarray, x_ref: np.ndarray) -> Optional[float]:
     """||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||) for an LP or SDP (svec) problem.
 
-    >>> from calib.problems import StandardLP
+    >>> from calib.problems.lp import StandardLP
     >>> relative_residual(StandardLP(c=[1.0], A=[[1.0]], b=[2.0]), np.array([1.0]), np.array([2.0]))
     0.5
     """

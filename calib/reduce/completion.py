@@ -4,7 +4,7 @@ A row projection mixes the rows of min c^T x, A x = b, x >= 0, so the projected 
 nothing row by row: the columns whose values a single row fixes (residual pairs of a regression,
 slacks and surpluses, the columns occurring in one row) are meaningless in x' even when its
 decision part is good. Split the columns into decision columns D and completion columns C
-(:class:`calib.problems.DecisionMap`, :func:`calib.problems.decision_of`). The completion keeps
+(:class:`calib.problems.lp.DecisionMap`, :func:`calib.problems.lp.decision_of`). The completion keeps
 x_D = x'_D and solves
 
     minimise  c_C^T x_C   subject to   A_C x_C = r,   x_C >= 0,   r = b - A_D x'_D    (shape (m,))
@@ -41,7 +41,7 @@ from typing import Optional
 import numpy as np
 import scipy.sparse as sp
 
-from calib.problems import DecisionMap, StandardLP
+from calib.problems.lp import DecisionMap, StandardLP
 
 #: a row counts as met when its residual is at most this share of the size of its terms, |a_i| |x| + |b_i|
 ROW_RTOL = 1e-7

@@ -28,7 +28,7 @@ Retrieval maps the projected solution x' (with its basis B and duals y') back to
     if the warm solve fails, x' itself.
 
 ``completion``
-    Keep the decision columns of x' (the user's variables, :class:`calib.problems.DecisionMap`) and
+    Keep the decision columns of x' (the user's variables, :class:`calib.problems.lp.DecisionMap`) and
     solve for the completion columns exactly (:mod:`calib.reduce.completion`: a closed form per row
     when each occurs in one row, else the restricted LP). The point a user would take from the
     projected solve, judged in the original; a row it cannot satisfy keeps its residual
@@ -54,7 +54,7 @@ import numpy as np
 import scipy.linalg
 import scipy.sparse as sp
 
-from calib.problems import StandardLP, decision_of
+from calib.problems.lp import StandardLP, decision_of
 from calib.projectors.base import Projector
 from calib.reduce.affine import affine_set, alternate, least_squares
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size, relative_distance

@@ -12,19 +12,28 @@ random vectors in R^k all lie in one half-space with probability 2^{1-m} sum_{i<
 for any x within its bounds, and the projected optimum is the best x of the bounds alone.
 
 Retrieval ``completion`` (:func:`complete_milp`): keep the projected decision (integers rounded,
-:func:`calib.milp.rounded_decision`), recompute every slack exactly from its own original row (the
+:func:`rounded_decision`), recompute every slack exactly from its own original row (the
 closed form per row of :mod:`calib.reduce.completion`, the LP completion), and judge the completed point in the original: its
 feasibility error is the residual of the rows that cannot be completed (``feas_error`` on the
 scale of :mod:`calib.metrics`, ``rows_violated`` their share), its objective against the original
 optimum (``obj_error``, ``obj_ratio``). The fair baseline is the original solved by HiGHS MIP
 (:mod:`calib.solvers.milp`).
+
+The completion in detail: a decision x (from the projected model, where the slacks are aggregated
+into T's columns and mean nothing) is judged in the original by recomputing each slack from its own
+row, s_i = (b_i - a_i x) / sigma_i with sigma_i the slack's entry, and keeping s_i = 0 where that
+is negative (the row cannot be completed; its violation |b_i - a_i x| stays in the residual
+A z - b, the point's feasibility error). Integer decision columns are rounded to the nearest
+integer first (a MIP solver returns them within its integrality tolerance). Cost: one product
+A_dec x, O(nonzeros of the decision columns). Rows without a slack (equalities) keep their
+residual as it is.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from calib.milp import StandardMILP, rounded_decision, violated_rows
+from calib.problems.milp import StandardMILP
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size, relative_residual
 from calib.reduce.completion import complete
 from calib.solvers.milp import solve_milp
@@ -34,12 +43,41 @@ from calib.solvers.result import SolveResult
 def complete_milp(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
     """The decision of ``z`` (integers rounded) with every slack recomputed from its own row, shape (N,).
 
-    >>> from calib.milp import from_inequalities
+    >>> from calib.problems.milp import from_inequalities
     >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
     >>> complete_milp(p, np.array([1.0, 1.0, 7.0, 7.0])).tolist()   # row 0 cannot be completed: 1 - 2 < 0
     [1.0, 1.0, 0.0, 1.0]
     """
     return complete(problem, rounded_decision(problem, z), problem.decision).x
+
+
+def rounded_decision(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
+    """``z`` with its integer decision columns rounded to the nearest integer and every decision clipped to
+    its bounds (a MIP solver returns integers within its integrality tolerance); the slacks are left as
+    they are, for :func:`calib.reduce.completion.complete` to recompute. Shape (N,) -> (N,).
+
+    >>> from calib.problems.milp import from_inequalities
+    >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
+    >>> rounded_decision(p, np.array([0.9999999, 1.2, 7.0, 7.0])).tolist()
+    [1.0, 1.0, 7.0, 7.0]
+    """
+    out = np.asarray(z, dtype=float).copy()
+    decision = out[:problem.n_decision]
+    integer = problem.integer[:problem.n_decision]
+    decision[integer] = np.round(decision[integer])
+    out[:problem.n_decision] = np.clip(decision, 0.0, problem.upper[:problem.n_decision])
+    return out
+
+
+def violated_rows(problem: StandardMILP, z: np.ndarray, tolerance: float = 1e-9) -> float:
+    """Share of the rows whose residual |a_i z - b_i| exceeds ``tolerance`` times max(1, |b_i|).
+
+    >>> from calib.problems.milp import from_inequalities
+    >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
+    >>> violated_rows(p, np.array([1.0, 1.0, 0.0, 1.0]))
+    0.5
+    """
+    return float(np.mean(np.abs(problem.residual(z)) > tolerance * np.maximum(1.0, np.abs(problem.b))))
 
 
 def _completion(context: Context) -> Retrieved:
@@ -66,5 +104,5 @@ class MILPHandler(RowProjectionHandler):
     @classmethod
     def point_metrics(cls, problem: StandardMILP, z: np.ndarray, z_ref: np.ndarray) -> dict:
         """``feas_error`` of z (relative residual at the scale of ``z_ref``) and ``rows_violated``
-        (rows of A z = b missed beyond the tolerance of :func:`calib.milp.violated_rows`)."""
+        (rows of A z = b missed beyond the tolerance of :func:`violated_rows`)."""
         return {"feas_error": relative_residual(problem, z, z_ref), "rows_violated": violated_rows(problem, z)}

@@ -1,6 +1,6 @@
 """Point sets: the pure JL distortion of a projected point cloud.
 
-The points p_1..p_n in R^d (rows of :class:`calib.conic.PointSet`) are mapped to y_i = T p_i in R^k.
+The points p_1..p_n in R^d (rows of :class:`calib.problems.points.PointSet`) are mapped to y_i = T p_i in R^k.
 The distortion of a pair is |‖y_i - y_j‖² / ‖p_i - p_j‖² - 1|; a trial records its maximum and
 99th percentile over the pairs checked, the number of pairs checked and the number of all pairs.
 
@@ -31,8 +31,8 @@ from typing import Callable, Iterator, Optional
 import numpy as np
 from numpy.typing import DTypeLike
 
-from calib.conic import PointSet
 from calib.metrics import record
+from calib.problems.points import PointSet
 from calib.projectors.base import Projector
 from calib.reduce.base import Handler
 from calib.solvers.methods import Baseline

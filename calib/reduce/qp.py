@@ -27,9 +27,9 @@ from typing import Optional
 import numpy as np
 import scipy.sparse as sp
 
-from calib.conic import QP
 from calib.metrics import relative, scale
-from calib.problems import Matrix
+from calib.problems.arrays import Matrix
+from calib.problems.qp import QP
 from calib.projectors.base import Projector
 from calib.reduce.base import Context, Handler, Retrieved, linear_size, relative_distance
 from calib.solvers.result import SolveResult

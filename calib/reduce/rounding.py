@@ -53,9 +53,9 @@ import numpy as np
 import scipy.sparse as sp
 
 from calib.checks import is_integer
-from calib.conic import StandardSDP
 from calib.errors import InputError
-from calib.problems import Matrix
+from calib.problems.arrays import Matrix
+from calib.problems.sdp import StandardSDP
 
 #: A diagonal entry of the clipped matrix at most this times the largest one counts as zero.
 ZERO_DIAGONAL_RTOL = 1e-12

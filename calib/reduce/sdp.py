@@ -1,7 +1,7 @@
 """SDP constraint aggregation and its retrievals.
 
 The projected SDP of min <C, X>, <A_i, X> = b_i (i < m), X PSD under T (k x m) keeps k aggregated
-constraints <sum_j T_ij A_j, X> = (Tb)_i: in svec coordinates (see :mod:`calib.conic`) the
+constraints <sum_j T_ij A_j, X> = (Tb)_i: in svec coordinates (see :mod:`calib.problems.svec`) the
 constraint matrix becomes T A and the right-hand side T b. Every feasible X of the original stays
 feasible, so the projected optimum is a lower bound and an infeasible projection certifies an
 infeasible original (the one-sided error). Both problems are solved with SCS.
@@ -33,7 +33,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from calib.conic import StandardSDP, smat, svec
+from calib.problems.sdp import StandardSDP
+
+from calib.problems.svec import smat, svec
 from calib.projectors.base import Projector
 from calib.reduce.affine import affine_set, alternate
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size

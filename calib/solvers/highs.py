@@ -14,23 +14,22 @@ without presolve on a matrix that is dense and large (:func:`calib.solvers.metho
 Statuses are mapped by :data:`STATUS_TABLE`, which keeps HiGHS's own code and message. Facts this
 relies on (checked against highspy 1.16): ``run()`` returns kOk even for infeasible models, so the
 model status decides; the thread scheduler is global per process, so every Highs object here uses
-``threads = 1``; the first ``Highs()`` in a process prints a banner on stdout, which is silenced.
+``threads = 1``; the first ``Highs()`` in a process prints a banner on stdout, which
+:mod:`calib.problems.highs_handle` silences.
 """
 
 from __future__ import annotations
 
-import os
 import time
-from typing import TYPE_CHECKING, Optional
+from typing import Optional
 
 import highspy
 import numpy as np
 import scipy.sparse as sp
 
+from calib.problems.highs_handle import quiet_highs
+from calib.problems.lp import StandardLP
 from calib.solvers.result import SolveResult
-
-if TYPE_CHECKING:  # annotations only: calib.problems reads MPS files through new_highs (no import cycle)
-    from calib.problems import StandardLP
 
 _MS = highspy.HighsModelStatus
 
@@ -65,29 +64,10 @@ DEFAULT_OPTIONS = {
     "random_seed": 0,
 }
 
-_banner_silenced = False
-
-
 def new_highs(options: Optional[dict] = None) -> "highspy.Highs":
-    """A quiet ``highspy.Highs`` with :data:`DEFAULT_OPTIONS` plus ``options``."""
-    global _banner_silenced
-    if not _banner_silenced:
-        _banner_silenced = True
-        saved = os.dup(1)
-        try:
-            with open(os.devnull, "w") as sink:
-                os.dup2(sink.fileno(), 1)
-                h = highspy.Highs()
-        finally:
-            os.dup2(saved, 1)
-            os.close(saved)
-    else:
-        h = highspy.Highs()
-    for name, value in {**DEFAULT_OPTIONS, **(options or {})}.items():
-        status = h.setOptionValue(name, value)
-        if status == highspy.HighsStatus.kError:
-            raise ValueError(f"HiGHS rejected option {name}={value!r}")
-    return h
+    """A quiet ``highspy.Highs`` (:func:`calib.problems.highs_handle.quiet_highs`) with
+    :data:`DEFAULT_OPTIONS` plus ``options``."""
+    return quiet_highs({**DEFAULT_OPTIONS, **(options or {})})
 
 
 def _to_highs_lp(lp: StandardLP) -> "highspy.HighsLp":

@@ -49,7 +49,7 @@ from typing import Callable, Optional
 
 import numpy as np
 
-from calib.clustering import ClusteringProblem, cluster_means, kmeans_cost
+from calib.problems.clustering import ClusteringProblem, cluster_means, kmeans_cost
 from calib.solvers.result import SolveResult
 
 

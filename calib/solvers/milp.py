@@ -1,4 +1,4 @@
-"""HiGHS's branch-and-cut MIP solver for :class:`calib.milp.StandardMILP` (one thread, quiet).
+"""HiGHS's branch-and-cut MIP solver for :class:`calib.problems.milp.StandardMILP` (one thread, quiet).
 
 The model goes to HiGHS as the LP of :mod:`calib.solvers.highs` (rows A z = b, columns 0 <= z)
 with the column upper bounds and the integrality (``HighsVarType.kInteger`` on the integer columns,
@@ -25,7 +25,7 @@ from typing import Optional
 import highspy
 import numpy as np
 
-from calib.milp import StandardMILP
+from calib.problems.milp import StandardMILP
 from calib.solvers.highs import DEFAULT_OPTIONS, _to_highs_lp, collect_result, new_highs
 from calib.solvers.result import SolveResult
 

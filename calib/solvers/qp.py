@@ -21,8 +21,8 @@ import highspy
 import numpy as np
 import scipy.sparse as sp
 
-from calib.conic import QP
 from calib.errors import InputError
+from calib.problems.qp import QP
 from calib.solvers.highs import DEFAULT_OPTIONS, collect_result, new_highs
 from calib.solvers.result import SolveResult
 from calib.solvers.scs_base import run_scs, upper_csc

@@ -3,7 +3,7 @@
 SCS solves min 1/2 x^T P x + c^T x s.t. A x + s = b, s in K, with the cone K given by the keys
 ``z`` (zeros), ``l`` (nonnegatives), ``q`` (second-order cone sizes), ``s`` (PSD cone orders) in
 that row order. Facts this relies on (checked against scs 3.3.1): ``P`` is read as its UPPER
-triangle; the PSD cone is vectorised like :func:`calib.conic.svec`; an infeasible problem returns
+triangle; the PSD cone is vectorised like :func:`calib.problems.svec.svec`; an infeasible problem returns
 NaN for x and a certificate in y.
 
 One thread: the QDLDL direct solver is named explicitly (the default would pick the MKL backend when

@@ -17,7 +17,9 @@ from typing import Optional
 import numpy as np
 import scipy.sparse as sp
 
-from calib.conic import StandardSDP, smat, svec_size
+from calib.problems.sdp import StandardSDP
+
+from calib.problems.svec import smat, svec_size
 from calib.solvers.result import SolveResult
 from calib.solvers.scs_base import run_scs
 

@@ -12,25 +12,26 @@ acts on the coordinates (d -> k), as for a point set.
 the within-cluster sum of squares (an empty cluster adds nothing). :func:`kmeans_cost` computes it
 from the labels in O(n d) flops: one pass for the K means, one for the squared deviations.
 
-**Disagreement** of two partitions (:func:`disagreement`): the share of points that two labelings
-assign differently *up to relabelling*, 1 - max_sigma (1/n) sum_i [a_i = sigma(b_i)] over the
-bijections sigma of the labels; the maximum is the assignment problem on the K_a x K_b contingency
-table, solved by the Hungarian method (scipy's ``linear_sum_assignment``; Kuhn 1955). Cost
-O(n + K^3).
+**Which points the JL bounds count**: the number of clusters K, not the number of points. The
+bounds of :data:`calib.theory.CLUSTERING_BOUNDS` keep the k-means cost of *every* K-partition
+within 1 +- eps with k = O(log(K / eps) / eps^2) dimensions, whatever n is (Makarychev, Makarychev
+and Razenshteyn 2019, below), so :attr:`ClusteringProblem.jl_points` is K.
 
 References: S. P. Lloyd, "Least squares quantization in PCM", IEEE Trans. Information Theory
-28(2):129–137, 1982 (the cost and its alternating minimisation); H. W. Kuhn, "The Hungarian method
-for the assignment problem", Naval Research Logistics Quarterly 2:83–97, 1955.
+28(2):129–137, 1982 (the cost and its alternating minimisation); K. Makarychev, Y. Makarychev and
+I. Razenshteyn, "Performance of Johnson–Lindenstrauss transform for k-means and k-medians
+clustering", STOC 2019.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import ClassVar
 
 import numpy as np
 
-from calib.conic import PointRows
 from calib.errors import InputError
+from calib.problems.points import PointRows
 
 #: clustering methods (:mod:`calib.solvers.kmeans`): plain Lloyd, and Lloyd with a size-constrained assignment
 METHODS = ("lloyd", "sized")
@@ -67,8 +68,26 @@ class ClusteringProblem(PointRows):
     max_iter: int = 300
     name: str = "clustering"
 
+    #: how this kind counts n (the JL points) and m (the projected dimension), as ``calib families`` shows it
+    COUNTING: ClassVar[str] = ("n = the number of clusters K (the clustering bounds depend on K and eps, not on the number of "
+                               "points); m = the dimension of the points, reduced to k")
+
     def __post_init__(self) -> None:
         self.points = np.asarray(self.points, dtype=float)
+
+    @staticmethod
+    def jl_points_for(clusters: int) -> int:
+        """What the clustering bounds count for K clusters: K itself (module docstring).
+
+        >>> ClusteringProblem.jl_points_for(10)
+        10
+        """
+        return int(clusters)
+
+    @property
+    def jl_points(self) -> int:
+        """The n of a clustering problem's bounds: the number of clusters K, not of points (module docstring)."""
+        return self.jl_points_for(self.clusters)
 
     def validate(self) -> "ClusteringProblem":
         """Check the shapes, the method and that the size constraint can be met."""
@@ -110,20 +129,3 @@ def kmeans_cost(points: np.ndarray, labels: np.ndarray, clusters: int) -> float:
     labels = np.asarray(labels, dtype=np.int64)
     means, _ = cluster_means(points, labels, clusters)
     return float(np.sum((points - means[labels]) ** 2))
-
-
-def disagreement(first: np.ndarray, second: np.ndarray) -> float:
-    """Share of points the two labelings assign differently, after the best relabelling (module docstring).
-
-    >>> disagreement(np.array([0, 0, 1, 1, 2]), np.array([2, 2, 0, 0, 1]))
-    0.0
-    >>> disagreement(np.array([0, 0, 0, 1]), np.array([1, 1, 0, 0]))  # best relabelling 0 -> 1, 1 -> 0: 3 of 4 agree
-    0.25
-    """
-    from scipy.optimize import linear_sum_assignment
-
-    first, second = np.asarray(first, dtype=np.int64), np.asarray(second, dtype=np.int64)
-    table = np.zeros((int(first.max()) + 1, int(second.max()) + 1), dtype=np.int64)
-    np.add.at(table, (first, second), 1)
-    rows, cols = linear_sum_assignment(table, maximize=True)
-    return float(1.0 - table[rows, cols].sum() / first.size)

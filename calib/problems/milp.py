@@ -1,4 +1,4 @@
-"""Mixed-integer programs in standard form with slacks, and the completion of a decision.
+"""Mixed-integer programs in standard form with one singleton slack per inequality row.
 
 The form (shapes: A (m, N), b (m,), c, upper, integer (N,))::
 
@@ -10,26 +10,26 @@ singleton column (one entry +1 for a <= row, -1 for a >= row). :func:`from_inequ
 from ``a_i x <= b_i`` / ``a_i x >= b_i`` rows. The column bounds and the integrality are not
 constraints rows: a row projection T A z = T b keeps them as they are.
 
-**Completion** (:func:`rounded_decision`, then :func:`calib.reduce.completion.complete` on the
-decision columns, the LP completion's closed form per row): a decision x (from the projected model, where the slacks are
-aggregated into T's columns and mean nothing) is judged in the original by recomputing each slack
-from its own row, s_i = (b_i - a_i x) / sigma_i with sigma_i the slack's entry, and keeping
-s_i = 0 where that is negative (the row cannot be completed; its violation |b_i - a_i x| stays
-in the residual A z - b, the point's feasibility error). Integer decision columns are rounded to
-the nearest integer first (a MIP solver returns them within its integrality tolerance). Cost: one
-product A_dec x, O(nonzeros of the decision columns). Rows without a slack (equalities) keep their
-residual as it is.
+**Which points the JL bounds count**: as for an LP (:attr:`calib.problems.lp.StandardLP.jl_points`):
+the N columns of A (decisions and slacks) and b, N + 1 points; bounds and integrality are not rows,
+so a row projection leaves them as they are. The completion of a projected decision (integers
+rounded, slacks recomputed row by row) is :mod:`calib.reduce.milp`.
+
+Costs: :func:`from_inequalities` is O(nnz(A) + m) (one sparse stacking); :meth:`StandardMILP.validate`
+O(nnz(A) + N).
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import ClassVar
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
-from calib.problems import DecisionMap, StandardLP
+from calib.problems.lp import DecisionMap, StandardLP
 
 
 @dataclass
@@ -51,6 +51,10 @@ class StandardMILP(StandardLP):
     upper: np.ndarray = None
     integer: np.ndarray = None
     n_decision: int = 0
+
+    #: how this kind counts n (the JL points, as for an LP) and m, as ``calib families`` shows it
+    COUNTING: ClassVar[str] = ("n = the columns of the standard form's A (decisions and slacks) plus b (cols + 1), as for "
+                               "an LP; m = its rows, reduced to k (bounds and integrality are kept)")
 
     def __post_init__(self) -> None:
         super().__post_init__()
@@ -74,7 +78,8 @@ class StandardMILP(StandardLP):
         return self
 
 
-def from_inequalities(c, A, b, sense: str, upper, integer, name: str = "milp") -> StandardMILP:
+def from_inequalities(c: ArrayLike, A: ArrayLike, b: ArrayLike, sense: str, upper: ArrayLike, integer: ArrayLike,
+                      name: str = "milp") -> StandardMILP:
     """The standard form of min c^T x s.t. a_i x <= b_i (``sense`` "<=") or >= b_i (">="), 0 <= x <= upper.
 
     One slack column per row: +1 for "<=", -1 for ">=" (a surplus), continuous and unbounded above.
@@ -92,30 +97,3 @@ def from_inequalities(c, A, b, sense: str, upper, integer, name: str = "milp") -
                         b=b, upper=np.concatenate([np.asarray(upper, dtype=float), np.full(m, np.inf)]),
                         integer=np.concatenate([np.asarray(integer, dtype=bool), np.zeros(m, dtype=bool)]),
                         n_decision=n, name=name).validate()
-
-
-def rounded_decision(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
-    """``z`` with its integer decision columns rounded to the nearest integer and every decision clipped to
-    its bounds (a MIP solver returns integers within its integrality tolerance); the slacks are left as
-    they are, for :func:`calib.reduce.completion.complete` to recompute. Shape (N,) -> (N,).
-
-    >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
-    >>> rounded_decision(p, np.array([0.9999999, 1.2, 7.0, 7.0])).tolist()
-    [1.0, 1.0, 7.0, 7.0]
-    """
-    out = np.asarray(z, dtype=float).copy()
-    decision = out[:problem.n_decision]
-    integer = problem.integer[:problem.n_decision]
-    decision[integer] = np.round(decision[integer])
-    out[:problem.n_decision] = np.clip(decision, 0.0, problem.upper[:problem.n_decision])
-    return out
-
-
-def violated_rows(problem: StandardMILP, z: np.ndarray, tolerance: float = 1e-9) -> float:
-    """Share of the rows whose residual |a_i z - b_i| exceeds ``tolerance`` times max(1, |b_i|).
-
-    >>> p = from_inequalities([-1.0, -1.0], [[1.0, 1.0], [1.0, 0.0]], [1.0, 2.0], "<=", [1.0, 1.0], [True, True])
-    >>> violated_rows(p, np.array([1.0, 1.0, 0.0, 1.0]))
-    0.5
-    """
-    return float(np.mean(np.abs(problem.residual(z)) > tolerance * np.maximum(1.0, np.abs(problem.b))))

@@ -1,14 +1,26 @@
-"""Problem containers and their canonical forms.
+"""Linear programs: the standard form every LP is solved and projected in, the general form models
+are written in, and the user's decision columns.
 
 The LP standard form used everywhere is::
 
     minimise  c^T x + offset   subject to  A x = b,  x >= 0
 
-with ``A`` of shape (m, n) (dense ndarray or scipy.sparse), ``b`` of shape (m,), ``c`` of shape (n,).
-A general-form LP (row bounds, column bounds, free variables) becomes standard form through
-:meth:`GeneralLP.to_standard`, which adds slacks and splits free variables and keeps a linear map
-that takes a standard-form point back to the original variables. Infinities are normalised here,
-in one place: any bound with magnitude >= 1e20 counts as infinite (the HiGHS convention).
+with ``A`` of shape (m, n) (dense ndarray or scipy.sparse CSR), ``b`` of shape (m,), ``c`` of shape
+(n,), all unitless unless a family says otherwise. A general-form LP (row bounds, column bounds,
+free variables) becomes standard form through :meth:`GeneralLP.to_standard`, which adds slacks and
+splits free variables and keeps a linear map that takes a standard-form point back to the original
+variables; its cost is O(nnz(A) + m + n) (sparse stacking, no dense step). Infinities are
+normalised in :mod:`calib.problems.arrays`: any bound with magnitude >= 1e20 counts as infinite
+(the HiGHS convention). MPS files are read into a :class:`GeneralLP` by :mod:`calib.problems.mps`.
+
+Which points the JL bounds count
+--------------------------------
+A row projection T (k x m) replaces A x = b by (T A) x = T b. It keeps the LP's geometry when it
+keeps the inner products of the n columns of A and the right-hand side b with each other, so the
+Johnson–Lindenstrauss count is n + 1 points (:attr:`StandardLP.jl_points`; zero columns included:
+they are points too). This is the choice of K. Vu, P.-L. Poirion and L. Liberti, "Random
+projections for linear programming", Mathematics of Operations Research 43(4):1051–1071, 2018
+(they project the columns of A together with b; from memory).
 
 Decision and completion columns
 -------------------------------
@@ -29,36 +41,14 @@ with a nonzero. Families declare it; an LP without one gets it from its structur
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
-from typing import Optional, Union
+from typing import ClassVar, Optional
 
 import numpy as np
 import scipy.sparse as sp
+from numpy.typing import ArrayLike
 
 from calib.errors import InputError
-
-Matrix = Union[np.ndarray, sp.spmatrix, sp.sparray]
-
-#: Bounds at or beyond this magnitude are infinite (HiGHS uses the same threshold).
-INF_BOUND = 1e20
-
-
-def _finite_or_inf(values: np.ndarray) -> np.ndarray:
-    values = np.asarray(values, dtype=float).copy()
-    values[values >= INF_BOUND] = np.inf
-    values[values <= -INF_BOUND] = -np.inf
-    return values
-
-
-def as_matrix(A) -> "Matrix":
-    """Float CSR for sparse input, a 2-D float ndarray otherwise (the one coercion of constraint matrices)."""
-    return sp.csr_array(A, dtype=float) if sp.issparse(A) else np.atleast_2d(np.asarray(A, dtype=float))
-
-
-def _check_finite(name: str, where: str, values) -> None:
-    data = values.data if sp.issparse(values) else np.asarray(values)
-    if not np.all(np.isfinite(data)):
-        raise InputError(where, f"{name} contains NaN or infinite entries", "replace them with finite numbers")
+from calib.problems.arrays import Matrix, as_matrix, check_finite, finite_or_inf
 
 
 @dataclass(eq=False)
@@ -85,7 +75,7 @@ class DecisionMap:
         self.shift = np.zeros(self.matrix.shape[0]) if self.shift is None else np.asarray(self.shift, dtype=float).ravel()
 
     @classmethod
-    def select(cls, n_cols: int, columns, names: Optional[tuple] = None) -> "DecisionMap":
+    def select(cls, n_cols: int, columns: ArrayLike, names: Optional[tuple] = None) -> "DecisionMap":
         """The decision variables x[columns] themselves (a selection of the standard-form columns).
 
         >>> DecisionMap.select(4, [0, 2]).columns.tolist()
@@ -133,6 +123,10 @@ class StandardLP:
     name: str = "lp"
     decision: Optional[DecisionMap] = None
 
+    #: how this kind counts n (the JL points) and m (the projected dimension), as ``calib families`` shows it
+    COUNTING: ClassVar[str] = ("n = the columns of the standard form's A plus b (cols + 1), the points a row projection "
+                               "T A, T b must keep; m = the rows of A (its equality constraints), reduced to k")
+
     def __post_init__(self) -> None:
         self.c = np.asarray(self.c, dtype=float).ravel()
         self.b = np.asarray(self.b, dtype=float).ravel()
@@ -140,11 +134,32 @@ class StandardLP:
 
     @property
     def n_rows(self) -> int:
+        """Number of equality rows m (the dimension a row projection reduces to k)."""
         return self.A.shape[0]
 
     @property
     def n_cols(self) -> int:
+        """Number of standard-form columns n (slacks and split free variables included)."""
         return self.A.shape[1]
+
+    @staticmethod
+    def jl_points_for(n_cols: int) -> int:
+        """JL points of a row projection of an LP with ``n_cols`` standard-form columns: the columns
+        of A and b, n + 1 (module docstring), for counting from a family's sizes before building.
+
+        >>> StandardLP.jl_points_for(80)
+        81
+        """
+        return int(n_cols) + 1
+
+    @property
+    def jl_points(self) -> int:
+        """Points a row projection T A x = T b must keep: the n columns of A and b, n + 1.
+
+        >>> StandardLP(c=[1.0, 0.0, 2.0], A=[[1.0, 1.0, 0.0]], b=[1.0]).jl_points
+        4
+        """
+        return self.jl_points_for(self.n_cols)
 
     def validate(self) -> "StandardLP":
         """Check shapes and finiteness; raise :class:`InputError` naming the problem."""
@@ -156,7 +171,7 @@ class StandardLP:
         if self.c.shape != (n,):
             raise InputError(self.name, f"c has shape {self.c.shape} but A has {n} columns", "give one cost per column")
         for label, values in (("A", self.A), ("b", self.b), ("c", self.c)):
-            _check_finite(label, self.name, values)
+            check_finite(label, self.name, values)
         if not np.isfinite(self.offset):
             raise InputError(self.name, "objective offset is not finite", "use a finite constant")
         return self
@@ -191,10 +206,11 @@ class GeneralLP:
     def __post_init__(self) -> None:
         self.c = np.asarray(self.c, dtype=float).ravel()
         self.A = sp.csr_array(self.A, dtype=float)
-        self.row_lo, self.row_hi = _finite_or_inf(self.row_lo), _finite_or_inf(self.row_hi)
-        self.col_lo, self.col_hi = _finite_or_inf(self.col_lo), _finite_or_inf(self.col_hi)
+        self.row_lo, self.row_hi = finite_or_inf(self.row_lo), finite_or_inf(self.row_hi)
+        self.col_lo, self.col_hi = finite_or_inf(self.col_lo), finite_or_inf(self.col_hi)
 
     def validate(self) -> "GeneralLP":
+        """Check shapes, NaN, finiteness of A and c, and uncrossed bounds; raise :class:`InputError` naming the problem."""
         m, n = self.A.shape
         if m == 0 or n == 0:
             raise InputError(self.name, f"empty constraint matrix of shape {self.A.shape}", "an LP needs at least one row and one column")
@@ -205,13 +221,13 @@ class GeneralLP:
                 raise InputError(self.name, f"{label} have shape {values.shape}, expected ({size},)", "make the shapes agree with A")
             if np.isnan(values).any():
                 raise InputError(self.name, f"{label} contain NaN", "replace NaN by a number or an infinite bound")
-        _check_finite("A", self.name, self.A)
-        _check_finite("c", self.name, self.c)
+        check_finite("A", self.name, self.A)
+        check_finite("c", self.name, self.c)
         if np.any(self.row_lo > self.row_hi) or np.any(self.col_lo > self.col_hi):
             raise InputError(self.name, "a lower bound exceeds its upper bound", "fix the crossed bounds (the model is trivially infeasible)")
         return self
 
-    def to_standard(self, decision=None) -> "StandardForm":
+    def to_standard(self, decision: Optional[ArrayLike] = None) -> "StandardForm":
         """Convert to standard form with slacks and split free variables.
 
         Columns: x_j = lo_j + x'_j (lower bound finite), x_j = hi_j - x'_j (only upper finite) or
@@ -287,13 +303,6 @@ class GeneralLP:
         return np.flatnonzero(rows_per_column + boxed >= 2)
 
 
-def read_mps_standard(path: Union[str, Path], decision_prefix: Optional[str] = None) -> StandardLP:
-    """An MPS file's standard form with its decision from the structure (:meth:`GeneralLP.structural_decision`),
-    or the columns whose names start with ``decision_prefix``: the one reading of a model file as an LP."""
-    general = read_mps(path)
-    return general.to_standard(decision=general.structural_decision(decision_prefix)).lp
-
-
 def singleton_columns(A: Matrix) -> np.ndarray:
     """Boolean mask (n,): the columns of A with exactly one nonzero entry.
 
@@ -331,6 +340,7 @@ class StandardForm:
     shift: np.ndarray = field(repr=False)
 
     def original_point(self, z: np.ndarray) -> np.ndarray:
+        """The general-form point x = shift + recover @ z of a standard-form point z (shape (n_std,) -> (n,))."""
         return self.shift + self.recover @ z
 
     def standard_point(self, x: np.ndarray) -> np.ndarray:
@@ -348,64 +358,3 @@ class StandardForm:
         slack_columns = A[:, n_orig:]
         # each slack column holds one +-1 entry, so S^T r recovers the slack values
         return np.concatenate([structural, slack_columns.T @ rest])
-
-
-def _read_with_log(path: Path) -> tuple:
-    """(Highs, read status, HiGHS's first ERROR line or "") of ``readModel(path)``."""
-    import os
-    import tempfile
-
-    from calib.solvers.highs import new_highs
-
-    handle, log_path = tempfile.mkstemp(prefix="calib-mps-", suffix=".log")
-    os.close(handle)
-    try:
-        h = new_highs({"output_flag": True, "log_to_console": False, "log_file": log_path})
-        status = h.readModel(str(path))
-        h.setOptionValue("output_flag", False)
-        h.setOptionValue("log_file", "")
-        with open(log_path, encoding="utf-8", errors="replace") as log:
-            errors = [line.split(":", 1)[1].strip() for line in log if line.startswith("ERROR:")]
-    finally:
-        os.unlink(log_path)
-    return h, status, " ".join(errors[0].split()) if errors else ""
-
-
-def read_mps(path: Union[str, Path]) -> GeneralLP:
-    """Read an MPS file (also .mps.gz) with HiGHS into a :class:`GeneralLP`.
-
-    Raises :class:`InputError` naming the file when it is missing, unreadable or malformed, or
-    when it holds integer variables or a quadratic objective (not an LP).
-    """
-    import highspy
-
-    from calib.mps_scan import scan_mps
-
-    path = Path(path)
-    if not path.is_file():
-        raise InputError(str(path), "no such file", "check the path to the MPS file")
-    problem = scan_mps(path)
-    if problem:
-        raise InputError(str(path), problem, "correct the file: numbers finite, every row declared under ROWS, ENDATA last")
-    h, status, complaint = _read_with_log(path)
-    if status == highspy.HighsStatus.kError:
-        raise InputError(str(path), f"HiGHS could not read this MPS file{': ' + complaint if complaint else ''}",
-                         "check that it is a complete, valid (free or fixed) MPS file")
-    lp = h.getLp()
-    if lp.num_row_ == 0 or lp.num_col_ == 0:
-        raise InputError(str(path), "the model has no rows or no columns", "an LP needs constraints and variables")
-    if len(lp.integrality_) and np.any(np.asarray([int(t) for t in lp.integrality_]) != 0):
-        raise InputError(str(path), "the model has integer variables", "calib handles continuous LPs: drop the integrality markers")
-    if h.getModel().hessian_.dim_ > 0:
-        raise InputError(str(path), "the model has a quadratic objective", "read it as a QP instead of an LP")
-    a = lp.a_matrix_
-    A = sp.csc_array((np.asarray(a.value_), np.asarray(a.index_), np.asarray(a.start_)), shape=(lp.num_row_, lp.num_col_))
-    sense = 1.0 if lp.sense_ == highspy.ObjSense.kMinimize else -1.0
-    general = GeneralLP(
-        c=sense * np.asarray(lp.col_cost_), A=A,
-        row_lo=np.asarray(lp.row_lower_), row_hi=np.asarray(lp.row_upper_),
-        col_lo=np.asarray(lp.col_lower_), col_hi=np.asarray(lp.col_upper_),
-        offset=sense * float(lp.offset_), name=path.name,
-        col_names=tuple(lp.col_names_) if len(lp.col_names_) == lp.num_col_ else None,
-    )
-    return general.validate()
