@@ -411,3 +411,49 @@ def test_a_curtailed_look_fails_with_the_verdict_of_its_last_look():
     search.offer([False] + [True] * 79)
     assert search.steps[0].verdict.startswith("fail") and search.steps[0].trials == 1
     assert stats.binom.sf(78, 80, 0.9) > search.alpha / 2 >= stats.binom.sf(79, 80, 0.9)
+
+
+def test_a_store_from_before_the_extension_keeps_its_searches_at_high(tmp_path):
+    """A store without the extension marker replays as it was run; a new store records the marker.
+
+    The check reads the campaign table with sqlite3 directly (the standard library as the reader).
+    """
+    import sqlite3
+
+    from calib.store.database import SEARCH_EXTENDS, Store
+    from calib.sweep.runner import search_cells
+    from calib.sweep.spec import load_spec
+
+    path = tmp_path / "marker.toml"
+    path.write_text("""
+[campaign]
+name = "marker"
+root_seed = 3
+replicates = 1
+[[families]]
+name = "lp-planted"
+sizes = [{rows = 20, cols = 40}]
+instances = 1
+[sweep]
+projectors = ["gaussian"]
+k = {search = {low = 2, high = 10}}
+[target]
+preset = "bound"
+""", encoding="utf-8")
+    spec = load_spec(path)
+    store = Store.create_or_resume(spec, tmp_path / "out")
+    store_path = store.path
+    try:
+        assert store.searches_extend()
+    finally:
+        store.close()
+    with sqlite3.connect(store_path) as db:
+        assert db.execute("SELECT value FROM campaign WHERE key = ?", (SEARCH_EXTENDS,)).fetchone() == ("1",)
+        db.execute("DELETE FROM campaign WHERE key = ?", (SEARCH_EXTENDS,))
+    store = Store.open_existing(store_path)
+    try:
+        assert not store.searches_extend()
+    finally:
+        store.close()
+    assert [cell.search.top for cell in search_cells(spec, extend=False)] == [None]
+    assert [cell.search.top for cell in search_cells(spec)] == [19]

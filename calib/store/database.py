@@ -25,6 +25,10 @@ from calib.store.schema import _MIGRATIONS, _REWRITES, _SCHEMA, STORE_FORMAT, ar
 from calib.store.sqlite import DAMAGED_FIX, StoreWriteError, Transaction, lock, open_checked, unlock
 
 
+#: campaign key written at creation by a calib whose k searches go on above high (calib.sweep.search)
+SEARCH_EXTENDS = "search_extends"
+
+
 class Store:
     """A campaign store on disk. Use :meth:`create_or_resume` to open one for a spec."""
 
@@ -105,7 +109,7 @@ class Store:
         values = {"name": self.path.stem, "spec_name": spec.name, "fingerprint": spec.fingerprint,
                   "spec": canonical_json(spec.raw), "root_seed": str(spec.root_seed),
                   "schema_version": str(SCHEMA_VERSION), "store_format": str(STORE_FORMAT),
-                  "plugins": ",".join(spec.plugins)}
+                  "plugins": ",".join(spec.plugins), SEARCH_EXTENDS: "1"}
         with self.transaction():
             self.db.executemany("INSERT INTO campaign (key, value) VALUES (?, ?)", sorted(values.items()))
 
@@ -154,6 +158,14 @@ class Store:
             return int(value)
         except (TypeError, ValueError):
             raise InputError(str(self.path), f"campaign setting {key} = {value!r} is not an integer", DAMAGED_FIX) from None
+
+    def searches_extend(self) -> bool:
+        """Whether this campaign's k searches go on above their high end when it fails (up to m - 1).
+
+        A store created before the extension (no :data:`SEARCH_EXTENDS` key) keeps the searches it
+        was run with, which stop at high: resumed or replayed, its verdicts stay what they were.
+        """
+        return self.meta().get(SEARCH_EXTENDS) == "1"
 
     def stored_spec(self) -> dict:
         """The spec the campaign was run with (the parsed TOML, as stored)."""

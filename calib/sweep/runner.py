@@ -303,8 +303,12 @@ class SearchCell:
         return [Trial(self.refs[j % width], self.projector, k, j // width, self.k_label) for j in range(count)]
 
 
-def search_cells(spec: Spec) -> list[SearchCell]:
-    """One :class:`SearchCell` per (size, projector, retrieval) of a search spec, in spec order."""
+def search_cells(spec: Spec, extend: bool = True) -> list[SearchCell]:
+    """One :class:`SearchCell` per (size, projector, retrieval) of a search spec, in spec order.
+
+    ``extend`` False keeps every search at its high end (a store created before the extension,
+    :meth:`calib.store.database.Store.searches_extend`); True lets the spec's ``extend`` decide.
+    """
     from calib.families import get
     from calib.sweep.kgrid import k_values, search_range
     from calib.sweep.search import KSearch
@@ -315,7 +319,7 @@ def search_cells(spec: Spec) -> list[SearchCell]:
         for params in cell.sizes:
             m = family.projected_dim(params)
             low, high = search_range(spec.k_grid, m)
-            top = m - 1 if spec.k_grid.extend else None  # above high: up to the largest reduction
+            top = m - 1 if extend and spec.k_grid.extend else None  # above high: up to the largest reduction
             label = k_values(spec.k_grid, family, params)[1][0]
             refs = [InstanceRef(cell.name, params, index, spec.root_seed) for index in range(cell.instances)]
             for choice in spec.projectors:
@@ -368,7 +372,7 @@ class SearchCoordinator(Coordinator):
 
     def _prepare(self) -> None:
         self.stored = self.store.stored_retrievals()
-        self.cells = search_cells(self.spec)
+        self.cells = search_cells(self.spec, extend=self.store.searches_extend())  # as the store was run
         self.progress = Progress(total=0)
         self.requested: set[str] = set()   # trial ids some search asked for
         self.reused = 0
