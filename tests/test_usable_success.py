@@ -6,7 +6,7 @@ import pytest
 from scipy.optimize import linprog, minimize
 
 from calib import projectors
-from calib.analysis.success import PRESETS, evaluate, make_predicate, saves_time
+from calib.analysis.success import PRESETS, evaluate, judge_records, make_predicate, saves_time
 from calib.conic import QP
 from calib.metrics import SCALE_FLOOR, record
 from calib.reduce.base import Context
@@ -17,7 +17,7 @@ from reduce_helpers import SOLVER, instance
 
 
 def _verdicts(records, predicate, kind="lp"):
-    return evaluate(pd.DataFrame(records).assign(status="ok", kind=kind), predicate).tolist()
+    return judge_records(records, predicate, kind)
 
 
 def _scaled_qp(qp: QP, factor: float) -> QP:

@@ -6,141 +6,8 @@ import argparse
 import json
 from pathlib import Path
 
+from calib.commands import options
 from calib.wording import fold, wrapped
-
-
-def add_predicate_options(parser: argparse.ArgumentParser) -> None:
-    """Options that choose the success predicate and the confidence target (shared with `probe`)."""
-    from calib.analysis.success import PRESETS
-
-    group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
-    group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
-                       help="default: a store written by a k search is read under its search's own [target]; otherwise "
-                            "'usable' for LPs, SDPs and QPs and 'distortion' for point sets (every kind gets a predicate "
-                            "that decides something on it). "
-                            "'usable': the verdict matches and "
-                            "the point of each retrieval meets --max-obj-error, --max-infeasibility and --max-sign-violation; "
-                            "'policy': usable and faster end to end than the original solved by its fastest method; "
-                            "'bound': the projected optimum is within --max-gap of the original; "
-                            "'classify': only the feasibility verdict must match; "
-                            "'distortion': point sets, worst pairwise distortion within --max-distortion; "
-                            "'clustering': the projected partition's cost on the original points within 1 + "
-                            "--max-cost-excess of the original partition's")
-    group.add_argument("--faster", action="store_true",
-                       help="on any preset: a trial also has to be faster end to end (sketch + projected solve + "
-                            "retrieval) than the fair baseline; depends on measured times")
-    group.add_argument("--max-gap", type=float, metavar="TAU", help="relative gap of the projected optimum (bound preset: 0.05)")
-    group.add_argument("--max-obj-error", type=float, metavar="TAU", help="objective error of the retrieved point relative to the objective's scale (usable preset: 0.05)")
-    group.add_argument("--max-infeasibility", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
-    group.add_argument("--max-sign-violation", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
-    group.add_argument("--max-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
-    group.add_argument("--max-cost-excess", type=float, metavar="TAU", help="clustering: cluster_cost_ratio - 1 of the projected partition (clustering preset: 0.05)")
-    group.add_argument("--delta", type=float, help="target success rate is 1 - delta (default 0.1, or the k search's own)")
-    group.add_argument("--confidence", type=float,
-                       help="confidence of the lower bound and the intervals (default 0.95, or the k search's own)")
-
-
-def add_analysis_options(parser: argparse.ArgumentParser) -> None:
-    """The predicate options plus the tolerance ladder and the eps of the bounds (tables, report)."""
-    add_predicate_options(parser)
-    group = parser.add_argument_group("tolerance ladder and theory")
-    group.add_argument("--tau", type=float, nargs="+", metavar="TAU",
-                       help="a ladder of primary tolerances: one analysis per value, each setting the tolerance(s) of the preset "
-                            "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
-    group.add_argument("--policy", action="store_true",
-                       help="add the policy answer per cell: the k with the smallest median end-to-end time among the k "
-                            "where usable-and-faster trials reach the target, or 'no k saves time at this size' (rests on "
-                            "measured times, so the table then differs between runs)")
-    group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
-                                                 "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
-    group.add_argument("--solver-errors", default="exclude", metavar="{exclude,fail}",
-                       help="projected solves that end in a solver error: 'exclude' counts them in their own column and "
-                            "leaves them out of the rates (default); 'fail' counts them as failures (strict reading). "
-                            "A time limit is always a failure")
-
-
-def predicate_from(args: argparse.Namespace, default="usable", default_confidence=None):
-    """(predicate, confidence) from the parsed options; ``default`` (a preset name or a predicate) when
-    --preset is not given, ``default_confidence`` (else 0.1 at 0.95) for --delta and --confidence not given."""
-    from calib.analysis.success import make_predicate
-    from calib.analysis.tables import Confidence
-
-    predicate = make_predicate(args.preset or default, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
-                               feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion,
-                               cost=getattr(args, "max_cost_excess", None))
-    stated = default_confidence or Confidence()
-    return predicate, Confidence(delta=stated.delta if args.delta is None else args.delta,
-                                 level=stated.level if args.confidence is None else args.confidence)
-
-
-def search_spec(raw_spec: dict, store_path):
-    """The parsed spec of a store written by a k search, else None (also when it no longer parses here)."""
-    from calib.errors import InputError
-    from calib.sweep.spec import parse_spec
-
-    k = raw_spec.get("sweep", {}).get("k")
-    if not (isinstance(k, dict) and "search" in k):
-        return None
-    try:
-        return parse_spec(raw_spec, source=str(store_path))
-    except InputError:
-        return None
-
-
-def store_defaults(store, rows) -> tuple:
-    """(default predicate, default confidence, parsed search spec or None) of a store: a k search's
-    own [target], else :func:`calib.analysis.success.default_predicate` of the kinds it holds."""
-    from calib.analysis.success import default_predicate
-    from calib.analysis.tables import Confidence
-
-    spec = search_spec(store.stored_spec(), store.path)
-    if spec is not None:
-        return spec.target.predicate, Confidence(spec.target.delta, spec.target.confidence), spec
-    return default_predicate(set(rows["kind"]) if not rows.empty else set()), Confidence(), None
-
-
-def search_verdicts(spec, store):
-    """The store's k searches replayed (:func:`calib.sweep.runner.replay_searches`) as the
-    :class:`calib.analysis.tables.SearchVerdicts` a table states for the searched cells."""
-    from calib.analysis.tables import Confidence, SearchVerdicts
-    from calib.sweep.runner import replay_searches
-
-    cells = replay_searches(spec, store)
-    verdicts = {}
-    for cell in cells:
-        search = cell.search
-        verdict = (search.safe_k, search.reason) if search.done and not cell.interrupted else \
-            (None, cell.interrupted or "search not finished")
-        for ref in cell.refs:
-            verdicts[(ref.instance_id, cell.projector.label, cell.retrieval)] = verdict
-    target = spec.target
-    return SearchVerdicts(target.predicate, Confidence(target.delta, target.confidence), verdicts), cells
-
-
-def analyse(args: argparse.Namespace, policy: bool = False):
-    """(table, tidy rows, stored spec, replayed searches or None) of ``args.store`` under the parsed analysis
-    options (defaults from the store: :func:`store_defaults`); a store written by a k search states the
-    searches' claims in the analysis of their own rule; the policy answer is added when ``policy`` or
-    ``--policy`` asks for it."""
-    from calib.analysis.tables import build_table, load_rows
-    from calib.errors import InputError
-    from calib.sweep.store import Store
-
-    if args.eps is not None and not 0.0 < args.eps < 1.0:
-        raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")
-    store = Store.open_existing(args.store)
-    try:
-        rows = load_rows(store)
-        default, stated, searched = store_defaults(store, rows)
-        predicate, confidence = predicate_from(args, default, stated)
-        verdicts, cells = search_verdicts(searched, store) if searched is not None else (None, None)
-        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows,
-                            solver_errors=getattr(args, "solver_errors", "exclude"),
-                            policy=policy or getattr(args, "policy", False), searches=verdicts)
-        spec = store.stored_spec()
-    finally:
-        store.close()
-    return table, rows, spec, (searched, cells) if searched is not None else None
 
 
 def register(subparsers) -> None:
@@ -163,7 +30,7 @@ def register(subparsers) -> None:
                         help="write the certified rule per class (k = f m, k = a + C ln n, scope, confidence, the size and "
                              "feature ranges it holds for) as JSON for pipelines (schema: calib/schemas/k-rule.v1.json); "
                              "`calib.atlas.rule_k(FILE, ...)` answers a new model from it")
-    add_analysis_options(parser)
+    options.add_analysis_options(parser)
     parser.set_defaults(func=run)
 
 
@@ -177,7 +44,11 @@ def run(args: argparse.Namespace) -> int:
         check_target(path, option)
     # one analysis for the table and the report: the report needs the policy answer, the table holds it
     # only when asked (it rests on measured times)
-    table, rows, spec, searched = analyse(args, policy=args.html is not None)
+    from calib.analysis.campaign import analyse_store
+
+    keywords = options.analysis_keywords(args)
+    keywords["policy"] |= args.html is not None
+    table, rows, spec, searched = analyse_store(args.store, options.predicate_options(args), **keywords)
     timings = timing_frame(rows, table["analyses"][0])
     written = table if args.policy else strip_policy(table)
     write_table(written, args.json, args.csv)
@@ -204,7 +75,7 @@ def run(args: argparse.Namespace) -> int:
 def search_summary(spec, cells) -> str:
     """For a store written by a k search: the k values above are the ones the search tested, and its own
     verdicts (replayed from the stored trials under the spec's [target]) follow."""
-    from calib.commands.run import search_report
+    from calib.analysis.campaign import search_report
 
     return "\n" + fold(["the k values above are those a k search tested (counts per tested k); the table states the "
                         "search's own claims under its [target]; the search itself, replayed from the stored trials:"]

@@ -325,24 +325,16 @@ def search_cells(spec: Spec) -> list[SearchCell]:
 
 def trial_successes(rows: list[dict], kinds: dict[str, str], predicate) -> dict[str, dict[str, bool]]:
     """trial id -> retrieval -> success of stored trial rows under ``predicate``, in one
-    :func:`calib.analysis.success.evaluate` call; ``kinds`` maps each row's instance id to its kind."""
+    :func:`calib.analysis.success.judge_records` call; ``kinds`` maps each row's instance id to its kind."""
     import json
 
-    import pandas as pd
+    from calib.analysis.success import judge_records
 
-    from calib.analysis.success import evaluate
-    from calib.metrics import FIELDS
-
-    records = []
-    for row in rows:
-        metrics = json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}
-        record = {name: metrics.get(name) for name in FIELDS}  # as calib.analysis.tables.load_rows reads them
-        record.update(status=row["status"], kind=kinds[row["instance_id"]])
-        records.append(record)
-    frame = pd.DataFrame.from_records(records, columns=["status", "kind", *FIELDS])
+    records = [{**(json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}),
+                "status": row["status"], "kind": kinds[row["instance_id"]]} for row in rows]
     successes: dict[str, dict[str, bool]] = {}
-    for row, success in zip(rows, evaluate(frame, predicate).tolist()):
-        successes.setdefault(row["trial_id"], {})[row["retrieval"]] = bool(success)
+    for row, success in zip(rows, judge_records(records, predicate)):
+        successes.setdefault(row["trial_id"], {})[row["retrieval"]] = success
     return successes
 
 
