@@ -440,7 +440,7 @@ def verdict_lines(document: dict) -> list[str]:
     classes apart), one verdict line per pair."""
     from calib.analysis.tables import class_namer
 
-    namers = {family: class_namer([group for group in document["groups"] if group["family"] == family])
+    namers = {family: class_namer([group["class_params"] for group in document["groups"] if group["family"] == family])
               for family in {group["family"] for group in document["groups"]}}
     lines = []
     for group in document["groups"]:

@@ -153,7 +153,7 @@ def class_entries(analysis: dict, query: Query) -> list[dict]:
         offered = sorted({f"{entry['family']} / {entry['projector']}" for entry in analysis["entries"]})
         raise InputError("lookup", f"no entries for family {query.family!r} with projector {query.projector!r}",
                          f"the table has: {'; '.join(offered)}")
-    name = class_namer(found)
+    name = class_namer([entry["class_params"] for entry in found])
     classes = sorted({f"retrieval {entry['retrieval']} {name(entry['class_params'])}".strip() for entry in found})
     if len(classes) > 1:
         raise InputError("lookup", f"{len(classes)} classes match: {'; '.join(classes)}",

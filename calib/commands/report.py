@@ -43,6 +43,7 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.analysis.records import SafeKTable
     from calib.analysis.report import build_report
     from calib.analysis.timing import timing_frame
     from calib.analysis.campaign import analyse_store
@@ -58,7 +59,7 @@ def run(args: argparse.Namespace) -> int:
         keywords = {**options.analysis_keywords(args), "policy": True}
         table, rows, spec, _ = analyse_store(args.store, options.predicate_options(args), **keywords)
         timings = timing_frame(rows, table["analyses"][0])
-    write_file(args.html, build_report(table, timings, spec), "--html")
+    write_file(args.html, build_report(SafeKTable.from_dict(table), timings, spec), "--html")
     print(f"wrote {args.html}")
     return 0
 
