@@ -22,12 +22,16 @@ about these instances on this machine, not a proof.
 from __future__ import annotations
 
 from dataclasses import replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
 from calib.analysis.stats import clopper_pearson_lower
 from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Entry
 
 #: the answer of a cell where no swept k is usable and faster often enough
 NO_SAVING = "no k saves time at this size"
@@ -94,12 +98,13 @@ def entry_block(cell: pd.DataFrame, confidence) -> dict:
     return {"policy": block}
 
 
-def policy_text(entry: dict) -> str:
-    """One line for text views (tables, lookup): the policy k or the explicit no-saving answer."""
-    block = entry.get("policy")
-    if block is None:
+def policy_text(entry: "Entry") -> str:
+    """One line for text views (tables): the policy k of a :class:`calib.analysis.records.Entry`, or the
+    explicit no-saving answer."""
+    block = entry.policy
+    if not block:
         return "policy k: not computed (ask with --policy)"
-    if block["k"] is None:
+    if block.k is None:
         return f"policy k: none, {NO_SAVING}"
-    return f"policy k = {block['k']} (median {block['time_median_s']:.3g} s end to end against the baseline's " \
-           f"{block['baseline_median_s']:.3g} s, speed-up {block['speedup']:.3g}x)"
+    return f"policy k = {block.k} (median {block.time_median_s:.3g} s end to end against the baseline's " \
+           f"{block.baseline_median_s:.3g} s, speed-up {block.speedup:.3g}x)"
