@@ -36,6 +36,7 @@ def register(subparsers) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from calib.analysis.compare import Settings, build_comparison, verdict_lines
+    from calib.analysis.records import Comparison
     from calib.analysis.tablefile import dumps
     from calib.analysis.rows import load_rows
     from calib.analysis.campaign import store_defaults
@@ -70,7 +71,8 @@ def run(args: argparse.Namespace) -> int:
                          "sweep at least two projectors over the same instances")
     from calib.wording import fold
 
-    print(fold(verdict_lines(document) + [document["notice"]]))
+    typed = Comparison.from_dict(document)
+    print(fold(verdict_lines(typed) + [typed.notice]))
     if args.json is not None:
         write_file(args.json, dumps(document), "--json")
         print(f"wrote {args.json}")
