@@ -34,7 +34,7 @@ def build_parser() -> argparse.ArgumentParser:
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for module in sorted(pkgutil.iter_modules(commands.__path__), key=lambda mod: mod.name):
         command = importlib.import_module(f"calib.commands.{module.name}")
-        if hasattr(command, "register"):  # calib.commands.options is shared by the commands, not one of them
+        if hasattr(command, "register"):  # options and searches are shared by the commands, not commands
             command.register(subparsers)
     return parser
 

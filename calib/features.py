@@ -37,7 +37,7 @@ feature over the cell's instances (:func:`median_features`).
 
 from __future__ import annotations
 
-from typing import Callable, Optional
+from typing import Any, Callable, Optional
 
 import numpy as np
 import scipy.sparse as sp
@@ -75,7 +75,7 @@ def _points(problem):
 SKETCHED: dict[str, Callable] = {"lp": _lp, "sdp": _lp, "qp": _qp, "points": _points, "clustering": _points, "milp": _lp}
 
 
-def spectral_norm(matrix) -> float:
+def spectral_norm(matrix: np.ndarray | sp.spmatrix | sp.sparray) -> float:
     """‖M‖₂: ARPACK's largest singular value for sparse or dense M (a few products with M and Mᵀ,
     never a full SVD), exact for M with fewer than 3 rows or columns."""
     if min(matrix.shape) < 3:
@@ -85,7 +85,7 @@ def spectral_norm(matrix) -> float:
     return float(svds(matrix.astype(float), k=1, return_singular_vectors=False, random_state=0)[0])
 
 
-def matrix_features(matrix, svd_flops: Optional[float] = None) -> dict:
+def matrix_features(matrix: np.ndarray | sp.spmatrix | sp.sparray, svd_flops: Optional[float] = None) -> dict:
     """The features of one m x N matrix (module docstring); JSON-ready. ``svd_flops`` is the largest
     m N min(m, N) for which rank and row coherence are computed (default :data:`SVD_FLOPS`, read at the call).
 
@@ -112,8 +112,9 @@ def matrix_features(matrix, svd_flops: Optional[float] = None) -> dict:
                        "row_coherence": round(float(m / rank * leverage.max()), 6)}
 
 
-def instance_features(kind: str, problem, svd_flops: Optional[float] = None) -> dict:
-    """The features of an instance's sketched matrix (module docstring)."""
+def instance_features(kind: str, problem: Any, svd_flops: Optional[float] = None) -> dict:
+    """The features of an instance's sketched matrix (module docstring): the matrix of :data:`SKETCHED`
+    for ``kind`` (an LP's or SDP's A, a QP's, the point set's coordinates), ``problem`` of that kind."""
     return matrix_features(SKETCHED[kind](problem), svd_flops)
 
 
@@ -139,7 +140,7 @@ def median_features(records: list[Optional[dict]]) -> Optional[dict]:
     return medians | {"instances": len(present)}
 
 
-def stored_features(kind: str, problem) -> str:
+def stored_features(kind: str, problem: Any) -> str:
     """The JSON text stored for an instance: its features, or the reason they are missing."""
     import json
 

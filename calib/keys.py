@@ -15,9 +15,23 @@ from typing import Any
 import numpy as np
 
 
-def canonical_json(value: Any) -> str:
-    """Serialise ``value`` with sorted keys and no whitespace: equal values give equal text."""
-    return json.dumps(value, sort_keys=True, separators=(",", ":"), default=_json_default)
+def canonical_json(value: Any, *, allow_nan: bool = True) -> str:
+    """Serialise ``value`` with sorted keys and no whitespace: equal values give equal text.
+
+    The one canonical JSON of the package: stable keys and identifiers hash it, stored parameters
+    and solver options are written in it, and a safe-k table's checksum is the sha256 of it
+    (:func:`calib.analysis.tablefile.checksum`, with ``allow_nan=False``: a table holds no NaN, and
+    one that would is refused with ``ValueError``). NumPy scalars and arrays are written as the
+    Python numbers and lists they hold.
+
+    >>> canonical_json({"b": [1, 2.5], "a": np.int64(3)})
+    '{"a":3,"b":[1,2.5]}'
+    >>> canonical_json({"x": float("nan")}, allow_nan=False)
+    Traceback (most recent call last):
+    ...
+    ValueError: Out of range float values are not JSON compliant
+    """
+    return json.dumps(value, sort_keys=True, separators=(",", ":"), allow_nan=allow_nan, default=_json_default)
 
 
 def _json_default(value: Any) -> Any:

@@ -57,7 +57,7 @@ for every class and the analysis never needs to know which.
 from __future__ import annotations
 
 import math
-from typing import NamedTuple, Optional
+from typing import Any, NamedTuple, Optional
 
 import numpy as np
 
@@ -254,8 +254,12 @@ def relative(difference: float, scale_value: float) -> Optional[float]:
     return difference / float(scale_value)
 
 
-def clean(value):
-    """JSON-safe value: numpy scalars to Python, non-finite floats to None."""
+def clean(value: Any) -> Any:
+    """JSON-safe value: numpy scalars to Python, non-finite floats to None (other values unchanged).
+
+    >>> clean(np.float32(0.5)), clean(np.int64(3)), clean(np.bool_(True)), clean(float("inf")), clean("x")
+    (0.5, 3, True, None, 'x')
+    """
     if isinstance(value, (np.bool_, bool)):
         return bool(value)
     if isinstance(value, (np.integer,)):
@@ -265,7 +269,7 @@ def clean(value):
     return value
 
 
-def record(**values) -> dict:
+def record(**values: Any) -> dict:
     """A complete metrics record: every field of :data:`FIELDS`, missing ones as None."""
     unknown = set(values) - set(FIELDS)
     if unknown:

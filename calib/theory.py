@@ -25,6 +25,7 @@ from typing import Callable
 import numpy as np
 from numpy.typing import ArrayLike
 
+from calib.checks import is_integer, is_real
 from calib.errors import InputError
 
 #: Total failure probability used by :func:`chi2_union` when none is given (our default).
@@ -372,29 +373,28 @@ MAX_K = 2**53
 
 def check_points(n: object, where: str = "n") -> int:
     """``n`` as an int if it counts at least 2 points, else :class:`InputError` naming ``where``."""
-    if isinstance(n, bool) or not isinstance(n, (int, np.integer)) or n < 2:
+    if not is_integer(n) or n < 2:
         raise InputError(where, f"needs at least 2 points, got {n!r}", "count the points the projection must keep")
     return int(n)
 
 
 def check_eps(eps: object, where: str = "eps") -> float:
     """``eps`` as a float if it lies in (0, 1), else :class:`InputError` naming ``where``."""
-    if isinstance(eps, bool) or not isinstance(eps, (int, float, np.floating)) or not 0.0 < float(eps) < 1.0:
+    if not is_real(eps) or not 0.0 < float(eps) < 1.0:
         raise InputError(where, f"must lie in (0, 1), got {eps!r}", "pick a distortion such as 0.2")
     return float(eps)
 
 
 def check_k(k: object, where: str = "k") -> int:
     """``k`` as an int if it is a positive integer up to :data:`MAX_K`, else :class:`InputError`."""
-    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or not 1 <= k <= MAX_K:
+    if not is_integer(k) or not 1 <= k <= MAX_K:
         raise InputError(where, f"must be an integer in 1..2**53, got {k!r}", "use k >= 1")
     return int(k)
 
 
 def check_failure(failure: object, where: str = "failure") -> float:
     """``failure`` as a float if it lies in (0, 1), else :class:`InputError` naming ``where``."""
-    if isinstance(failure, bool) or not isinstance(failure, (int, float, np.floating)) \
-            or not 0.0 < float(failure) < 1.0:
+    if not is_real(failure) or not 0.0 < float(failure) < 1.0:
         raise InputError(where, f"must lie in (0, 1), got {failure!r}", "use a probability such as 0.05")
     return float(failure)
 

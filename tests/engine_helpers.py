@@ -42,9 +42,10 @@ def write_spec(folder: Path, name: str = "tiny", replicates: int = 4, text: str 
 
 def table_bytes(store_path: Path) -> bytes:
     """JSON and CSV safe-k tables of a store (default predicate), concatenated."""
-    from calib.analysis.success import make_predicate
-    from calib.analysis.tables import Confidence, build_table, write_table
-    from calib.sweep.store import Store
+    from calib.analysis.tables import build_table, write_table
+    from calib.store.database import Store
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import make_predicate
 
     store = Store.open_existing(store_path)
     try:

@@ -11,12 +11,12 @@ import os
 import signal
 import sys
 
-from calib.sweep import store as store_module
+from calib.store import database as store_module
 
 _armed = {"kill": False}
 
 
-class _KillingTransaction(store_module._Transaction):
+class _KillingTransaction(store_module.Transaction):
     def __exit__(self, kind, value, traceback):
         if _armed["kill"]:
             os.kill(os.getpid(), signal.SIGKILL)
@@ -40,7 +40,7 @@ def _wrap(method_name: str, count: int, before_commit: bool) -> None:
 
 def main() -> int:
     mode, count, cli_args = sys.argv[1], int(sys.argv[2]), sys.argv[3:]
-    store_module._Transaction = _KillingTransaction
+    store_module.Transaction = _KillingTransaction
     target, when = {"mid-trial-transaction": ("add_trial_rows", True), "after-trial-commit": ("add_trial_rows", False),
                     "mid-instance-transaction": ("add_instance", True), "after-instance-commit": ("add_instance", False)}[mode]
     _wrap(target, count, when)

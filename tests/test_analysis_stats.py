@@ -10,7 +10,7 @@ from scipy import special, stats
 
 from calib.analysis.law import fit_law
 from calib.analysis.logistic import fit_logistic, separation
-from calib.analysis.stats import clopper_pearson_interval, clopper_pearson_lower, wilson_lower
+from calib.verdicts.stats import clopper_pearson_interval, clopper_pearson_lower, wilson_lower
 
 COUNTS = [(x, n) for n in (1, 5, 10, 30, 97) for x in sorted({0, 1, n // 3, n // 2, n - 1, n})]
 

@@ -10,9 +10,10 @@ from __future__ import annotations
 import pandas as pd
 import pytest
 
-from calib.analysis.success import PRESETS, evaluate, make_predicate, primary_tau, with_tau
-from calib.analysis.tables import Confidence, build_analysis
+from calib.analysis.tables import build_analysis
 from calib.errors import InputError
+from calib.verdicts.saferule import Confidence
+from calib.verdicts.success import PRESETS, evaluate, make_predicate, primary_tau, with_tau
 
 
 def _rows(*records):

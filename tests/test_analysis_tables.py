@@ -14,12 +14,13 @@ from scipy import stats
 from analysis_campaign import run_campaign_in
 from calib import theory
 from calib.analysis.lookup import Query, k_for, success_for
-from calib.analysis.success import make_predicate
 from calib.analysis.tablefile import dumps, read_table, schema
-from calib.analysis.tables import Confidence, build_table, table_to_frame, write_table
+from calib.analysis.tables import build_table, table_to_frame, write_table
 from calib.cli import main
 from calib.errors import InputError
-from calib.sweep.store import Store
+from calib.store.database import Store
+from calib.verdicts.saferule import Confidence
+from calib.verdicts.success import make_predicate
 
 LADDER = [0.01, 0.05]
 
@@ -227,7 +228,7 @@ def test_tables_command_writes_timings_apart(store_path, tmp_path, capsys):
 def test_policy_table_validates_recounts_and_shows_in_lookup_and_tables(store_path, tmp_path, capsys):
     # The policy block is recounted here from the stored rows (pandas, not calib's aggregation), its
     # bound is scipy's beta quantile (Clopper-Pearson), and the schema is checked by jsonschema.
-    from calib.analysis.tables import load_rows
+    from calib.analysis.rows import load_rows
 
     store = Store.open_existing(store_path)
     try:

@@ -16,11 +16,12 @@ from scipy import optimize, stats
 
 from analysis_campaign import run_spec
 from calib import projectors, theory
-from calib.analysis.success import make_predicate
-from calib.analysis.tables import Confidence, build_analysis, build_table
+from calib.analysis.tables import build_analysis, build_table
 from calib.conic import PointSet
 from calib.reduce.points import PointsHandler
-from calib.sweep.store import Store
+from calib.store.database import Store
+from calib.verdicts.saferule import Confidence
+from calib.verdicts.success import make_predicate
 
 EPS = 0.5
 REPLICATES = 30  # 30 of 30 successes give a one-sided 95% Clopper-Pearson bound of 0.905 >= 0.9

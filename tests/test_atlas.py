@@ -17,14 +17,15 @@ import pytest
 
 from analysis_campaign import run_campaign_in
 from calib import atlas
-from calib.analysis.success import make_predicate
 from calib.analysis.tablefile import schema
-from calib.analysis.tables import Confidence, build_table, write_table
+from calib.analysis.tables import build_table, write_table
 from calib.cli import main
 from calib.errors import InputError
 from calib.families import get
+from calib.store.database import Store
 from calib.sweep.spec import load_spec
-from calib.sweep.store import Store
+from calib.verdicts.saferule import Confidence
+from calib.verdicts.success import make_predicate
 
 ROOT = Path(__file__).resolve().parent.parent
 SPECS = (ROOT / "instances" / "atlas.toml", ROOT / "instances" / "atlas-points.toml")

@@ -17,10 +17,11 @@ from scipy import stats
 
 from calib.analysis import bounds
 from calib.analysis.cells import cell_stats
-from calib.analysis.scope import (Anova, cell_counts, class_lower_bound, instances_needed, pooled_anova,
+from calib.verdicts.scope import (Anova, cell_counts, class_lower_bound, instances_needed, pooled_anova,
                                   refusal)
-from calib.analysis.success import make_predicate
-from calib.analysis.tables import Confidence, build_analysis, class_law
+from calib.analysis.tables import build_analysis, class_law
+from calib.verdicts.saferule import Confidence
+from calib.verdicts.success import make_predicate
 from class_simulation import GRID, binary_icc, score_design
 
 CAMPAIGNS = 500
@@ -219,7 +220,7 @@ def test_design_advice_matches_the_exact_binomial_bound(instances, replicates):
     # Reference: scipy.stats.binomtest exact interval (one-sided 95% = lower end of two-sided 90%).
     # For the instances: all N = instances x replicates trials succeeding must reach 0.9. For the class,
     # when each instance decides alone: all instances succeeding must reach 0.9.
-    from calib.analysis.scope import design_advice
+    from calib.verdicts.scope import design_advice
 
     def reaches(n):
         return stats.binomtest(n, n).proportion_ci(confidence_level=0.90, method="exact").low >= 0.9
@@ -249,9 +250,9 @@ def test_a_stored_solver_error_is_reported_by_run_and_kept_out_of_the_rate(tmp_p
     import sqlite3
 
     from analysis_campaign import run_spec
-    from calib.commands.run import count_solver_errors
-    from calib.sweep.store import Store
     from calib.analysis.tables import build_table
+    from calib.store.reading import count_solver_errors
+    from calib.store.database import Store
 
     spec = ('[campaign]\nname = "solver-error"\nroot_seed = 3\nreplicates = 3\n\n[[families]]\nname = "lp-planted"\n'
             'sizes = [{rows = 4, cols = 8}]\n\n[sweep]\nprojectors = ["gaussian"]\nk = [4]\nretrievals = ["basis-lstsq"]\n')

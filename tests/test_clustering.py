@@ -15,7 +15,6 @@ from sklearn.cluster import KMeans
 from sklearn.metrics import adjusted_rand_score
 
 from calib import projectors
-from calib.analysis.success import PRESETS, evaluate, make_predicate
 from calib.cli import main
 from calib.clustering import ClusteringProblem, disagreement, kmeans_cost
 from calib.errors import InputError
@@ -23,6 +22,7 @@ from calib.families import get
 from calib.families.clustering import DIGITS_SHAPE, digits, gaussian_mixture
 from calib.reduce import HANDLERS
 from calib.solvers.kmeans import SizedAssignment, cluster, iterate, nearest, squared_distances
+from calib.verdicts.success import PRESETS, evaluate, make_predicate
 
 FOREVER = 1e9  # a deadline no test reaches (time.perf_counter() seconds)
 

@@ -17,8 +17,8 @@ from scipy import special, stats
 from analysis_campaign import run_spec
 from calib.analysis.compare import (Settings, class_test, compare_pair, instance_counts, instances_for_any_detection,
                                     mcnemar_exact, sign_flip_pvalue)
-from calib.analysis.tables import Confidence
 from calib.cli import main
+from calib.verdicts.saferule import Confidence
 
 CONFIDENCE = Confidence(delta=0.1, level=0.95)
 

@@ -15,9 +15,9 @@ import pytest
 from engine_faults import fault_plugin  # noqa: F401  (fixture)
 from engine_helpers import search_verdicts, table_bytes, trial_ids, write_search_spec, write_spec
 
+from calib.store.schema import STORE_FORMAT
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
-from calib.sweep.store import STORE_FORMAT
 
 
 @pytest.fixture(scope="module")

@@ -20,9 +20,9 @@ from engine_helpers import table_bytes, write_spec
 
 from calib.cli import main
 from calib.metrics import FIELDS
+from calib.store.schema import STORE_FORMAT
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
-from calib.sweep.store import STORE_FORMAT
 
 
 @pytest.fixture(scope="module")

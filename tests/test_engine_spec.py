@@ -20,8 +20,9 @@ from hypothesis import strategies as st
 
 from calib.cli import main
 from calib.errors import InputError
-from calib.sweep.spec import Spec, SpecError, parse_spec
-from calib.sweep.trial import count_trials, expand
+from calib.spec_problems import SpecError
+from calib.sweep.expansion import count_trials, expand
+from calib.sweep.spec import Spec, parse_spec
 
 BAD_SPEC = """
 [campaign]

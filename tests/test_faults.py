@@ -32,7 +32,7 @@ from engine_faults import fault_plugin  # noqa: F401  (fixture)
 from engine_helpers import row_counts, table_bytes, write_spec
 
 from calib.cli import main
-from calib.sweep import store as store_module
+from calib.store import database as store_module
 from calib.sweep.runner import run_campaign
 from calib.sweep.spec import load_spec
 
@@ -271,8 +271,8 @@ def _sandbox_children() -> list[int]:
 @pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc to find worker processes")
 def test_a_worker_that_dies_while_idle_is_replaced_without_blaming_the_next_task(tmp_path):
     from calib.sweep.executors import LocalPool
+    from calib.sweep.expansion import expand
     from calib.sweep.tasks import OriginalTask
-    from calib.sweep.trial import expand
 
     spec = load_spec(write_spec(tmp_path))
     refs = [ref for ref, _ in expand(spec)][:2]

@@ -66,12 +66,13 @@ def test_a_campaign_stores_features_once_per_instance_and_the_table_carries_thei
 
     from engine_helpers import write_spec
 
-    from calib.analysis.success import make_predicate
-    from calib.analysis.tables import Confidence, build_table, table_to_frame
+    from calib.analysis.tables import build_table, table_to_frame
+    from calib.store.database import Store
+    from calib.sweep.expansion import instance_refs
     from calib.sweep.runner import run_campaign
     from calib.sweep.spec import load_spec
-    from calib.sweep.store import Store
-    from calib.sweep.trial import instance_refs
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import make_predicate
 
     spec = load_spec(write_spec(tmp_path, replicates=1))
     summary = run_campaign(spec, tmp_path / "out", inline=True)
@@ -110,11 +111,13 @@ def test_a_store_without_features_gives_entries_without_them_and_migrates_on_res
 
     from engine_helpers import write_spec
 
-    from calib.analysis.success import make_predicate
-    from calib.analysis.tables import Confidence, build_table
+    from calib.analysis.tables import build_table
+    from calib.store.database import Store
+    from calib.store.schema import STORE_FORMAT, _MIGRATIONS
     from calib.sweep.runner import run_campaign
     from calib.sweep.spec import load_spec
-    from calib.sweep.store import _MIGRATIONS, STORE_FORMAT, Store
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import make_predicate
 
     # the format that added the features column; the store below is rolled back to the one before it
     added = next(version for version, columns in _MIGRATIONS.items() if ("instances", "features", "TEXT") in columns)

@@ -18,12 +18,14 @@ from scipy import stats
 import jsonschema
 
 from calib import atlas
-from calib.analysis.classrule import trials_per_unit_needed, units_rule
+from calib.analysis.classrule import units_rule
 from calib.analysis.tablefile import schema
 from calib.cli import main
 from calib.families import get
 from calib.families.lp_real import NETLIB_DIR
-from calib.sweep.spec import k_values, load_spec
+from calib.sweep.kgrid import k_values
+from calib.sweep.spec import load_spec
+from calib.verdicts.stats import trials_per_unit_needed
 
 SC = ("sc50a", "sc105", "sc205")
 

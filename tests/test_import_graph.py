@@ -1,4 +1,4 @@
-"""calib's modules import each other without cycles.
+"""calib's modules import each other without cycles, and only downwards through the layers.
 
 A cycle makes the outcome depend on which module is imported first (a name half-defined when the
 other module reads it). The check walks the import statements of every module of the package
@@ -6,6 +6,14 @@ other module reads it). The check walks the import statements of every module of
 do not count) and looks for strongly connected components (Tarjan 1972); a ``from package import
 module`` counts as an import of that module. Each module of a cycle broken before is also imported
 alone in a fresh interpreter.
+
+The layer check (docs/layers.md) places every module in one layer of :data:`LAYERS`, lowest first,
+by the longest dotted prefix listed; a module may import modules of lower layers and of its own
+unit (the prefix that placed it). Between two units of one layer an import is allowed only in the
+layers marked open (foundation, problems: small modules of one concept, kept acyclic by the cycle
+check); the engine and the analysis never import each other, nor families and reduce, nor one
+command module another (the modules the commands share, options and searches, sit in the layer
+below them and import no command). The failure message lists every forbidden edge.
 """
 
 from __future__ import annotations
@@ -18,6 +26,63 @@ from pathlib import Path
 import pytest
 
 PACKAGE = Path(__file__).resolve().parents[1] / "calib"
+
+#: (layer, open: its units may import each other, units), lowest layer first (docs/layers.md)
+LAYERS = (
+    ("foundation", True, ("calib", "calib.checks", "calib.errors", "calib.keys", "calib.wording", "calib.outputs", "calib.metrics",
+                          "calib.features", "calib.spec_problems")),
+    ("problems", True, ("calib.problems", "calib.conic", "calib.mps_scan", "calib.clustering", "calib.milp",
+                        "calib.theory")),
+    ("projectors", False, ("calib.projectors",)),
+    ("solvers", False, ("calib.solvers",)),
+    ("families and reduce", False, ("calib.families", "calib.reduce")),
+    ("instance files", False, ("calib.instance_io",)),
+    ("trial", False, ("calib.trial",)),
+    ("store", False, ("calib.store",)),
+    ("verdicts", False, ("calib.verdicts",)),
+    ("engine and analysis", False, ("calib.sweep", "calib.analysis")),
+    ("library answers", False, ("calib.atlas",)),
+    ("command support", False, ("calib.commands.options", "calib.commands.searches")),
+    ("commands", False, ("calib.commands", "calib.commands.*")),
+    ("cli", True, ("calib.cli", "calib.__main__")),
+)
+
+
+def _place(module: str) -> tuple[int, str]:
+    """(layer index, unit) of ``module``: the longest unit of :data:`LAYERS` that is it or a package
+    above it; ``calib.commands.*`` makes each command module a unit of its own."""
+    best = None
+    for index, (_, _, units) in enumerate(LAYERS):
+        for unit in units:
+            if unit.endswith(".*"):
+                package = unit[:-2]
+                if module.startswith(package + "."):
+                    candidate = (len(package) + 1, index, package + "." + module[len(package) + 1:].split(".")[0])
+                else:
+                    continue
+            elif module == unit or module.startswith(unit + "."):
+                candidate = (len(unit), index, unit)
+            else:
+                continue
+            if best is None or candidate[0] > best[0]:
+                best = candidate
+    if best is None:
+        raise KeyError(f"{module} has no layer: add it to LAYERS in tests/test_import_graph.py and docs/layers.md")
+    return best[1], best[2]
+
+
+def forbidden_edges(graph: dict[str, set[str]]) -> list[str]:
+    """Every import of ``graph`` (module -> modules it imports) that the layer order forbids, as text."""
+    found = []
+    for module in sorted(graph):
+        layer, unit = _place(module)
+        for imported in sorted(graph[module]):
+            other_layer, other_unit = _place(imported)
+            upward = other_layer > layer
+            sideways = other_layer == layer and other_unit != unit and not LAYERS[layer][1]
+            if upward or sideways:
+                found.append(f"{module} ({LAYERS[layer][0]}) -> {imported} ({LAYERS[other_layer][0]})")
+    return found
 
 
 def _modules() -> dict[str, Path]:
@@ -116,7 +181,42 @@ def test_no_module_of_calib_is_part_of_an_import_cycle():
     assert _cycles(graph) == []
 
 
-@pytest.mark.parametrize("module", ["calib.problems", "calib.solvers.highs", "calib.sweep.plugins", "calib.sweep.tasks"])
+def test_the_layer_check_finds_an_upward_and_a_sideways_import():
+    graph = {"calib.store.database": {"calib.sweep.spec", "calib.errors"}, "calib.sweep.spec": {"calib.analysis.tables"},
+             "calib.commands.tables": {"calib.commands.run", "calib.analysis.tables"}, "calib.commands.run": set(),
+             "calib.analysis.tables": {"calib.store.database"}, "calib.errors": set()}
+    assert forbidden_edges(graph) == [
+        "calib.commands.tables (commands) -> calib.commands.run (commands)",
+        "calib.store.database (store) -> calib.sweep.spec (engine and analysis)",
+        "calib.sweep.spec (engine and analysis) -> calib.analysis.tables (engine and analysis)"]
+
+
+def test_commands_may_import_their_shared_modules_which_import_no_command():
+    graph = {"calib.commands.tables": {"calib.commands.options", "calib.commands.searches"},
+             "calib.commands.options": {"calib.analysis.campaign"}, "calib.commands.searches": {"calib.commands.run"},
+             "calib.commands.run": {"calib.commands.searches"}, "calib.analysis.campaign": set()}
+    assert forbidden_edges(graph) == ["calib.commands.searches (command support) -> calib.commands.run (commands)"]
+
+
+def test_every_module_of_calib_has_a_layer():
+    unplaced = []
+    for name in _modules():
+        try:
+            _place(name)
+        except KeyError:
+            unplaced.append(name)
+    assert unplaced == [], f"modules with no layer in LAYERS: {unplaced}"
+
+
+def test_no_module_of_calib_imports_from_a_layer_above_it_or_a_walled_sibling():
+    modules = _modules()
+    graph = {name: _imports(name, path, modules) for name, path in modules.items()}
+    assert "calib.store.database" in graph["calib.sweep.runner"]  # the walk sees real imports
+    edges = forbidden_edges(graph)
+    assert edges == [], f"{len(edges)} forbidden import(s) (docs/layers.md):\n" + "\n".join(edges)
+
+
+@pytest.mark.parametrize("module", ["calib.problems", "calib.solvers.highs", "calib.sweep.plugins", "calib.sweep.tasks", "calib.store.database", "calib.verdicts.target", "calib.trial"])
 def test_each_module_once_in_a_cycle_imports_alone(module):
     done = subprocess.run([sys.executable, "-c", f"import {module}"], capture_output=True, text=True, timeout=120)
     assert done.returncode == 0, done.stderr

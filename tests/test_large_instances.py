@@ -32,9 +32,8 @@ import scipy.sparse as sp
 
 from calib.reduce import points as points_module
 from calib.sweep import tasks
-from calib.sweep.spec import ProjectorChoice
-from calib.sweep.tasks import ORIGINAL_FIELDS, HeldOriginals, OriginalTask, TrialTask, built_instance, execute
-from calib.sweep.trial import InstanceRef, Trial
+from calib.sweep.tasks import HeldOriginals, ORIGINAL_FIELDS, OriginalTask, TrialTask, built_instance, execute
+from calib.trial import InstanceRef, ProjectorChoice, Trial
 
 SOLVER = {"time_limit_s": 30.0, "trial_timeout_s": 120.0}
 

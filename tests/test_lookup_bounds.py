@@ -12,12 +12,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from calib.analysis.lookup import Query, bounded, class_entries, k_for, safe_ks, size_of, size_of_mps
-from calib.analysis.success import make_predicate
-from calib.analysis.tables import Confidence, build_analysis
+from calib.analysis.tables import build_analysis
 from calib.cli import main
 from calib.families import get
 from calib.families.lp_real import NETLIB_DIR
 from calib.problems import read_mps
+from calib.verdicts.saferule import Confidence
+from calib.verdicts.success import make_predicate
 
 FAMILY = "lp-planted"
 

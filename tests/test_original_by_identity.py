@@ -17,9 +17,9 @@ from engine_helpers import write_spec
 
 from calib.sweep import sandbox, tasks
 from calib.sweep.runner import run_campaign
-from calib.sweep.spec import ProjectorChoice, load_spec
-from calib.sweep.tasks import ORIGINAL_CACHE_SIZE, HeldOriginals, TrialTask, remember_original
-from calib.sweep.trial import InstanceRef, Trial
+from calib.sweep.spec import load_spec
+from calib.sweep.tasks import HeldOriginals, ORIGINAL_CACHE_SIZE, TrialTask, remember_original
+from calib.trial import InstanceRef, ProjectorChoice, Trial
 
 
 def _task(instance: int, x_size: int = 1000) -> TrialTask:

@@ -21,7 +21,7 @@ from sklearn.preprocessing import StandardScaler
 
 from calib import atlas
 from calib.analysis import predict
-from calib.analysis.saferule import ALL_PASS
+from calib.verdicts.saferule import ALL_PASS
 
 ATLAS = Path(__file__).resolve().parent.parent / "results" / "atlas"
 

@@ -9,8 +9,7 @@ from scipy import stats
 from calib.cli import main
 from calib.families import get
 from calib.metrics import FIELDS
-from calib.sweep.spec import ProjectorChoice
-from calib.sweep.trial import InstanceRef, Trial, run_trial
+from calib.trial import InstanceRef, ProjectorChoice, Trial, run_trial
 
 NETLIB = Path(__file__).resolve().parents[1] / "calib" / "data" / "netlib"
 TIMES = {name for name, field in FIELDS.items() if field.units == "s"}

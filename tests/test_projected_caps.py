@@ -13,11 +13,11 @@ import pandas as pd
 import pytest
 
 from calib import projectors
-from calib.analysis.success import evaluate, make_predicate
 from calib.errors import InputError
 from calib.reduce.base import projected_solver
 from calib.reduce.lp import LPHandler
 from calib.reduce.sdp import SDPHandler
+from calib.verdicts.success import evaluate, make_predicate
 import tomllib
 
 from calib.sweep.spec import parse_spec

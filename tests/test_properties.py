@@ -106,8 +106,8 @@ def _raw(ks, replicates, projector_idx, family_idx, root_seed) -> dict:
 
 
 def _trials(raw: dict) -> dict:
+    from calib.sweep.expansion import expand
     from calib.sweep.spec import parse_spec
-    from calib.sweep.trial import expand
 
     trials = [trial for _, batch in expand(parse_spec(raw)) for trial in batch]
     table = {trial.trial_id: (trial.instance.instance_id, trial.stream_keys, trial.k, trial.replicate, trial.projector.label)

@@ -25,10 +25,11 @@ from engine_helpers import write_search_spec as _spec
 
 from calib.cli import main
 from calib.errors import InputError
+from calib.spec_problems import SpecError
+from calib.store.database import Store
 from calib.sweep.runner import replay_searches, run_campaign
 from calib.sweep.search import PRIOR_STRENGTH, KSearch, confidence_sequence, decide, drive, max_looks, replay
-from calib.sweep.spec import SpecError, load_spec, parse_spec
-from calib.sweep.store import Store
+from calib.sweep.spec import load_spec, parse_spec
 
 BASE = {"campaign": {"name": "s", "root_seed": 3, "replicates": 5},
         "families": [{"name": "lp-planted", "sizes": [{"rows": 12, "cols": 24}]}],
@@ -216,11 +217,13 @@ def test_the_walk_stays_on_the_lattice_and_reads_no_trial_twice():
     search = _fixed(lambda k: 80 if k >= 31 else 78 if k >= 21 else 0, 80, 5, 45, step=4)
     assert all((step.k - 5) % 4 == 0 for step in search.steps if step.k != 45)
     assert search.safe_k == 21
-    # k = 29 and 25 failed at the cap in the bisection (78 of 80 at its stricter level); the walk
-    # reads the same 80 trials again, passes them at its own level, and they count once
+    # k = 29 and 25 failed in the bisection (78 of 80 cannot reach its stricter level, 80 of 80: known
+    # at the first failure, the failures lead); the walk reads their 80 trials, passes them at its own
+    # level, and they count once
     both = {step.k for step in search.steps if step.phase == "walk"} & {step.k for step in search.steps if step.phase == "bisection"}
     assert both == {25, 29}
-    assert search.trials_read == 80 + 7 + 80 + 80 + 80 + 80 + 4  # k = 45, 5, 25, 33, 29, 21, 17
+    assert [step.trials for step in search.steps if step.phase == "bisection" and step.k in both] == [1, 1]
+    assert search.trials_read == 80 + 1 + 80 + 80 + 80 + 80 + 4  # k = 45, 5, 25, 33, 29, 21, 17
 
 
 def test_a_sharp_curve_gives_the_exact_k_with_few_trials():
@@ -357,8 +360,8 @@ def test_added_retrieval_runs_only_for_the_missing_rows(tmp_path):
 
 
 def test_search_target_predicate_is_the_table_predicate():
-    # the run-time rule is calib.analysis.success.make_predicate with the [target] tolerance
-    from calib.analysis.success import make_predicate, with_tau
+    # the run-time rule is calib.verdicts.success.make_predicate with the [target] tolerance
+    from calib.verdicts.success import make_predicate, with_tau
 
     spec = parse_spec(_raw())
     assert spec.target.predicate == with_tau(make_predicate("bound"), 1e-6)
@@ -405,3 +408,43 @@ def test_the_example_search_spec_reads():
 
     spec = load_spec(Path(__file__).resolve().parents[1] / "instances" / "quickstart-search.toml")
     assert spec.k_grid.is_search and spec.target.rate == pytest.approx(0.9)
+
+
+# ----- the whole range: above high up to m - 1 -----------------------------------------------
+
+def _all_at(curve, search: KSearch) -> KSearch:
+    while (demand := search.demand()) is not None:
+        k, count = demand
+        search.offer([curve(k)] * count)
+    return search
+
+
+def test_a_failing_high_end_goes_on_up_to_m_minus_1():
+    # a sharp curve safe from k = 70 on, searched on [1, 40] of m = 100: the old search said "widen the
+    # range"; the extended one brackets [40, 99] and finds 70 (module text: one run bisects one bracket)
+    search = _all_at(lambda k: k >= 70, KSearch(1, 40, 0.9, 0.95, 80, top=99))
+    assert search.safe_k == 70 and search.steps[0].k == 40 and search.steps[1].k == 99
+    assert search.looks == max(max_looks(1, 40), max_looks(40, 99))
+    assert all(step.k >= 40 for step in search.steps)  # low is not tested once high failed
+    nothing = _all_at(lambda k: False, KSearch(1, 40, 0.9, 0.95, 80, top=99))
+    assert nothing.safe_k is None and "no k below m = 100 meets the target" in nothing.reason
+    assert [step.k for step in nothing.steps] == [40, 99]
+    old = _all_at(lambda k: k >= 70, KSearch(1, 40, 0.9, 0.95, 80))  # top=None: stop at high
+    assert old.safe_k is None and "widen the range" in old.reason
+
+
+def test_extend_is_a_search_option():
+    assert parse_spec(_raw()).k_grid.extend
+    assert not parse_spec(_raw(sweep__k={"search": {"low": 1, "high": 6, "extend": False}})).k_grid.extend
+    with pytest.raises(SpecError, match="sweep.k.search.extend"):
+        parse_spec(_raw(sweep__k={"search": {"low": 1, "high": 6, "extend": "yes"}}))
+
+
+def test_a_curtailed_look_fails_with_the_verdict_of_its_last_look():
+    # at the bisection's level on [1, 40] (1 - 0.01/8/2) 80 of 80 are needed at the cap of 80
+    # (0.9^80 = 2.2e-4 <= 6.25e-4 < P(Binomial(80, 0.9) >= 79) = 2.2e-3, scipy.stats.binom): the
+    # first failure decides, whatever follows
+    search = KSearch(1, 40, 0.9, 0.95, 80)
+    search.offer([False] + [True] * 79)
+    assert search.steps[0].verdict.startswith("fail") and search.steps[0].trials == 1
+    assert stats.binom.sf(78, 80, 0.9) > search.alpha / 2 >= stats.binom.sf(79, 80, 0.9)

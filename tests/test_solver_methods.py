@@ -7,13 +7,13 @@ import scipy.sparse as sp
 from scipy import stats
 
 from calib.analysis.policy import NO_SAVING, entry_block, policy_k
-from calib.analysis.tables import Confidence
 from calib.errors import InputError
 from calib.reduce.lp import LPHandler
 from calib.reduce.qp import QPHandler
 from calib.solvers.methods import auto_lp_method, check_methods, check_projected, race
 from calib.solvers.result import SolveResult
 from calib.sweep.spec import load_spec
+from calib.verdicts.saferule import Confidence
 from reduce_helpers import SOLVER, instance
 
 
@@ -122,8 +122,8 @@ def test_policy_k_is_the_fastest_k_whose_bound_meets_the_target():
 def test_policy_counts_an_exact_retrieval_that_saves_time():
     # A warm start is a failure under the time-free usable preset but a policy success when it saves time.
     from calib.analysis.policy import row_columns
-    from calib.analysis.success import PRESETS
     from calib.metrics import record
+    from calib.verdicts.success import PRESETS
 
     base = dict(orig_status="optimal", proj_status="optimal", obj_error=0.0, feas_error=0.0, sign_violation=0.0,
                 exact=True, t_baseline=2.0, iterations_saved=5)

@@ -3,9 +3,9 @@
 import pytest
 from scipy import stats
 
-from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.tables import Confidence, safe_k_rule
 from calib.errors import InputError
+from calib.verdicts.saferule import Confidence, safe_k_rule
+from calib.verdicts.stats import clopper_pearson_lower
 
 
 @pytest.mark.parametrize("successes,trials", [(0, 10), (3, 10), (9, 10), (10, 10), (27, 30), (150, 200)])

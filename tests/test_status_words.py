@@ -18,7 +18,8 @@ from analysis_campaign import run_spec
 from calib.analysis.rows import load_rows
 from calib.solvers import highs, scs_base
 from calib.solvers.result import FORMER_STATUSES, STATUSES
-from calib.sweep.store import STORE_FORMAT, Store
+from calib.store.database import Store
+from calib.store.schema import STORE_FORMAT
 
 SPEC = """
 [campaign]

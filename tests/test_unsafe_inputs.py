@@ -114,7 +114,8 @@ def test_no_shell_and_subprocess_arguments_are_constants():
 
 @pytest.mark.parametrize("name", ["../up", "/abs", "a/b", "a\\b", ".", "..", "with space", "", "x" * 65, "-dash-first", "nul\0"])
 def test_campaign_names_that_could_leave_the_output_folder_are_refused(name):
-    from calib.sweep.spec import SpecError, parse_spec
+    from calib.spec_problems import SpecError
+    from calib.sweep.spec import parse_spec
 
     raw = {"campaign": {"name": name, "root_seed": 1}, "families": [{"name": "lp-planted", "sizes": [{"rows": 8, "cols": 16}]}],
            "sweep": {"projectors": ["gaussian"], "k": [2]}}
@@ -125,7 +126,7 @@ def test_campaign_names_that_could_leave_the_output_folder_are_refused(name):
 
 @pytest.mark.parametrize("name", ["a", "Z9", "covering-small", "run_2026-12-01", "x" * 64])
 def test_store_of_a_valid_campaign_name_lies_directly_in_the_output_folder(tmp_path, name):
-    from calib.sweep.store import store_path
+    from calib.store.resume import store_path
 
     for number in (1, 2, 17):
         path = store_path(tmp_path, name, number)

@@ -6,13 +6,13 @@ import pytest
 from scipy.optimize import linprog, minimize
 
 from calib import projectors
-from calib.analysis.success import PRESETS, evaluate, judge_records, make_predicate, saves_time
 from calib.conic import QP
 from calib.metrics import SCALE_FLOOR, record
 from calib.reduce.base import Context
 from calib.reduce.lp import LPHandler
 from calib.reduce.qp import QPHandler, ReducedQP
 from calib.solvers.result import SolveResult
+from calib.verdicts.success import PRESETS, evaluate, judge_records, make_predicate, saves_time
 from reduce_helpers import SOLVER, instance
 
 

@@ -37,12 +37,13 @@ and its proof); D. Achlioptas, J. Computer and System Sciences 66(4):671–687, 
 
 from __future__ import annotations
 
-from typing import Optional
+from typing import Iterable, Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from calib import theory
-from calib.analysis.success import Predicate, primary_tau
+from calib.verdicts.success import Predicate, primary_tau
 
 _LOG_SPAN = (20.0, 50.0)
 
@@ -86,8 +87,15 @@ def theory_eps(predicate: Predicate, kind: str, eps: Optional[float] = None) -> 
     return float(chosen), source
 
 
-def dasgupta_gupta_at(n, eps, failure):
-    """Dasgupta–Gupta's union bound at total failure probability ``failure`` (module text).
+def dasgupta_gupta_at(n: ArrayLike, eps: ArrayLike, failure: ArrayLike) -> np.ndarray:
+    """Dasgupta–Gupta's union bound at total failure probability ``failure`` (module text):
+    k = ceil(2 ln(n (n - 1) / failure) / (eps^2/2 - eps^3/3)).
+
+    ``n`` (points, >= 2), ``eps`` (relative distortion in (0, 1)) and ``failure`` (a probability in
+    (0, 1)) broadcast together; the result is an int64 array of k of their shape. Reference:
+    S. Dasgupta and A. Gupta, "An elementary proof of a theorem of Johnson and Lindenstrauss",
+    Random Structures & Algorithms 22(1):60–65, 2003 (per pair 2 exp(-k (eps^2/2 - eps^3/3) / 2),
+    union over n (n - 1) / 2 pairs).
 
     >>> int(dasgupta_gupta_at(1000, 0.5, 0.1))  # ceil(2 ln(1000 * 999 / 0.1) / (1/8 - 1/24))
     387
@@ -96,7 +104,7 @@ def dasgupta_gupta_at(n, eps, failure):
     return np.ceil(2.0 * np.log(n * (n - 1.0) / failure) / (eps**2 / 2.0 - eps**3 / 3.0)).astype(np.int64)
 
 
-def rule_names(kinds) -> list[str]:
+def rule_names(kinds: Iterable[str]) -> list[str]:
     """The names of the bounds the tables of rows of ``kinds`` compare with, sorted.
 
     >>> rule_names(["lp"]) == sorted(theory.RULES), rule_names(["clustering"])
@@ -105,7 +113,7 @@ def rule_names(kinds) -> list[str]:
     return sorted({name for kind in kinds for name in theory.bounds_for(kind)})
 
 
-def eps_convention(kinds) -> str:
+def eps_convention(kinds: Iterable[str]) -> str:
     """:data:`EPS_CONVENTION`, with the clustering rule when ``kinds`` holds clustering."""
     return EPS_CONVENTION + (CLUSTERING_CONVENTION if "clustering" in kinds else "")
 
@@ -131,7 +139,7 @@ def bound_k(n_points: int, eps: float, failure: Optional[float] = None, kind: Op
     ``eps`` and total failure ``failure`` (each rule's own default when None), with the failure
     probability it holds at (None: not stated).
 
-    >>> bound_k(1001, 0.5)["dasgupta-gupta"]["k"]
+    >>> bound_k(1001, 0.5)["dasgupta-gupta"]["k"]  # scikit-learn johnson_lindenstrauss_min_dim(1001, eps=0.5): 331 (it truncates 331.6)
     332
     >>> bound_k(1000, 0.5, 0.1)["achlioptas"]  # ceil((4 ln 1000 + 2 ln 10) / (1/8 - 1/24))
     {'k': 387, 'failure': 0.1}

@@ -5,9 +5,9 @@ instance and its 0/1 success (solver errors already set aside, see :mod:`calib.a
 Output (:class:`CellStats`), per swept k and for the cell:
 
 - *instances scope*: trials, successes, the one-sided Clopper–Pearson and Wilson lower bounds of
-  the pooled count and the safe k of the monotone rule (:func:`safe_k_rule`): exact conditional on
+  the pooled count and the safe k of the monotone rule (:func:`calib.verdicts.saferule.safe_k_rule`): exact conditional on
   the instances measured;
-- *class scope*: the design-effect-adjusted Clopper–Pearson bound of :mod:`calib.analysis.scope`
+- *class scope*: the design-effect-adjusted Clopper–Pearson bound of :mod:`calib.verdicts.scope`
   and its safe k by the same monotone rule, empty with the reason when the design cannot certify
   the target;
 - the transition: a logistic fit of success on ln k (:mod:`calib.analysis.logistic`) with the
@@ -23,11 +23,12 @@ from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from calib.analysis.logistic import LogisticFit, fit_clustered
-from calib.analysis.saferule import ALL_PASS, safe_k_rule
-from calib.analysis.scope import CellCounts, ClassScope, cell_counts, class_reason, class_scope, instances_needed
-from calib.analysis.stats import clopper_pearson_lower, wilson_lower
+from calib.verdicts.saferule import safe_k_rule
+from calib.verdicts.scope import CellCounts, ClassScope, cell_counts, class_reason, class_scope
+from calib.verdicts.stats import clopper_pearson_lower, wilson_lower
 
 @dataclass(frozen=True)
 class CellStats:
@@ -49,15 +50,21 @@ class CellStats:
 
     @property
     def ks(self) -> np.ndarray:
+        """The swept k (projected dimensions), sorted, shape (K,)."""
         return self.counts.ks
 
     @property
     def instances_per_k(self) -> np.ndarray:
+        """Instances with at least one trial at each swept k, shape (K,)."""
         return (self.counts.trials > 0).sum(axis=1)
 
 
-def cell_stats(k, instance, success, target: float, confidence: float) -> CellStats:
-    """Both scopes and the clustered transition of one cell from one row per trial (module text)."""
+def cell_stats(k: ArrayLike, instance: ArrayLike, success: ArrayLike, target: float, confidence: float) -> CellStats:
+    """Both scopes and the clustered transition of one cell from one row per trial (module text).
+
+    ``k`` (projected dimension), ``instance`` (its label) and ``success`` (0/1) have shape (T,), one
+    value per trial; ``target`` (1 - delta) and ``confidence`` are probabilities in (0, 1).
+    """
     counts = cell_counts(k, instance, success)
     successes, trials = counts.successes.sum(axis=1), counts.trials.sum(axis=1)
     lower = clopper_pearson_lower(successes, trials, confidence)
@@ -73,4 +80,4 @@ def cell_stats(k, instance, success, target: float, confidence: float) -> CellSt
                      fit_clustered(k, success, instance))
 
 
-__all__ = ["ALL_PASS", "CellStats", "cell_stats", "class_reason", "instances_needed", "safe_k_rule"]
+__all__ = ["CellStats", "cell_stats"]

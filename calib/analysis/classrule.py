@@ -14,7 +14,7 @@ that value, and the rule is answered at two scopes:
   passes when (alpha / U)^(1/r) >= target, so r >= ln(alpha / U) / ln(target) trials per unit are
   needed (39 for 3 files at 90% and 95%): for a file, that is its replicates.
 - **the class** the units were drawn from (:func:`class_rule`): the units are the clusters of the
-  class-scope bound of a cell (:func:`calib.analysis.scope.class_scope`: a Clopper–Pearson bound
+  class-scope bound of a cell (:func:`calib.verdicts.scope.class_scope`: a Clopper–Pearson bound
   with the design effect of the intraclass correlation's upper limit; a binomial on units when each
   unit decides alone), so 29 units that each pass are needed to certify 90% at 95%.
 
@@ -30,14 +30,14 @@ like every safe k it is empirical evidence, not a proof. Costs: O(trials + value
 
 from __future__ import annotations
 
-import math
-from typing import Optional
+from typing import Iterable, Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
 
-from calib.analysis.cells import safe_k_rule
-from calib.analysis.scope import class_scope, cell_counts, instances_needed, refusal
-from calib.analysis.stats import clopper_pearson_lower
+from calib.verdicts.saferule import safe_k_rule
+from calib.verdicts.scope import cell_counts, class_scope, instances_needed, refusal
+from calib.verdicts.stats import clopper_pearson_lower, trials_per_unit_needed
 
 PREFIX = "fraction="
 RULE = "k = f m"
@@ -57,8 +57,11 @@ def rule_text(coefficient: str, value: float) -> str:
     return f"k = {value:g} m" if coefficient == "f" else f"k = {value:g} ln n"
 
 
-def values_of(labels, prefix: str = PREFIX) -> Optional[np.ndarray]:
+def values_of(labels: Iterable[str], prefix: str = PREFIX) -> Optional[np.ndarray]:
     """The value of each trial's rule from its k label ("fraction=0.3"); None unless all have one.
+
+    One label per trial in, one float per trial out (shape (T,)): f (a fraction of m) or C (a
+    multiple of ln n).
 
     >>> values_of(["fraction=0.3", "fraction=1.0"]).tolist(), values_of(["", "fraction=0.3"])
     ([0.3, 1.0], None)
@@ -71,7 +74,7 @@ def values_of(labels, prefix: str = PREFIX) -> Optional[np.ndarray]:
     return np.array([float(label[len(prefix):]) for label in labels])
 
 
-def rule_prefix(labels) -> Optional[str]:
+def rule_prefix(labels: Iterable[str]) -> Optional[str]:
     """The prefix of :data:`RULES` every label starts with, else None."""
     labels = list(labels)
     return next((prefix for prefix in RULES if values_of(labels, prefix) is not None), None)
@@ -83,12 +86,13 @@ def _failing(counts, at: int, target: float, unit_name: dict) -> list[str]:
                   zip(counts.instances, rates, counts.trials[at]) if trials and rate < target)
 
 
-def class_rule(values, unit, success, unit_name: dict, target: float, confidence: float, unit_word: str,
-               coefficient: str = "f") -> dict:
+def class_rule(values: ArrayLike, unit: ArrayLike, success: ArrayLike, unit_name: dict, target: float,
+               confidence: float, unit_word: str, coefficient: str = "f") -> dict:
     """The smallest value of the rule certified for the class, the units as clusters (module text).
 
-    ``values``, ``unit`` and ``success`` have one entry per trial; ``unit_name`` maps a unit id to
-    the text listed for it (a file name).
+    ``values`` (the rule's f or C), ``unit`` and ``success`` (0/1) have one entry per trial, shape
+    (T,); ``unit_name`` maps a unit id to the text listed for it (a file name); ``target`` and
+    ``confidence`` are probabilities in (0, 1).
     """
     counts = cell_counts(values, unit, success)
     units = counts.n_instances
@@ -117,19 +121,13 @@ def class_rule(values, unit, success, unit_name: dict, target: float, confidence
             "failing_at": float(counts.ks[at]), "grid": grid}
 
 
-def trials_per_unit_needed(units: int, target: float, confidence: float) -> int:
-    """Trials per unit, all successes, for each of ``units`` Clopper–Pearson bounds at confidence
-    1 - (1 - confidence) / units to reach ``target`` (module text).
+def units_rule(values: ArrayLike, unit: ArrayLike, success: ArrayLike, unit_name: dict, target: float,
+               confidence: float, unit_word: str, coefficient: str = "f") -> dict:
+    """The smallest value of the rule that meets the target on every unit measured (module text).
 
-    >>> trials_per_unit_needed(1, 0.9, 0.95), trials_per_unit_needed(3, 0.9, 0.95)
-    (29, 39)
+    Arguments as :func:`class_rule`; each unit's bound is the one-sided Clopper–Pearson bound at
+    1 - (1 - confidence) / U (Bonferroni over U units; Clopper & Pearson 1934).
     """
-    return int(math.ceil(math.log((1.0 - confidence) / units) / math.log(target) - 1e-12))
-
-
-def units_rule(values, unit, success, unit_name: dict, target: float, confidence: float, unit_word: str,
-               coefficient: str = "f") -> dict:
-    """The smallest value of the rule that meets the target on every unit measured (module text)."""
     counts = cell_counts(values, unit, success)
     units = counts.n_instances
     each = 1.0 - (1.0 - confidence) / max(units, 1)
@@ -157,8 +155,12 @@ def units_rule(values, unit, success, unit_name: dict, target: float, confidence
             "failing": _failing(counts, at, target, unit_name), "failing_at": float(counts.ks[at]), "grid": grid}
 
 
-def folder_rules(labels, unit, success, unit_name: dict, target: float, confidence: float, unit_word: str) -> list[dict]:
-    """The rule of the swept k grid at both scopes (module text); [] unless every k label is a rule's."""
+def folder_rules(labels: Iterable[str], unit: ArrayLike, success: ArrayLike, unit_name: dict, target: float,
+                 confidence: float, unit_word: str) -> list[dict]:
+    """The rule of the swept k grid at both scopes (module text); [] unless every k label is a rule's.
+
+    One k label, unit and 0/1 success per trial, shape (T,); other arguments as :func:`class_rule`.
+    """
     prefix = rule_prefix(labels)
     if prefix is None:
         return []
@@ -169,7 +171,8 @@ def folder_rules(labels, unit, success, unit_name: dict, target: float, confiden
              "instances": units_rule(*arguments), "class": class_rule(*arguments)}]
 
 
-def fraction_rule(labels, unit, success, unit_name: dict, target: float, confidence: float, unit_word: str) -> dict:
+def fraction_rule(labels: Iterable[str], unit: ArrayLike, success: ArrayLike, unit_name: dict, target: float,
+                  confidence: float, unit_word: str) -> dict:
     """The class-scope rule k = f m in the table's ``policy_rule`` block (:func:`class_rule` with the
     value named ``fraction``)."""
     fractions = values_of(labels)

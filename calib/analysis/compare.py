@@ -58,9 +58,9 @@ import pandas as pd
 from scipy import stats
 
 from calib.analysis.logistic import fit_logistic
-from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.cells import safe_k_rule
-from calib.analysis.tables import Confidence, num, solver_error_mask
+from calib.analysis.tables import num, solver_error_mask
+from calib.verdicts.saferule import Confidence, safe_k_rule
+from calib.verdicts.stats import clopper_pearson_lower
 
 if TYPE_CHECKING:
     from calib.analysis.records import Comparison
@@ -408,8 +408,8 @@ def build_comparison(store, rows: pd.DataFrame, predicate, settings: Settings, p
                      reference: Optional[str] = "gaussian", all_pairs: bool = False) -> dict:
     """The JSON-ready comparison document of a store (sealed with its checksum, schema-valid)."""
     from calib import __version__
-    from calib.analysis.success import evaluate
     from calib.analysis.tablefile import schema_error, seal
+    from calib.verdicts.success import evaluate
 
     # the rows the table's rates use: kinds the predicate checks, solver errors left out (their own outcome)
     covered = rows["kind"].map(predicate.covers).astype(bool)
@@ -441,7 +441,7 @@ def build_comparison(store, rows: pd.DataFrame, predicate, settings: Settings, p
 def verdict_lines(document: "Comparison") -> list[str]:
     """The human-readable summary of a comparison (:class:`calib.analysis.records.Comparison`): one header
     per group (named by the parameters that tell its family's classes apart), one verdict line per pair."""
-    from calib.analysis.tables import class_namer
+    from calib.analysis.classnames import class_namer
 
     namers = {family: class_namer([group.class_params for group in document.groups if group.family == family])
               for family in {group.family for group in document.groups}}

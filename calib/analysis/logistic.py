@@ -39,6 +39,7 @@ from dataclasses import dataclass
 from typing import Optional
 
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import special, stats
 
 _MAX_ITERATIONS = 100
@@ -68,20 +69,22 @@ class LogisticFit:
 
     @property
     def ok(self) -> bool:
+        """Whether a fit exists (else ``reason`` says why and ``bracket`` where the transition lies)."""
         return self.intercept is not None
 
-    def success_at(self, k):
-        """Fitted success probability at ``k`` (array-like)."""
+    def success_at(self, k: ArrayLike) -> np.ndarray:
+        """Fitted success probability expit(b0 + b1 ln k) at ``k`` (projected dimensions, any shape;
+        the result has the same shape, values in (0, 1))."""
         return special.expit(self.intercept + self.slope * np.log(np.asarray(k, dtype=float)))
 
     def log_k_at(self, rate: float) -> float:
-        """ln k where the fitted success equals ``rate`` (0 < rate < 1)."""
+        """ln k where the fitted success equals ``rate`` (0 < rate < 1): (logit(rate) - b0) / b1."""
         return (special.logit(rate) - self.intercept) / self.slope
 
     def k_at(self, rate: float, confidence: float = 0.95) -> tuple[float, float, float]:
-        """(k, low, high): k at the given success rate with its delta-method interval.
+        """(k, low, high): k at the given success rate with its delta-method interval (units of k).
 
-        The gradient of g = (logit(rate) - b0) / b1 is (-1/b1, -g/b1); the variance of g is
+        ``confidence`` is two-sided, in (0, 1). The gradient of g = (logit(rate) - b0) / b1 is (-1/b1, -g/b1); the variance of g is
         grad' Cov grad; the interval is exp(g -/+ z sd) with z the two-sided normal quantile.
         """
         g = self.log_k_at(rate)
@@ -92,8 +95,11 @@ class LogisticFit:
         return float(np.exp(g)), float(np.exp(g - z * sd)), float(np.exp(g + z * sd))
 
 
-def separation(k, successes, trials) -> Optional[tuple[str, tuple]]:
+def separation(k: ArrayLike, successes: ArrayLike, trials: ArrayLike) -> Optional[tuple[str, tuple]]:
     """(reason, bracket) when no finite maximum-likelihood fit exists, else None.
+
+    ``k``, ``successes`` and ``trials`` have one value per swept k (shape (K,), any order); the
+    bracket is (low, high) in units of k, either side None when unbounded (Albert & Anderson 1984).
 
     >>> separation([4, 8, 16], [0, 0, 5], [5, 5, 5])[0]
     'complete separation: every trial fails up to k=8 and succeeds from k=16; the transition lies between'
@@ -129,12 +135,21 @@ def separation(k, successes, trials) -> Optional[tuple[str, tuple]]:
     return None
 
 
-def fit_logistic(k, successes, trials) -> LogisticFit:
-    """Maximum-likelihood fit of success on ln k from binomial counts per k.
+def fit_logistic(k: ArrayLike, successes: ArrayLike, trials: ArrayLike) -> LogisticFit:
+    """Maximum-likelihood fit of P(success | k) = expit(b0 + b1 ln k) from binomial counts per k.
+
+    ``k`` (projected dimensions, > 0), ``successes`` and ``trials`` (counts) have shape (K,), one
+    value per swept k. Newton–Raphson (IRLS) on ln k centred at its trial-weighted mean; the
+    covariance of (b0, b1) is the inverse Fisher information (McCullagh & Nelder, "Generalized Linear
+    Models", 2nd ed., 1989, chapters 2 and 4). No fit (``ok`` False, with the reason) under
+    separation (:func:`separation`), non-convergence or a slope <= 0.
+
+    Checked against statsmodels (``GLM(..., family=Binomial())`` on the same counts: b0 = -6.40108,
+    b1 = 2.89522, k50 = exp(-b0 / b1) = 9.12402):
 
     >>> fit = fit_logistic([4, 8, 16, 32], [1, 4, 8, 10], [10, 10, 10, 10])
-    >>> round(float(fit.k_at(0.5)[0]), 3)  # k50; statsmodels Logit gives the same
-    9.124
+    >>> round(fit.intercept, 5), round(fit.slope, 5), round(float(fit.k_at(0.5)[0]), 3)
+    (-6.40108, 2.89522, 9.124)
     """
     k = np.asarray(k, dtype=float)
     successes = np.asarray(successes, dtype=float)
@@ -168,16 +183,26 @@ def fit_logistic(k, successes, trials) -> LogisticFit:
     return LogisticFit(float(intercept), float(slope), covariance, iterations=iteration)
 
 
-def fit_clustered(k, success, cluster) -> LogisticFit:
+def fit_clustered(k: ArrayLike, success: ArrayLike, cluster: ArrayLike) -> LogisticFit:
     """Pooled fit of success on ln k with the cluster-robust covariance over ``cluster`` (module text).
 
-    One value per trial: its k, its 0/1 success and its instance. None of the fit's numbers change
-    but the covariance; with one instance the fit keeps the binomial covariance (``clusters`` None):
-    its intervals hold for that instance only.
+    One value per trial, shape (T,) each: its k (projected dimension), its 0/1 success and its
+    instance (any labels, compared as text). None of the fit's numbers change but the covariance,
+    H^-1 (G/(G-1) sum_g s_g s_g') H^-1 (Liang & Zeger 1986; Cameron & Miller 2015);
+    with one instance the fit keeps the binomial covariance (``clusters`` None): its intervals hold
+    for that instance only.
 
     >>> fit = fit_clustered([4, 8, 16, 4, 8, 16], [0, 1, 1, 1, 0, 1], ["a", "a", "a", "b", "b", "b"])
     >>> fit.ok, fit.clusters
     (True, 2)
+
+    Checked against statsmodels (``GLM(..., family=Binomial()).fit(cov_type="cluster",
+    cov_kwds={"groups": ..., "use_correction": False})``, whose covariance times G/(G-1) = 3/2 is
+    this one: var(b1) = 2.91096):
+
+    >>> fit = fit_clustered([4, 8, 16] * 3, [0, 1, 1, 1, 0, 1, 0, 0, 1], list("aaabbbccc"))
+    >>> round(fit.slope, 5), round(float(fit.covariance[1, 1]), 5)
+    (2.37114, 2.91096)
     """
     k = np.asarray(k, dtype=float)
     success = np.asarray(success, dtype=float)

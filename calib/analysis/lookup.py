@@ -5,11 +5,11 @@
 - the size is given in the family's own terms (its size keys, an MPS file, a saved instance: see
   :func:`size_of`), from which the family's own rules give n (the JL point count) and the projected
   dimension m; ``n`` alone (and ``m``) remain for experts;
-- the scope: the class answer by default (the class safe k of each size, :mod:`calib.analysis.scope`),
+- the scope: the class answer by default (the class safe k of each size, :mod:`calib.verdicts.scope`),
   or the answer for the instances measured (``scope="instances"``); each size's safe k is recomputed
   from the stored counts when delta or the confidence differ from the table's (the same rules);
 - a size that was measured is answered with its measured safe k; another size with the law
-  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.saferule.censored_law`),
+  k = a + C ln n fitted over the uncensored sizes (:func:`calib.analysis.law.censored_law`),
   rounded up; never below 1 and never above m: a value above m is answered "no reduction meets
   the target at this size", a value below 1 is raised to 1 with a flag;
 - an n outside the measured sizes is an extrapolation, flagged with how far (x the largest, or
@@ -34,10 +34,13 @@ from typing import Optional
 
 import numpy as np
 
-from calib.analysis.law import fit_law
+from calib.analysis.classnames import class_namer
+from calib.analysis.law import censored_law, fit_law
 from calib.analysis.modelfit import resolved_size
-from calib.analysis.saferule import Confidence, censored_law, censoring, class_namer, safe_k_rule
+from calib.checks import is_integer
 from calib.errors import InputError
+from calib.keys import canonical_json
+from calib.verdicts.saferule import Confidence, censoring, safe_k_rule
 
 SCOPES = ("class", "instances")
 
@@ -58,10 +61,10 @@ class Query:
     size: str = ""
 
     def __post_init__(self) -> None:
-        if isinstance(self.n, bool) or not isinstance(self.n, (int, np.integer)) or self.n < 2:
+        if not is_integer(self.n) or self.n < 2:
             raise InputError("--n", f"must be an integer >= 2 (points the projection keeps), got {self.n!r}",
                              "for an LP with rows projected give its columns + 1")
-        if self.m is not None and (isinstance(self.m, bool) or not isinstance(self.m, (int, np.integer)) or self.m < 1):
+        if self.m is not None and (not is_integer(self.m) or self.m < 1):
             raise InputError("--m", f"must be a positive integer (the projected dimension), got {self.m!r}",
                              "for an LP with rows projected give its rows")
         if self.scope not in SCOPES:
@@ -163,8 +166,8 @@ def class_entries(analysis: dict, query: Query) -> list[dict]:
 
 def _lower_bounds(entry: dict, confidence: Confidence, scope: str) -> np.ndarray:
     """Per-k lower bounds of one entry in ``scope`` at ``confidence``, recomputed from its counts."""
-    from calib.analysis.scope import Anova, class_lower_bound, design_rho
-    from calib.analysis.stats import clopper_pearson_lower
+    from calib.verdicts.scope import Anova, class_lower_bound, design_rho
+    from calib.verdicts.stats import clopper_pearson_lower
 
     grid = entry["grid"]
     successes, trials = [p["successes"] for p in grid], [p["trials"] for p in grid]
@@ -198,7 +201,7 @@ def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class",
         lower = _lower_bounds(entry, confidence, scope)
         safe, reason = safe_k_rule([p["k"] for p in entry["grid"]], lower >= confidence.target)
         if scope == "class" and safe is None:
-            from calib.analysis.scope import class_reason
+            from calib.verdicts.scope import class_reason
 
             pooled = _lower_bounds(entry, confidence, "instances")
             mine, mine_reason = safe_k_rule([p["k"] for p in entry["grid"]], pooled >= confidence.target)
@@ -493,7 +496,7 @@ def speedup_at(found: dict, table: dict, query: Query, timings: Optional[list]) 
         where = f"measured at {entry['size']} (k = {k}), the nearest measured size; not extrapolated"
         if k is None:
             return None
-    params = json.dumps(entry["params"], sort_keys=True, separators=(",", ":"))
+    params = canonical_json(entry["params"])
     for row in timings:
         if (row.get("family"), row.get("params"), row.get("projector"), row.get("retrieval")) == \
                 (entry["family"], params, entry["projector"], entry["retrieval"]) and str(row.get("k")) == str(k):
@@ -566,7 +569,7 @@ def _interpolate_error(entry: dict, k: float) -> dict:
 
 def success_for(table: dict, query: Query, k: int) -> dict:
     """Expected success at ``k`` (logistic model) and the measured error there (nearest size)."""
-    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+    if not is_integer(k) or k < 1:
         raise InputError("--k", f"must be a positive integer, got {k!r}", "e.g. --k 64")
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)

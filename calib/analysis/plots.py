@@ -39,11 +39,11 @@ from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 from scipy import special
 
 from calib import theory
-from calib.keys import canonical_json
-from calib.analysis.stats import clopper_pearson_interval
+from calib.analysis.classnames import class_namer
 from calib.analysis.law import law_formula
 from calib.analysis.summary import natural_key
-from calib.analysis.tables import class_namer
+from calib.keys import canonical_json
+from calib.verdicts.stats import clopper_pearson_interval
 
 if TYPE_CHECKING:
     from calib.analysis.records import Analysis, Entry, SafeKTable, TableTarget

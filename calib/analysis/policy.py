@@ -3,7 +3,7 @@
 A team setting a reduction policy asks two things at a given k: is the answer usable, and did the
 reduction save time? Per cell (family, size, projector, retrieval) and swept k this module counts
 the *policy successes*: trials that succeed under the table's predicate **and** are faster end to
-end than the fair baseline (:func:`calib.analysis.success.saves_time`: sketch + projected solve +
+end than the fair baseline (:func:`calib.verdicts.success.saves_time`: sketch + projected solve +
 retrieval, repairs and warm solves included, against the original solved by its fastest
 configured method). A k *meets the target* when the one-sided Clopper–Pearson lower bound of that
 count reaches the target rate 1 - delta (C. J. Clopper and E. S. Pearson, Biometrika 26:404–413,
@@ -26,12 +26,14 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
+from numpy.typing import ArrayLike
 
-from calib.analysis.stats import clopper_pearson_lower
-from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate
+from calib.verdicts.stats import clopper_pearson_lower
+from calib.verdicts.success import OPTIMIZATION_KINDS, Predicate, evaluate
 
-if TYPE_CHECKING:
+if TYPE_CHECKING:  # annotations only
     from calib.analysis.records import Entry
+    from calib.verdicts.saferule import Confidence
 
 #: the answer of a cell where no swept k is usable and faster often enough
 NO_SAVING = "no k saves time at this size"
@@ -57,8 +59,12 @@ def _num(value):
     return None if value is None or not np.isfinite(value) else float(f"{float(value):.{_DIGITS}g}")
 
 
-def policy_k(ks, passes, times) -> tuple[int | None, int | None]:
+def policy_k(ks: ArrayLike, passes: ArrayLike, times: ArrayLike) -> tuple[int | None, int | None]:
     """(policy k or None, its position) on a grid: the smallest median time among passing k.
+
+    ``ks`` (projected dimensions), ``passes`` (the policy bound reaches the target) and ``times``
+    (median end-to-end seconds; NaN: not measured, never chosen) have shape (K,). Ties go to the
+    smaller k.
 
     >>> policy_k([10, 20, 40], [False, True, True], [0.5, 0.3, 0.4])
     (20, 1)
@@ -73,8 +79,12 @@ def policy_k(ks, passes, times) -> tuple[int | None, int | None]:
     return k, index
 
 
-def entry_block(cell: pd.DataFrame, confidence) -> dict:
-    """``{"policy": ...}`` for the rows of one cell carrying :func:`row_columns`, else ``{}``."""
+def entry_block(cell: pd.DataFrame, confidence: Confidence) -> dict:
+    """``{"policy": ...}`` for the rows of one cell carrying :func:`row_columns`, else ``{}``.
+
+    ``cell`` has one row per trial; the block's times are seconds (medians), its grid one item per
+    swept k with the one-sided Clopper–Pearson bound of the policy successes at ``confidence.level``.
+    """
     if "policy_success" not in cell or cell["kind"].iloc[0] not in OPTIMIZATION_KINDS:
         return {}
     per_k = cell.groupby("k", sort=True).agg(trials=("policy_success", "size"), **aggregations())

@@ -50,8 +50,9 @@ from typing import Optional, Sequence
 
 import numpy as np
 
-from calib.analysis.saferule import censoring, class_namer
+from calib.analysis.classnames import class_namer
 from calib.errors import InputError
+from calib.verdicts.saferule import censoring
 
 #: ridge penalty on the standardised regressors (fixed a priori, module text)
 ALPHA = 1.0
@@ -61,7 +62,7 @@ UNSEEN_LIMIT = 0.5
 FEATURES = ("rows", "cols", "nonzeros", "rank", "stable_rank", "row_coherence")
 LOGGED = {"rows", "cols", "nonzeros", "rank", "stable_rank"}
 RESPONSES = ("k50", "safe_k")
-#: how :func:`calib.analysis.saferule.censoring` starts the reason of a cell whose k lies beyond its grid
+#: how :func:`calib.verdicts.saferule.censoring` starts the reason of a cell whose k lies beyond its grid
 BEYOND = "no safe k"
 
 

@@ -5,9 +5,9 @@ retrieval). :func:`summarise` reduces them: the projection's metrics (one row pe
 fields of :data:`PROJECTION_FIELDS`) by median and maximum, and per retrieval its metrics
 (:data:`RETRIEVAL_FIELDS`), its successes s of r trials under the predicate with the one-sided
 Clopper–Pearson lower bound of s / r at the confidence level (Clopper & Pearson 1934), and the same
-for "usable and faster than the fair baseline" (:func:`calib.analysis.success.saves_time`).
-:func:`render` and :func:`search_text` print a probe and a probe's k search. Costs: linear in the
-records.
+for "usable and faster than the fair baseline" (:func:`calib.verdicts.success.saves_time`).
+:func:`render` prints a probe (`calib probe --find-k` prints a probe's k search in
+:mod:`calib.commands.probe`: its trace is the engine's). Costs: linear in the records.
 """
 
 from __future__ import annotations
@@ -16,6 +16,7 @@ import math
 
 import numpy as np
 
+from calib.checks import is_real
 from calib.theory import counting
 from calib.wording import counted, fold, wrapped
 
@@ -33,7 +34,7 @@ NOTICE_LINE = ("These are measurements on this instance and machine, not a proof
 
 
 def _stats(values: list) -> dict:
-    numbers = [float(v) for v in values if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)]
+    numbers = [float(v) for v in values if is_real(v) and math.isfinite(v)]
     if not numbers:
         return {}
     return {"median": float(np.median(numbers)), "max": float(np.max(numbers)), "n": len(numbers)}
@@ -47,8 +48,8 @@ def _summary_block(rows: list[dict], fields) -> dict:
 def summarise(records: list[dict], kind: str, predicate, confidence) -> dict:
     """The projection's metrics (one row per replicate) and, per retrieval, its metrics, successes and
     their one-sided Clopper–Pearson lower bound under ``predicate``."""
-    from calib.analysis.stats import clopper_pearson_lower
-    from calib.analysis.success import evaluate, record_frame, saves_time
+    from calib.verdicts.stats import clopper_pearson_lower
+    from calib.verdicts.success import evaluate, record_frame, saves_time
 
     first = [row for row in records if row["retrieval"] == records[0]["retrieval"]]
     statuses: dict = {}
@@ -85,21 +86,21 @@ def _fmt(value) -> str:
     return f"{value:.4g}"
 
 
-#: printed with :func:`_objective`: an optimum is only of use with its digits
+#: printed with :func:`objective_text`: an optimum is only of use with its digits
 OBJECTIVES = ("orig_objective", "proj_objective")
 
 
-def _objective(value) -> str:
+def objective_text(value) -> str:
     """An objective value with 12 significant digits.
 
-    >>> _objective(-2331389.8243), _objective(7.0), _objective(None)
+    >>> objective_text(-2331389.8243), objective_text(7.0), objective_text(None)
     ('-2331389.8243', '7', 'None')
     """
     return str(value) if value is None else f"{float(value):.12g}"
 
 
 def _field(field: str, value) -> str:
-    return _objective(value) if field in OBJECTIVES else _fmt(value)
+    return objective_text(value) if field in OBJECTIVES else _fmt(value)
 
 
 def _unit(field: str) -> str:
@@ -144,7 +145,7 @@ def verdict_lines(target, k: int, summary: dict, predicate, confidence) -> list[
 def render(target, original, choice, k: int, k_label: str, m: int, records: list[dict], summary: dict,
            predicate, confidence, baseline=None) -> str:
     """The human-readable report of a probe: what was probed, the verdict, the summary, then every replicate."""
-    objective = f", objective {_objective(original.objective)}" if original.ok else ""
+    objective = f", objective {objective_text(original.objective)}" if original.ok else ""
     replicates = sorted({r["replicate"] for r in records})
     lines = [
         f"probe: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
@@ -182,21 +183,3 @@ def _wrap(text: str, indent: str) -> list[str]:
 def _stat_lines(metrics: dict) -> list[str]:
     return [f"    {field:<22} {_field(field, stats['median'])} / {_field(field, stats['max'])}"
             + (f" {_unit(field)}" if _unit(field) else "") for field, stats in metrics.items()]
-
-
-def search_text(target, original, choice, retrieval: str, search, m: int, predicate, cap: int, seed: int) -> str:
-    """The text of ``calib probe --find-k``: what was searched, the search's trace and verdict
-    (:func:`calib.sweep.search.trace_lines`), the trials it ran and the evidence notice."""
-    from calib.analysis.campaign import target_text
-    from calib.analysis.tables import NOTICE
-    from calib.sweep.search import trace_lines
-
-    objective = f", objective {_objective(original.objective)}" if original.ok else ""
-    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
-             f"  n and m: {counting(target.kind)}",
-             f"original: {original.status}{objective}",
-             f"projector {choice.label}, retrieval {retrieval}, k in [{search.low}, {search.high}], at most {cap} trials per k",
-             f"target: success rate >= {search.rate:g} under {target_text(predicate)}"]
-    lines += trace_lines(search, f"success rate >= {search.rate:g}")
-    lines += [f"trials run: {search.trials_read} (seed {seed}: the streams of a campaign with root_seed = {seed})", NOTICE]
-    return fold(lines)

@@ -1,6 +1,6 @@
 """The store edge of the analysis: the tidy frame of stored rows every statistic is computed from.
 
-:func:`load_rows` reads a campaign store (SQLite, :class:`calib.sweep.store.Store`) into one row per
+:func:`load_rows` reads a campaign store (SQLite, :class:`calib.store.database.Store`) into one row per
 (trial, retrieval) with the instance's columns (family, params, size label, class parameters,
 projected dimension m, JL point count n) and every metric field of :data:`calib.metrics.FIELDS`
 expanded into its own column. Everything downstream (:mod:`calib.analysis.cells`,
@@ -11,13 +11,14 @@ from __future__ import annotations
 
 import json
 
-import numpy as np
 import pandas as pd
 
+from calib.checks import is_integer
 from calib.errors import InputError
 from calib.metrics import FIELDS
 from calib.solvers.result import FORMER_STATUSES
-from calib.sweep.store import DAMAGED_FIX, Store
+from calib.store.database import Store
+from calib.store.sqlite import DAMAGED_FIX
 
 
 def _size_keys(family: str, params: dict) -> tuple:
@@ -79,7 +80,7 @@ def _check_rows(rows: pd.DataFrame, path) -> None:
         if pd.api.types.is_integer_dtype(values.dtype):  # what SQLite gives for INTEGER cells: one vector test
             good = values >= minimum
         else:
-            good = values.map(lambda v: isinstance(v, (int, np.integer)) and not isinstance(v, bool) and v >= minimum)
+            good = values.map(lambda v: is_integer(v) and v >= minimum)
         if not good.all():
             bad = rows.loc[~good.astype(bool)].iloc[0]
             raise InputError(str(path), f"trial {bad['trial_id']} has {column} = {bad[column]!r}, not an integer >= {minimum}", DAMAGED_FIX)

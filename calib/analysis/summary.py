@@ -28,6 +28,7 @@ from typing import TYPE_CHECKING, Optional
 
 import pandas as pd
 
+from calib.checks import is_real
 from calib.keys import canonical_json
 from calib.metrics import DEFAULT_RETRIEVALS
 
@@ -145,7 +146,7 @@ def predicate_text(record: Predicate) -> str:
     """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
     predicate = record.to_dict()
     checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
-              if key in TOLERANCE_WORDS and isinstance(value, (int, float)) and not isinstance(value, bool)]
+              if key in TOLERANCE_WORDS and is_real(value)]
     if predicate.get("classify"):
         checks.append("the feasibility verdict matches the original's")
     extras = [f"{key.replace('_', ' ')}" for key, value in sorted(predicate.items())

@@ -17,6 +17,7 @@ from pathlib import Path
 
 from calib import __version__
 from calib.errors import InputError
+from calib.keys import canonical_json
 
 SCHEMA_FILE = "safe-k-table.v3.json"
 FORMAT = "calib.safe-k"
@@ -29,9 +30,9 @@ def schema(name: str = SCHEMA_FILE) -> dict:
 
 
 def checksum(table: dict) -> str:
-    """sha256 of the canonical JSON of ``table`` without its ``checksum`` field."""
+    """sha256 of the canonical JSON (:func:`calib.keys.canonical_json`) of ``table`` without its ``checksum`` field."""
     body = {key: value for key, value in table.items() if key != "checksum"}
-    text = json.dumps(body, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    text = canonical_json(body, allow_nan=False)
     return "sha256:" + hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 

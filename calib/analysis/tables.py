@@ -7,7 +7,7 @@ JSON (:func:`cell_entry` is the one place a cell's JSON is put together).
 
 Per cell and swept k: trials, successes, instances, solver errors (apart), the success rate, the
 one-sided Clopper–Pearson and Wilson lower bounds of the pooled count (scope: these instances),
-the class lower bound of :mod:`calib.analysis.scope` (scope: the class), and the median and 90th
+the class lower bound of :mod:`calib.verdicts.scope` (scope: the class), and the median and 90th
 percentile of the error metric. Per cell:
 
 - the safe k of each scope: the smallest swept k whose bound reaches 1 - delta while every larger
@@ -45,20 +45,20 @@ import numpy as np
 import pandas as pd
 
 from calib import SCHEMA_VERSION, __version__
-from calib.analysis import bounds
-from calib.analysis import policy as policy_answer
-# safe_k_rule and load_rows are also imported from here by lookup, export and older callers
-from calib.analysis.cells import CellStats, cell_stats, instances_needed
-from calib.analysis.saferule import ALL_PASS, Confidence, censored_law, censoring, class_namer, safe_k_rule  # noqa: F401  (re-exported)
+from calib.analysis import bounds, policy as policy_answer
+from calib.analysis.cells import CellStats, cell_stats
+from calib.analysis.classnames import class_namer
 from calib.analysis.classrule import folder_rules, fraction_rule
-from calib.analysis.law import Law, fit_law
-from calib.features import NUMERIC, median_features
+from calib.analysis.law import Law, censored_law
 from calib.analysis.logistic import LogisticFit
 from calib.analysis.rows import load_rows
-from calib.analysis.success import OPTIMIZATION_KINDS, Predicate, evaluate, metric_error, primary_tau, with_tau
 from calib.analysis.tablefile import FORMAT, VERSION, dumps, seal
 from calib.errors import InputError
-from calib.sweep.store import Store
+from calib.features import NUMERIC, median_features
+from calib.store.database import Store
+from calib.verdicts.saferule import Confidence, censoring
+from calib.verdicts.scope import instances_needed
+from calib.verdicts.success import OPTIMIZATION_KINDS, Predicate, evaluate, metric_error, primary_tau, with_tau
 
 if TYPE_CHECKING:
     from calib.analysis.records import Analysis

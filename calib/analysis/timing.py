@@ -15,6 +15,8 @@ Timings differ between two runs of the same campaign, so they are kept out of th
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 
@@ -59,7 +61,7 @@ def nothing_saved(timings: pd.DataFrame) -> bool:
     return not bool(pd.to_numeric(timings["speedup"], errors="coerce").gt(1.0).any())
 
 
-def write_timings(timings: pd.DataFrame, path) -> None:
+def write_timings(timings: pd.DataFrame, path: str | Path) -> None:
     """CSV of :func:`timing_frame` (written whole or not at all)."""
     from calib.outputs import write_file
 

@@ -36,13 +36,13 @@ def register(subparsers) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from calib.analysis.compare import Settings, build_comparison, verdict_lines
-    from calib.analysis.records import Comparison
-    from calib.analysis.tablefile import dumps
-    from calib.analysis.rows import load_rows
     from calib.analysis.campaign import store_defaults
+    from calib.analysis.records import Comparison
+    from calib.analysis.rows import load_rows
+    from calib.analysis.tablefile import dumps
     from calib.errors import InputError
     from calib.outputs import check_target, write_file
-    from calib.sweep.store import Store
+    from calib.store.database import Store
 
     if args.resamples < 100:
         raise InputError("--resamples", f"must be at least 100, got {args.resamples}", "e.g. --resamples 1000")

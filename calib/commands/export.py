@@ -19,10 +19,10 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.analysis.export import export_frame, write_export
     from calib.errors import InputError
     from calib.outputs import check_target
-    from calib.sweep.export import export_frame, write_export
-    from calib.sweep.store import Store
+    from calib.store.database import Store
 
     if args.csv is None and args.parquet is None:
         raise InputError("calib export", "no output chosen", "give --csv FILE and/or --parquet FILE")

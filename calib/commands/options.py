@@ -17,7 +17,7 @@ from calib.analysis.campaign import PredicateOptions
 
 def add_predicate_options(parser: argparse.ArgumentParser) -> None:
     """Options that choose the success predicate and the confidence target (shared with `probe`)."""
-    from calib.analysis.success import PRESETS
+    from calib.verdicts.success import PRESETS
 
     group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
     group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
@@ -65,7 +65,7 @@ def add_analysis_options(parser: argparse.ArgumentParser) -> None:
                             "A time limit is always a failure")
 
 
-#: --max-* option (its argparse dest) -> the tolerance name of :func:`calib.analysis.success.make_predicate`
+#: --max-* option (its argparse dest) -> the tolerance name of :func:`calib.verdicts.success.make_predicate`
 TOLERANCE_OPTIONS = {"max_gap": "gap", "max_obj_error": "obj", "max_infeasibility": "feas",
                      "max_sign_violation": "sign", "max_distortion": "distortion", "max_cost_excess": "cost"}
 

@@ -5,7 +5,7 @@ family); an MPS file (read as an LP in standard form: the family ``mps-dir`` wit
 folder as written and ``name`` = the file name); or a saved instance (the ``STEM.json`` manifest of
 :func:`calib.instance_io.save_instance`, any kind). The original is solved once; then each
 replicate draws a projector, solves the projected problem and runs the retrievals, exactly as one
-campaign trial does (:func:`calib.sweep.trial.run_trial`). The random streams are those of a
+campaign trial does (:func:`calib.trial.run_trial`). The random streams are those of a
 campaign with ``root_seed = --seed`` on the same instance (family, parameters, index), so a probe
 reproduces that campaign's rows. The output lists the metrics of every replicate, then the median
 and maximum of each metric and the success count under the chosen predicate with its one-sided
@@ -23,7 +23,8 @@ prints the trace (k, trials, successes, bounds) and the verdict. One retrieval i
 first ``--retrieval``, else the kind's default.
 
 The parts: :mod:`calib.sweep.probe` resolves the target and runs the trials, :mod:`calib.analysis.probe`
-summarises and prints them; this module reads the command line and chooses k.
+summarises and prints them; this module reads the command line, chooses k and prints a k search
+(its trace is the engine's, which the analysis does not import).
 """
 
 from __future__ import annotations
@@ -180,7 +181,6 @@ def find_k(target, choice, retrieval: Optional[Sequence[str]], m: int, solver: d
     """``--find-k``: the k search of a campaign on this one instance (:func:`calib.sweep.probe.search_k`)
     for the first of ``retrieval`` (else the kind's default), between ``low`` (default 1) and ``high``
     (default m); prints the trace and the verdict, and writes them to ``json_path`` when given."""
-    from calib.analysis.probe import search_text
     from calib.reduce import HANDLERS
     from calib.sweep.probe import check_projector, search_k
 
@@ -201,6 +201,27 @@ def find_k(target, choice, retrieval: Optional[Sequence[str]], m: int, solver: d
         write_file(json_path, json.dumps(payload, indent=2, sort_keys=True, allow_nan=False) + "\n", "--json")
         print(f"wrote {json_path}")
     return 0
+
+
+def search_text(target, original, choice, retrieval: str, search, m: int, predicate, cap: int, seed: int) -> str:
+    """The text of ``calib probe --find-k``: what was searched, the search's trace and verdict
+    (:func:`calib.sweep.search.trace_lines`), the trials it ran and the evidence notice."""
+    from calib.analysis.campaign import target_text
+    from calib.analysis.probe import objective_text
+    from calib.analysis.tables import NOTICE
+    from calib.sweep.search import trace_lines
+    from calib.theory import counting
+    from calib.wording import fold
+
+    objective = f", objective {objective_text(original.objective)}" if original.ok else ""
+    lines = [f"probe --find-k: {target.label} ({target.kind}; projected dimension m = {m}, n = {target.n_points} points)",
+             f"  n and m: {counting(target.kind)}",
+             f"original: {original.status}{objective}",
+             f"projector {choice.label}, retrieval {retrieval}, k in [{search.low}, {search.high}], at most {cap} trials per k",
+             f"target: success rate >= {search.rate:g} under {target_text(predicate)}"]
+    lines += trace_lines(search, f"success rate >= {search.rate:g}")
+    lines += [f"trials run: {search.trials_read} (seed {seed}: the streams of a campaign with root_seed = {seed})", NOTICE]
+    return fold(lines)
 
 
 def _search_range(low: Optional[int], high: Optional[int], max_trials: int, m: int) -> tuple[int, int]:

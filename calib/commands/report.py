@@ -43,10 +43,11 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.analysis.campaign import analyse_store
     from calib.analysis.records import SafeKTable
     from calib.analysis.report import build_report
     from calib.analysis.timing import timing_frame
-    from calib.analysis.campaign import analyse_store
+    from calib.commands.searches import replay_stored
     from calib.errors import InputError
     from calib.outputs import check_target, write_file
 
@@ -57,7 +58,7 @@ def run(args: argparse.Namespace) -> int:
         if args.timings is not None or args.spec is not None:
             raise InputError("--timings/--spec", "only go with a table file", "drop them: a store holds its own")
         keywords = {**options.analysis_keywords(args), "policy": True}
-        table, rows, spec, _ = analyse_store(args.store, options.predicate_options(args), **keywords)
+        table, rows, spec, _ = analyse_store(args.store, options.predicate_options(args), replay=replay_stored, **keywords)
         timings = timing_frame(rows, table["analyses"][0])
     write_file(args.html, build_report(SafeKTable.from_dict(table), timings, spec), "--html")
     print(f"wrote {args.html}")

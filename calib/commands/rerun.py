@@ -18,8 +18,8 @@ def register(subparsers) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.store.database import Store
     from calib.sweep.rerun import rerun
-    from calib.sweep.store import Store
 
     store = Store.open_existing(args.store)
     try:

@@ -50,6 +50,7 @@ def run(args: argparse.Namespace) -> int:
         print(dry_run(spec, out=args.out, new_campaign=args.new_campaign, scheduler=args.scheduler,
                       probe=not args.no_probe, in_process=args.in_process, workers=args.workers))
         return 0
+    from calib.store.reading import count_solver_errors
     from calib.sweep.estimate import check_memory, design_warning, search_warning, size_plans, skipped_lines
     from calib.sweep.runner import run_campaign
     from calib.wording import counted
@@ -88,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
         print(f"{counted(solver_errors, 'projected solve')} ended in a solver error: counted apart and left out of the success "
               f"rates by `calib tables` (--solver-errors fail counts them as failures)")
     if summary.searches:
-        from calib.analysis.campaign import search_report
+        from calib.commands.searches import search_report
 
         print(search_report(spec, summary.searches))
     if summary.lost:
@@ -96,20 +97,6 @@ def run(args: argparse.Namespace) -> int:
               file=sys.stderr)
         return 1
     return 0
-
-
-def count_solver_errors(store_path) -> int:
-    """Trials of the store that ran but whose projected solve ended in a solver error."""
-    from calib.sweep.store import Store
-
-    store = Store.open_existing(store_path)
-    try:
-        (count,) = store.db.execute(
-            "SELECT COUNT(DISTINCT trial_id) FROM trials WHERE status = 'ok' "
-            "AND json_extract(metrics, '$.proj_status') = 'solver_failed'").fetchone()
-    finally:
-        store.close()
-    return int(count)
 
 
 #: local worker processes allowed per core: each runs one solver thread, more only adds memory
@@ -163,7 +150,7 @@ class _ProgressBar:
 def _stored_in_plan(spec, done: set, planned: int) -> int:
     """Stored trials this spec would run: for a grid the planned trial ids found in the store (a
     store can hold trials of an earlier, different spec); for a search, at most its planned count."""
-    from calib.sweep.trial import expand
+    from calib.sweep.expansion import expand
 
     if spec.k_grid.is_search:
         return min(len(done), planned)
@@ -175,9 +162,10 @@ def dry_run(spec, *, out: str, new_campaign: bool = False, scheduler: Optional[s
     """The --dry-run report of ``spec`` (creates nothing): the store it would write under ``out``, the
     trial counts and the work estimate, with a timing probe unless ``probe`` is False; ``workers``
     (default: the cores), ``in_process`` and ``scheduler`` as the options of ``calib run``."""
+    from calib.store.database import Store
+    from calib.store.resume import locate
     from calib.sweep.estimate import check_memory, probe_sizes, render_plan, size_plans
     from calib.sweep.executors import default_workers
-    from calib.sweep.store import Store, locate
 
     path, exists = locate(spec, out, new_campaign)
     stored = 0

@@ -42,6 +42,7 @@ def run(args: argparse.Namespace) -> int:
     from calib.analysis.campaign import analyse_store
     from calib.analysis.records import SafeKTable
     from calib.analysis.tables import strip_policy, write_table
+    from calib.commands.searches import replay_stored
     from calib.analysis.timing import timing_frame, write_timings
     from calib.outputs import check_target
 
@@ -52,7 +53,8 @@ def run(args: argparse.Namespace) -> int:
     # only when asked (it rests on measured times)
     keywords = options.analysis_keywords(args)
     keywords["policy"] |= args.html is not None
-    table, rows, spec, searched = analyse_store(args.store, options.predicate_options(args), **keywords)
+    table, rows, spec, searched = analyse_store(args.store, options.predicate_options(args), replay=replay_stored,
+                                                **keywords)
     timings = timing_frame(rows, table["analyses"][0])
     written = table if args.policy else strip_policy(table)
     write_table(written, args.json, args.csv)
@@ -79,7 +81,7 @@ def run(args: argparse.Namespace) -> int:
 def search_summary(spec, cells) -> str:
     """For a store written by a k search: the k values above are the ones the search tested, and its own
     verdicts (replayed from the stored trials under the spec's [target]) follow."""
-    from calib.analysis.campaign import search_report
+    from calib.commands.searches import search_report
 
     return "\n" + fold(["the k values above are those a k search tested (counts per tested k); the table states the "
                         "search's own claims under its [target]; the search itself, replayed from the stored trials:"]

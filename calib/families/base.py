@@ -13,6 +13,7 @@ from typing import Any, Callable, Optional
 
 import numpy as np
 
+from calib.checks import is_integer, is_real
 from calib.errors import InputError
 
 
@@ -118,6 +119,8 @@ class Family:
         return size_label(self.size_keys, params)
 
     def make(self, params: dict, index: int, rng: np.random.Generator) -> Instance:
+        """Instance number ``index`` of this family at full ``params``, drawn from ``rng`` (the
+        instance's own stream, :meth:`calib.trial.InstanceRef.build`)."""
         problem, info = self.build(params, rng)
         return Instance(family=self.name, params=params, index=index, kind=self.kind, problem=problem, info=info)
 
@@ -150,6 +153,7 @@ def size_label(keys, params: dict) -> str:
 
 
 def register(family: Family) -> Family:
+    """Add ``family`` to :data:`REGISTRY` under its name (a name registered twice is a ``ValueError``)."""
     if family.name in REGISTRY:
         raise ValueError(f"family {family.name!r} registered twice")
     REGISTRY[family.name] = family
@@ -157,6 +161,7 @@ def register(family: Family) -> Family:
 
 
 def get(name: str, where: str = "family") -> Family:
+    """The registered family ``name``, else :class:`InputError` naming ``where`` and the known names."""
     if name not in REGISTRY:
         raise InputError(where, f"unknown family {name!r}", f"choose one of {', '.join(sorted(REGISTRY))} (see `calib families`)")
     return REGISTRY[name]
@@ -169,15 +174,18 @@ def require(condition: bool, where: str, problem: str, fix: str) -> None:
 
 
 def positive_int(params: dict, key: str, minimum: int = 1) -> None:
+    """``params[key]`` is an integer >= ``minimum``, else :class:`InputError`."""
     value = params[key]
-    require(isinstance(value, int) and not isinstance(value, bool) and value >= minimum,
+    require(is_integer(value) and value >= minimum,
             key, f"must be an integer >= {minimum}, got {value!r}", f"set {key} to an integer >= {minimum}")
 
 
 def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed_low: bool = False,
              closed_high: bool = True) -> None:
+    """``params[key]`` is a finite number in the interval from ``low`` to ``high`` (ends open or closed
+    as asked), else :class:`InputError`."""
     value = params[key]
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
+    ok = is_real(value) and np.isfinite(value)
     ok = ok and (low <= value if closed_low else low < value) and (value <= high if closed_high else value < high)
     bracket = ("[" if closed_low else "(") + f"{low}, {high}" + ("]" if closed_high else ")")
     require(ok, key, f"must lie in {bracket}, got {value!r}", f"pick {key} in that range")
@@ -186,10 +194,11 @@ def fraction(params: dict, key: str, low: float = 0.0, high: float = 1.0, closed
 def positive(params: dict, key: str, high: float = np.inf) -> None:
     """A finite real number in (0, high]."""
     value = params[key]
-    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value) and 0 < value <= high
+    ok = is_real(value) and np.isfinite(value) and 0 < value <= high
     require(ok, key, f"must be a finite number in (0, {high}], got {value!r}", f"set {key} to a positive number")
 
 
 def one_of(params: dict, key: str, options: tuple) -> None:
+    """``params[key]`` is one of ``options``, else :class:`InputError` listing them."""
     value = params[key]
     require(value in options, key, f"must be one of {', '.join(map(repr, options))}, got {value!r}", f"pick one of {', '.join(map(str, options))}")

@@ -23,6 +23,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
+from calib.checks import is_real
 from calib.conic import QP, qp_points
 from calib.families.base import Family, fraction, positive_int, register, require
 from calib.families.lp_random import _matrix
@@ -80,7 +81,7 @@ def _check_random(params: dict) -> None:
     fraction(params, "rank")
     for key in ("ridge", "radius"):
         value = params[key]
-        require(isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value) and value >= 0,
+        require(is_real(value) and np.isfinite(value) and value >= 0,
                 key, f"must be a finite number >= 0, got {value!r}", f"set {key} >= 0")
     require(params["ridge"] > 0 or params["radius"] > 0, "ridge", "with ridge = 0 and no ball the QP may be unbounded",
             "set ridge > 0 or radius > 0")

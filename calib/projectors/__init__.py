@@ -16,6 +16,7 @@ from typing import Any, Sequence, Union
 
 import numpy as np
 
+from calib.checks import is_integer
 from calib.errors import InputError
 from calib.projectors.achlioptas import AchlioptasProjector
 from calib.projectors.base import Projector
@@ -63,9 +64,9 @@ def make(name: str, k: int, m: int, seed: SeedLike, **options: Any) -> Projector
     np.int64(4)
     """
     check_name(name)
-    if isinstance(k, bool) or not isinstance(k, (int, np.integer)) or k < 1:
+    if not is_integer(k) or k < 1:
         raise InputError("k", f"must be a positive integer, got {k!r}", "use k >= 1")
-    if isinstance(m, bool) or not isinstance(m, (int, np.integer)) or m < 1:
+    if not is_integer(m) or m < 1:
         raise InputError("m", f"must be a positive integer, got {m!r}", "the projected dimension is at least 1")
     family = REGISTRY[name]
     options = family.check_options(int(k), int(m), **options)

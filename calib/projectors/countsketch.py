@@ -23,9 +23,11 @@ class CountSketchProjector(SparseJLProjector):
 
     @classmethod
     def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """No options (one nonzero per column by definition): {} or :class:`InputError`."""
         reject_unknown(cls.name, options, allowed=())
         return {}
 
     @property
     def s(self) -> int:
+        """Nonzeros per column of T: 1."""
         return 1

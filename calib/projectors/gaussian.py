@@ -32,4 +32,5 @@ class GaussianProjector(Projector):
         return self._T_transposed.T @ X
 
     def matrix(self) -> np.ndarray:
+        """The dense k x m matrix T itself (entries N(0, 1/k)), a copy."""
         return self._T_transposed.T.copy()

@@ -34,7 +34,7 @@ CHUNK_NONZEROS = 1 << 16
 MatrixIn = Callable[[str], sp.sparray]
 
 
-def sparse_times(T_in: MatrixIn, X, shape: tuple[int, int], nnz: int) -> np.ndarray | sp.sparray:
+def sparse_times(T_in: MatrixIn, X: np.ndarray | sp.sparray | sp.spmatrix, shape: tuple[int, int], nnz: int) -> np.ndarray | sp.sparray:
     """T @ X for X dense (m, n) or scipy.sparse CSR/CSC (m, n); T has ``shape`` and ``nnz``."""
     if sp.issparse(X):
         if X.format == "csc":

@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
+from calib.checks import is_integer
 from calib.errors import InputError
 from calib.projectors.base import ArrayLike, reject_unknown
 from calib.projectors.construct import column_signs
@@ -34,9 +35,11 @@ class SparseJLProjector(SparseSignProjector):
 
     @classmethod
     def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """``s``, the nonzeros per column (an integer in [1, k], default min(DEFAULT_S, k)), or
+        :class:`InputError`."""
         reject_unknown(cls.name, options, allowed=("s",))
         s = options.get("s", min(DEFAULT_S, k))
-        if isinstance(s, bool) or not isinstance(s, (int, np.integer)) or not 1 <= s <= k:
+        if not is_integer(s) or not 1 <= s <= k:
             raise InputError("projector sparse-jl: s", f"must be an integer in [1, k={k}], got {s!r}",
                              "use a few nonzeros per column, e.g. s = 4")
         return {"s": int(s)}

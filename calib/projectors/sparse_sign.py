@@ -37,4 +37,5 @@ class SparseSignProjector(Projector):
         return sparse_times(self._matrix_in, X, (self.k, self.m), self.nnz)
 
     def matrix(self) -> np.ndarray:
+        """The k x m matrix T made dense from its stored sparse form (for tests and small m)."""
         return next(iter(self._formats.values())).toarray()

@@ -39,6 +39,7 @@ class SRHTProjector(Projector):
 
     @classmethod
     def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """No options; k must not exceed m' (the padded power of two), else :class:`InputError`."""
         reject_unknown(cls.name, options, allowed=())
         padded = next_power_of_two(m)
         if k > padded:
@@ -67,4 +68,5 @@ class SRHTProjector(Projector):
         return out
 
     def matrix(self) -> np.ndarray:
+        """The k x m matrix sqrt(m'/k) R H D made dense (an explicit Hadamard matrix: small m only)."""
         return hadamard(self._plan.size)[self.rows, : self.m] * self._weights

@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from calib.checks import is_real
 from calib.errors import InputError
 from calib.projectors.base import reject_unknown
 from calib.projectors.construct import bernoulli_signs
@@ -36,10 +37,11 @@ class VerySparseProjector(SparseSignProjector):
 
     @classmethod
     def check_options(cls, k: int, m: int, **options: Any) -> dict[str, Any]:
+        """``density``, the expected share of nonzero entries (in (0, 1], default 1/sqrt(m); Li, Hastie
+        & Church 2006), or :class:`InputError`."""
         reject_unknown(cls.name, options, allowed=("density",))
         density = options.get("density", default_density(m))
-        if isinstance(density, bool) or not isinstance(density, (int, float, np.floating)) \
-                or not 0.0 < float(density) <= 1.0:
+        if not is_real(density) or not 0.0 < float(density) <= 1.0:
             raise InputError("projector very-sparse: density", f"must lie in (0, 1], got {density!r}",
                              f"use a fraction of nonzeros such as {default_density(m):.3g} (1/sqrt(m))")
         return {"density": float(density)}

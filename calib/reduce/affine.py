@@ -27,7 +27,7 @@ from __future__ import annotations
 import time
 import weakref
 from dataclasses import dataclass
-from typing import Callable, Optional
+from typing import Any, Callable, Optional
 
 import numpy as np
 import scipy.sparse as sp
@@ -39,7 +39,7 @@ DENSE_ENTRIES_LIMIT = 4_000_000
 LSQR_TOL, LSQR_ITER_FACTOR = 1e-12, 10
 
 
-def least_squares(A, b: np.ndarray) -> np.ndarray:
+def least_squares(A: np.ndarray | sp.spmatrix | sp.sparray, b: np.ndarray) -> np.ndarray:
     """Minimum-norm least-squares solution of A x ~= b (dense or sparse A of shape (m, n)), shape (n,).
 
     >>> least_squares(np.array([[1.0, 1.0]]), np.array([2.0])).round(12).tolist()
@@ -94,7 +94,7 @@ class AffineSet:
 _FACTORED: dict[int, AffineSet] = {}
 
 
-def affine_set(problem) -> tuple[AffineSet, float]:
+def affine_set(problem: Any) -> tuple[AffineSet, float]:
     """The affine set {x : problem.A x = problem.b}, factored on first use and reused while ``problem``
     lives, with the seconds this call spent building it (0.0 when it was reused).
 

@@ -54,6 +54,7 @@ class Context:
 
     @property
     def time_limit(self) -> float:
+        """The spec's time limit of one solve, in seconds (60 when unset)."""
         return float(self.solver.get("time_limit_s", 60.0))
 
 
@@ -83,29 +84,31 @@ class Handler:
     basis_retrievals: ClassVar[frozenset] = frozenset()
 
     @classmethod
-    def solve_baseline(cls, problem, solver: dict) -> solve_methods.Baseline:
+    def solve_baseline(cls, problem: Any, solver: dict) -> solve_methods.Baseline:
         """The original solved by every configured method (:func:`calib.solvers.methods.race`)."""
         return solve_methods.race(lambda name: cls.solve_with(problem, name, solver, False),
                                   solve_methods.configured(cls.kind, solver))
 
     @classmethod
-    def solve_original(cls, problem, solver: dict) -> SolveResult:
+    def solve_original(cls, problem: Any, solver: dict) -> SolveResult:
         """The reference solve of the original (the first configured method that reaches a verdict)."""
         return cls.solve_baseline(problem, solver).result
 
     @classmethod
-    def projected_method(cls, problem, solver: dict) -> str:
+    def projected_method(cls, problem: Any, solver: dict) -> str:
         """The method of a projected solve: the spec's ``projected`` choice, ``auto`` by default."""
         chosen = (solver.get("projected") or {}).get(cls.kind, "auto")
         return cls.auto_method(problem) if chosen == "auto" else chosen
 
     @classmethod
-    def auto_method(cls, problem) -> str:
+    def auto_method(cls, problem: Any) -> str:
         """The ``auto`` method: the first default method that applies (LPs override this)."""
         return solve_methods.DEFAULT_METHODS[cls.kind][0]
 
     @classmethod
-    def solve_reduced(cls, reduced, solver: dict, need_basis: bool = True) -> SolveResult:
+    def solve_reduced(cls, reduced: Any, solver: dict, need_basis: bool = True) -> SolveResult:
+        """The projected problem (from :meth:`reduce`) solved by :meth:`projected_method`, or by the
+        first default method when the named one does not apply; ``result.method`` says which."""
         problem = cls.reduced_problem(reduced)
         method = cls.projected_method(problem, solver)
         result = cls.solve_with(problem, method, solver, need_basis)
@@ -116,7 +119,9 @@ class Handler:
         return result
 
     @staticmethod
-    def reduced_problem(reduced):
+    def reduced_problem(reduced: Any) -> Any:
+        """The solvable problem inside a reduced one: the reduced problem itself unless a kind keeps
+        more beside it (QPs)."""
         return reduced
 
     @classmethod
@@ -126,7 +131,7 @@ class Handler:
         return chosen or [cls.default_retrieval]
 
     @classmethod
-    def trial_records(cls, problem, original: SolveResult, projector: Projector, retrievals: list[str],
+    def trial_records(cls, problem: Any, original: SolveResult, projector: Projector, retrievals: list[str],
                       solver: dict, baseline: Optional[dict] = None) -> list[dict]:
         """One metrics record per selected retrieval, all sharing one projected solve.
 
@@ -158,14 +163,14 @@ class Handler:
         return rows
 
     @classmethod
-    def objective_scale(cls, problem, original: SolveResult) -> Optional[float]:
+    def objective_scale(cls, problem: Any, original: SolveResult) -> Optional[float]:
         """The objective's scale (:mod:`calib.metrics`); None without an original optimum."""
         if not original.ok or original.x is None:
             return None
         return scale(original.objective, cls.objective_size(problem, original.x))
 
     @staticmethod
-    def decision_metrics(problem, x: np.ndarray, x_orig: np.ndarray) -> dict:
+    def decision_metrics(problem: Any, x: np.ndarray, x_orig: np.ndarray) -> dict:
         """Metrics of the user's decision at x against the original optimum x_orig (none by default)."""
         return {}
 
@@ -221,17 +226,20 @@ class RowProjectionHandler(Handler):
     bound = "relaxation"
 
     @staticmethod
-    def projected_dim(problem) -> int:
+    def projected_dim(problem: Any) -> int:
+        """m, the equality rows of A (the length of b) that T of shape (k, m) aggregates."""
         return problem.n_rows
 
     @staticmethod
-    def reduce(problem, projector: Projector):
+    def reduce(problem: Any, projector: Projector) -> Any:
         """The same problem with A -> T A and b -> T b (T of shape (k, m))."""
         return dataclasses.replace(problem, A=projector.apply(problem.A), b=projector.apply(problem.b),
                                    name=f"{problem.name}|{projector.name}-k{projector.k}")
 
     @classmethod
-    def point_metrics(cls, problem, x: np.ndarray, x_ref: np.ndarray) -> dict:
+    def point_metrics(cls, problem: Any, x: np.ndarray, x_ref: np.ndarray) -> dict:
+        """``feas_error`` (:func:`relative_residual`, at the scale of ``x_ref``) and ``sign_violation``
+        (the cone's) of the point x, shape (n,) like ``x_ref``."""
         return {"feas_error": relative_residual(problem, x, x_ref), "sign_violation": cls.cone_violation(x)}
 
 
@@ -254,7 +262,7 @@ def relative_distance(point: np.ndarray, reference: np.ndarray) -> Optional[floa
     return relative(np.linalg.norm(point - reference), np.linalg.norm(reference))
 
 
-def relative_residual(problem, x: np.ndarray, x_ref: np.ndarray) -> Optional[float]:
+def relative_residual(problem: Any, x: np.ndarray, x_ref: np.ndarray) -> Optional[float]:
     """||A x - b|| / max(||b||, SCALE_FLOOR * || |A| |x_ref| ||) for an LP or SDP (svec) problem.
 
     >>> from calib.problems import StandardLP

@@ -35,7 +35,7 @@ Retrieval maps the projected solution x' (with its basis B and duals y') back to
     (``completion_shortfall``), never repaired by solving the original.
 
 ``exact`` retrievals return the original's own optimum: their errors are zero by construction, so
-the analysis judges them on time saved alone (:mod:`calib.analysis.success`).
+the analysis judges them on time saved alone (:mod:`calib.verdicts.success`).
 
 The projected LP is solved by the method of :mod:`calib.solvers.methods` (``auto``: interior
 point on a large dense projected matrix); ``basis-lstsq``, ``restricted-repair`` and ``warm-start``
@@ -217,6 +217,8 @@ class LPHandler(RowProjectionHandler):
 
     @staticmethod
     def solve_with(lp: StandardLP, method: str, solver: dict, need_basis: bool) -> SolveResult:
+        """HiGHS by ``method`` (simplex or interior point) within the spec's time limit (seconds), with
+        its ``highs`` options; ``need_basis``: return the optimal basis (the basis retrievals read it)."""
         from calib.solvers.highs import solve_lp
 
         return solve_lp(lp, time_limit=solver["time_limit_s"], options=solver.get("highs"), method=method,
@@ -224,12 +226,14 @@ class LPHandler(RowProjectionHandler):
 
     @staticmethod
     def auto_method(lp: StandardLP) -> str:
+        """The HiGHS method :func:`calib.solvers.methods.auto_lp_method` picks from the shape of A."""
         from calib.solvers.methods import auto_lp_method
 
         return auto_lp_method(lp.A)
 
     @staticmethod
     def objective_size(lp: StandardLP, x: np.ndarray) -> float:
+        """|c|^T |x| + |offset| at the point x, shape (n,)."""
         return linear_size(lp.c, x, lp.offset)
 
     @staticmethod

@@ -28,6 +28,7 @@ from calib.milp import StandardMILP, rounded_decision, violated_rows
 from calib.reduce.base import Context, Retrieved, RowProjectionHandler, linear_size, relative_residual
 from calib.reduce.completion import complete
 from calib.solvers.milp import solve_milp
+from calib.solvers.result import SolveResult
 
 
 def complete_milp(problem: StandardMILP, z: np.ndarray) -> np.ndarray:
@@ -53,14 +54,17 @@ class MILPHandler(RowProjectionHandler):
     default_retrieval = "completion"
 
     @staticmethod
-    def solve_with(problem: StandardMILP, method: str, solver: dict, need_basis: bool):
+    def solve_with(problem: StandardMILP, method: str, solver: dict, need_basis: bool) -> SolveResult:
         """HiGHS MIP (method ``highs``) within the spec's time limit, with its ``highs`` options."""
         return solve_milp(problem, float(solver.get("time_limit_s", 60.0)), solver.get("highs"))
 
     @staticmethod
-    def objective_size(problem: StandardMILP, z):
+    def objective_size(problem: StandardMILP, z: np.ndarray) -> float:
+        """|c|^T |z| + |offset| at the point z, shape (n,) (:func:`calib.reduce.base.linear_size`)."""
         return linear_size(problem.c, z, problem.offset)
 
     @classmethod
-    def point_metrics(cls, problem: StandardMILP, z, z_ref) -> dict:
+    def point_metrics(cls, problem: StandardMILP, z: np.ndarray, z_ref: np.ndarray) -> dict:
+        """``feas_error`` of z (relative residual at the scale of ``z_ref``) and ``rows_violated``
+        (rows of A z = b missed beyond the tolerance of :func:`calib.milp.violated_rows`)."""
         return {"feas_error": relative_residual(problem, z, z_ref), "rows_violated": violated_rows(problem, z)}

@@ -26,9 +26,10 @@ table states the widened claim (:func:`sampled_claim`).
 from __future__ import annotations
 
 import time
-from typing import Optional
+from typing import Callable, Iterator, Optional
 
 import numpy as np
+from numpy.typing import DTypeLike
 
 from calib.conic import PointSet
 from calib.metrics import record
@@ -94,7 +95,8 @@ def _block_rows(n_points: int, start: int) -> int:
     return max(1, BLOCK_ENTRIES // max(1, n_points - start))
 
 
-def upper_blocks(gram_rows, n_points: int):
+def upper_blocks(gram_rows: Callable[[int, int], tuple[np.ndarray, np.ndarray]],
+                 n_points: int) -> Iterator[tuple[int, int, np.ndarray]]:
     """Yield (start, stop, block) with block[r, c] = ‖a_{start+r} - a_{start+r+1+c'}‖² over the strict
     upper triangle, flattened row by row; ``gram_rows(start, stop)`` returns (rows (b, n - start) Gram
     part, squared norms of all points)."""
@@ -113,8 +115,9 @@ def _gram_of(points: np.ndarray):
     return lambda start, stop: (points[start:stop] @ points[start:].T, norms)
 
 
-def all_pair_squared_distances(points: np.ndarray, dtype=np.float32) -> np.ndarray:
-    """‖p_i - p_j‖² for i < j in row-major order of the strict upper triangle, shape (n(n-1)/2,)."""
+def all_pair_squared_distances(points: np.ndarray, dtype: DTypeLike = np.float32) -> np.ndarray:
+    """‖p_i - p_j‖² for i < j in row-major order of the strict upper triangle, shape (n(n-1)/2,), of
+    the rows of ``points`` (n, d); float32 by default (half the memory of the n² / 2 values)."""
     n = points.shape[0]
     out = np.empty(total_pairs(n), dtype=dtype)
     at = 0
@@ -134,6 +137,7 @@ class TopShare:
         self.maximum = 0.0
 
     def add(self, values: np.ndarray) -> None:
+        """Take in one block of values (any shape; flattened), keeping only the top share."""
         if values.size:
             self.maximum = max(self.maximum, float(values.max()))
         self.values = np.concatenate([self.values, values])
@@ -141,6 +145,7 @@ class TopShare:
             self.values = np.partition(self.values, self.values.size - self.keep)[-self.keep:]
 
     def quantile(self) -> float:
+        """The ``QUANTILE`` of every value added, as ``numpy.quantile`` (linear interpolation) gives it."""
         top = np.sort(self.values)[-self.keep:]
         fraction = self.rank - np.floor(self.rank)
         return float(top[0] + fraction * (top[1] - top[0])) if top.size > 1 else float(top[0])
@@ -193,7 +198,7 @@ def measure(points: PointSet, projected: np.ndarray) -> dict:
     return dict(distortion_max=worst, distortion_q99=q99, pairs_checked=checked, pairs_total=total_pairs(points.n_points))
 
 
-def sketched(points, projector: Projector) -> tuple[np.ndarray, float]:
+def sketched(points: PointSet, projector: Projector) -> tuple[np.ndarray, float]:
     """(the projected points T x_i as rows, shape (n, k); t_sketch: drawing T plus applying it, in s)."""
     start = time.perf_counter()
     projected = np.asarray(projector.apply(points.columns)).T
@@ -209,6 +214,7 @@ class PointsHandler(Handler):
 
     @staticmethod
     def projected_dim(points: PointSet) -> int:
+        """d, the coordinates of each point that T of shape (k, d) shrinks."""
         return points.dim
 
     @staticmethod

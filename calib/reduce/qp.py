@@ -93,6 +93,7 @@ class QPHandler(Handler):
 
     @staticmethod
     def projected_dim(qp: QP) -> int:
+        """n, the variables that x = T^T y, T of shape (k, n), restricts to a k-dimensional subspace."""
         return qp.n_vars
 
     @staticmethod
@@ -106,14 +107,17 @@ class QPHandler(Handler):
 
     @staticmethod
     def auto_method(qp: QP) -> str:
+        """``scs`` with a ball constraint (HiGHS solves no conic QP), else ``highs``."""
         return "scs" if qp.has_ball else "highs"
 
     @staticmethod
     def reduce(qp: QP, projector: Projector) -> ReducedQP:
+        """The QP restricted to x = T^T y (:func:`project_qp`)."""
         return project_qp(qp, projector)
 
     @staticmethod
     def reduced_problem(reduced: ReducedQP) -> QP:
+        """The k-variable QP inside the reduced one (T is kept beside it to map y back)."""
         return reduced.qp
 
     @staticmethod
@@ -123,6 +127,7 @@ class QPHandler(Handler):
 
     @staticmethod
     def point_metrics(qp: QP, x: np.ndarray, x_ref: np.ndarray) -> dict:
+        """``feas_error`` of the point x, shape (n,), at the scale of ``x_ref`` (:func:`feas_error`)."""
         return {"feas_error": feas_error(qp, x, x_ref)}
 
     @staticmethod

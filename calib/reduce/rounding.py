@@ -52,6 +52,7 @@ from typing import Iterator, NamedTuple, Optional
 import numpy as np
 import scipy.sparse as sp
 
+from calib.checks import is_integer
 from calib.conic import StandardSDP
 from calib.errors import InputError
 from calib.problems import Matrix
@@ -110,7 +111,7 @@ def _check_pair(W, X, where: str = "X") -> None:
 
 
 def _check_draws(draws: int) -> None:
-    if isinstance(draws, bool) or not isinstance(draws, (int, np.integer)) or draws < 1:
+    if not is_integer(draws) or draws < 1:
         raise InputError("draws", f"must be an integer >= 1, got {draws!r}", "give the number of random hyperplanes")
 
 

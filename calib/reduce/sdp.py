@@ -102,12 +102,14 @@ class SDPHandler(RowProjectionHandler):
 
     @staticmethod
     def solve_with(sdp: StandardSDP, method: str, solver: dict, need_basis: bool) -> SolveResult:
+        """SCS (the one SDP method) within the spec's time limit (seconds), with its ``scs`` settings."""
         from calib.solvers.scs_sdp import solve_sdp
 
         return solve_sdp(sdp, time_limit=solver["time_limit_s"], settings=solver.get("scs"))
 
     @staticmethod
     def objective_size(sdp: StandardSDP, x: np.ndarray) -> float:
+        """|c|^T |x| + |offset| at the svec point x, shape (n (n + 1) / 2,)."""
         return linear_size(sdp.c_vec, x, sdp.offset)
 
     @staticmethod

@@ -73,6 +73,7 @@ class SolveResult:
 
     @property
     def ok(self) -> bool:
+        """Whether the solve reached an optimum (status ``optimal``)."""
         return self.status == "optimal"
 
     @property

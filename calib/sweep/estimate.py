@@ -9,7 +9,7 @@ of the grid (first projector, replicate 0). Work per size is then
 
 a linear interpolation in k that is rough by design; divide by the workers for the wall time.
 
-Design advice (:func:`calib.analysis.scope.design_advice`), per size, at the default target of
+Design advice (:func:`calib.verdicts.scope.design_advice`), per size, at the default target of
 ``calib tables`` (success 0.9 at 95% confidence): whether the instances x replicates of the spec can
 certify the target for the instances measured and for the class, and the smallest change that
 would (more replicates for an instances-only claim, more instances for the class).
@@ -23,9 +23,11 @@ from typing import Optional
 
 from calib.families import get as get_family
 from calib.keys import canonical_json
+from calib.sweep.expansion import instance_refs
+from calib.sweep.kgrid import skipped_ks
 from calib.sweep.runner import retrieval_names
-from calib.sweep.spec import Spec, skipped_ks
-from calib.sweep.trial import InstanceRef, Trial, instance_refs
+from calib.sweep.spec import Spec
+from calib.trial import InstanceRef, Trial
 from calib.wording import byte_size, counted
 
 
@@ -138,7 +140,7 @@ def probe_sizes(spec: Spec, plans: list[SizePlan]) -> list[Probe]:
     import time
 
     from calib.sweep.sandbox import Sandbox
-    from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask
+    from calib.sweep.tasks import Failure, ORIGINAL_FIELDS, OriginalTask, TrialTask
 
     box = Sandbox()
     box.wait_ready()
@@ -189,7 +191,7 @@ def advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
     A size of a fixed family is one problem (a file): its trials at a k are its instances x
     replicates draws of the projection, so the advice speaks of replicates, and the class is the
     folder, with the files as its units (:func:`file_advice`)."""
-    from calib.analysis.scope import advice_text, design_advice
+    from calib.verdicts.scope import advice_text, design_advice
 
     if spec.k_grid.is_search:
         return search_advice_lines(spec, plans)
@@ -210,15 +212,17 @@ def search_need(spec: Spec, plan: SizePlan):
     """The :class:`calib.sweep.search.CapNeed` of the k search of one size of a search spec."""
     from calib.sweep.search import cap_need
 
-    return cap_need(plan.ks[0], plan.ks[-1], spec.target.rate, spec.target.confidence, spec.k_grid.step)
+    m = get_family(plan.family).projected_dim(plan.params)
+    top = m - 1 if spec.k_grid.extend else None  # the search goes on above high up to m - 1 (calib.sweep.search)
+    return cap_need(plan.ks[0], plan.ks[-1], spec.target.rate, spec.target.confidence, spec.k_grid.step, top=top)
 
 
 def search_advice_lines(spec: Spec, plans: list[SizePlan]) -> list[str]:
     """Per size of a k search: whether its cap of trials per k (instances x replicates) lets a k pass
     the search's own looks, and the replicates it needs when not; then what the class scope of the
     table made from the store can certify."""
-    from calib.analysis.scope import design_advice
     from calib.sweep.search import cap_text
+    from calib.verdicts.scope import design_advice
 
     target, level = spec.target, f"{spec.target.rate:.0%} at {spec.target.confidence:.0%}"
     lines = [f"design (the k search's target: {level}):"]
@@ -255,7 +259,7 @@ def search_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
 def _file_text(instances: int, replicates: int, files: int) -> str:
     """Whether instances x replicates trials per k of each of ``files`` files can certify the target on
     every file (a file is one problem: more trials are more replicates)."""
-    from calib.analysis.classrule import trials_per_unit_needed
+    from calib.verdicts.stats import trials_per_unit_needed
 
     needed = trials_per_unit_needed(files, ADVICE_TARGET, ADVICE_CONFIDENCE)
     draws = instances * replicates
@@ -272,7 +276,7 @@ def file_advice(files: int, instances: int, replicates: int) -> str:
     >>> file_advice(3, 1, 3)
     '3 files: the rule for these files: each of these 3 files (Bonferroni): cannot certify 90% at 95% (3 trials per k, 39 needed): use replicates = 39; the rule for the class (files as the unit): use 29 files (add 26)'
     """
-    from calib.analysis.scope import instances_needed
+    from calib.verdicts.scope import instances_needed
 
     needed = instances_needed(ADVICE_TARGET, ADVICE_CONFIDENCE)
     klass = ("can certify it" if files >= needed else f"use {needed} files (add {needed - files})")
@@ -298,7 +302,7 @@ def _file_classes(plans: list[SizePlan]) -> dict[str, tuple[int, int]]:
 def design_warning(spec: Spec, plans: list[SizePlan]) -> Optional[str]:
     """One line when some size cannot surely certify the target for the class, else None (sizes that
     are files are left out: their class is the folder, see :func:`advice_lines`)."""
-    from calib.analysis.scope import design_advice
+    from calib.verdicts.scope import design_advice
 
     short = [plan for plan in plans if not get_family(plan.family).fixed
              and not design_advice(plan.instances, spec.replicates, ADVICE_TARGET, ADVICE_CONFIDENCE)["class_sure"]]

@@ -7,7 +7,7 @@ with ``dir`` = the folder as written and ``name`` = the file name); or a saved i
 are those of a campaign with ``root_seed = seed`` on the same instance (family, parameters, index),
 so a probe reproduces that campaign's rows.
 
-Two experiments, each exactly what campaign trials do (:func:`calib.sweep.trial.run_trial`):
+Two experiments, each exactly what campaign trials do (:func:`calib.trial.run_trial`):
 
 - :func:`measure_at_k`: replicates 0 .. r-1 at one k, each a projector draw, a projected solve and
   every retrieval; one metrics record per (replicate, retrieval): r x len(retrievals) records.
@@ -36,7 +36,7 @@ class Target:
     label: str
     kind: str
     problem: Any
-    ref: Any  # calib.sweep.trial.InstanceRef
+    ref: Any  # calib.trial.InstanceRef
     n_points: int
 
 
@@ -62,7 +62,7 @@ def resolve_target(target: str, params: Sequence[str] = (), seed: int = 0) -> Ta
     deterministically with the streams of ``root_seed = seed``; ``params`` are the family's
     ``key=value`` parameters (refused for a file)."""
     from calib import families
-    from calib.sweep.trial import InstanceRef
+    from calib.trial import InstanceRef
 
     path = Path(target)
     if target.lower().endswith(".json"):
@@ -89,7 +89,7 @@ def _saved_target(path: Path, params: Sequence[str], seed: int) -> Target:
     """A saved instance (:func:`calib.instance_io.load_instance`); streams of its family, params and index."""
     from calib import families
     from calib.instance_io import load_instance
-    from calib.sweep.trial import InstanceRef
+    from calib.trial import InstanceRef
 
     if params:
         raise InputError("--param", "parameters apply to families, not to a saved instance", "drop --param")
@@ -116,7 +116,7 @@ def check_retrievals(requested: Optional[Sequence[str]], kind: str) -> list[str]
 def projector_choice(name: str, options: Sequence[str] = ()):
     """The :class:`calib.sweep.spec.ProjectorChoice` of projector ``name`` with ``key=value`` ``options``."""
     from calib import projectors
-    from calib.sweep.spec import ProjectorChoice
+    from calib.trial import ProjectorChoice
 
     projectors.check_name(name, "--projector")
     parsed = parse_assignments(list(options), "--projector-opt")
@@ -140,7 +140,7 @@ def measure_at_k(target: Target, choice, k: int, replicates: int, baseline, retr
     ``len(retrievals)`` records); ``baseline`` is the original's solve by every method
     (:meth:`Handler.solve_baseline`)."""
     from calib.solvers.methods import baseline_info
-    from calib.sweep.trial import Trial, run_trial
+    from calib.trial import Trial, run_trial
 
     records = []
     for replicate in range(replicates):
@@ -172,8 +172,8 @@ def search_k(target: Target, choice, retrieval: str, original, *, low: int, high
 
 def trial_success(target: Target, choice, k: int, replicate: int, original, retrieval: str, solver: dict, predicate) -> bool:
     """Success of one campaign trial under ``predicate``; a trial that raises counts as a failure, as in a campaign."""
-    from calib.analysis.success import judge_records
-    from calib.sweep.trial import Trial, run_trial
+    from calib.verdicts.success import judge_records
+    from calib.trial import Trial, run_trial
 
     try:
         (record,) = run_trial(Trial(target.ref, choice, k, replicate), target.problem, target.kind, original, [retrieval], solver)

@@ -18,13 +18,14 @@ import json
 import math
 from dataclasses import dataclass, field
 
+from calib.checks import is_real
 from calib.errors import InputError
 from calib.metrics import FIELDS
+from calib.store.database import Store
+from calib.store.sqlite import DAMAGED_FIX
 from calib.sweep.plugins import allowed
-from calib.sweep.spec import ProjectorChoice
-from calib.sweep.store import DAMAGED_FIX, Store
-from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask
-from calib.sweep.trial import InstanceRef, Trial
+from calib.sweep.tasks import Failure, ORIGINAL_FIELDS, OriginalTask, TrialTask
+from calib.trial import InstanceRef, ProjectorChoice, Trial
 
 #: metric fields that measure time: shown side by side, never compared
 TIMING_FIELDS = tuple(name for name, field in FIELDS.items() if field.units == "s")
@@ -126,7 +127,7 @@ def _rebuild(store: Store, trial_id: str) -> tuple[Trial, tuple, dict, dict, tup
     solver = json.loads(solver) if solver else _spec_solver(store)
     for key in ("time_limit_s", "trial_timeout_s"):
         value = solver[key]
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not 0 < value < 1e6:
+        if not is_real(value) or not 0 < value < 1e6:
             raise ValueError(f"solver option {key} = {value!r}")
     plugins = allowed(tuple(name for name in meta.get("plugins", "").split(",") if name), str(store.path))
     return trial, tuple(row["retrieval"] for row in rows), solver, instance, plugins

@@ -31,10 +31,11 @@ from pathlib import Path
 from typing import Callable, Optional
 
 from calib.keys import canonical_json
+from calib.store.database import Store
+from calib.sweep.expansion import count_trials, instance_refs, instance_trials
 from calib.sweep.spec import Spec
-from calib.sweep.store import Store
-from calib.sweep.tasks import ORIGINAL_FIELDS, Failure, OriginalTask, TrialTask, failed_original
-from calib.sweep.trial import InstanceRef, Trial, count_trials, instance_refs, instance_trials
+from calib.sweep.tasks import Failure, ORIGINAL_FIELDS, OriginalTask, TrialTask, failed_original
+from calib.trial import InstanceRef, Trial
 
 #: what a coordinator keeps per stored trial: the retrievals it has rows for
 Stored = dict
@@ -291,8 +292,8 @@ class SearchCell:
 
     @property
     def label(self) -> str:
-        from calib.families.base import size_label
         from calib.families import get
+        from calib.families.base import size_label
 
         return f"{self.family} {size_label(get(self.family).size_keys, self.params)} / {self.projector.label} / {self.retrieval}"
 
@@ -305,30 +306,32 @@ class SearchCell:
 def search_cells(spec: Spec) -> list[SearchCell]:
     """One :class:`SearchCell` per (size, projector, retrieval) of a search spec, in spec order."""
     from calib.families import get
+    from calib.sweep.kgrid import k_values, search_range
     from calib.sweep.search import KSearch
-    from calib.sweep.spec import k_values, search_range
 
     cells = []
     for cell in spec.families:
         family = get(cell.name)
         for params in cell.sizes:
-            low, high = search_range(spec.k_grid, family.projected_dim(params))
+            m = family.projected_dim(params)
+            low, high = search_range(spec.k_grid, m)
+            top = m - 1 if spec.k_grid.extend else None  # above high: up to the largest reduction
             label = k_values(spec.k_grid, family, params)[1][0]
             refs = [InstanceRef(cell.name, params, index, spec.root_seed) for index in range(cell.instances)]
             for choice in spec.projectors:
                 for retrieval in retrieval_names(family.kind, spec.retrievals):
                     search = KSearch(low, high, spec.target.rate, spec.target.confidence, len(refs) * spec.replicates,
-                                     spec.k_grid.step)
+                                     spec.k_grid.step, top=top)
                     cells.append(SearchCell(cell.name, params, refs, choice, retrieval, label, search))
     return cells
 
 
 def trial_successes(rows: list[dict], kinds: dict[str, str], predicate) -> dict[str, dict[str, bool]]:
     """trial id -> retrieval -> success of stored trial rows under ``predicate``, in one
-    :func:`calib.analysis.success.judge_records` call; ``kinds`` maps each row's instance id to its kind."""
+    :func:`calib.verdicts.success.judge_records` call; ``kinds`` maps each row's instance id to its kind."""
     import json
 
-    from calib.analysis.success import judge_records
+    from calib.verdicts.success import judge_records
 
     records = [{**(json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}),
                 "status": row["status"], "kind": kinds[row["instance_id"]]} for row in rows]

@@ -30,30 +30,49 @@ pass at that k has probability <= alpha/2 + alpha/2 (a union bound; the look at 
 event whatever the sequence did before). The last look is what lets a k with, say, 79 successes in
 80 trials pass, where the anytime bound alone would need more trials than the cap.
 
-Many k, in two phases that share the error 1 - confidence (a fifth, :data:`BISECTION_SHARE`, on
-the bisection, the rest on the walk: the walk makes the claim, so its level stays close to the
-level a grid's table uses, 0.96 against 0.95 at confidence 0.95):
+Many k, in two phases that share the error e = 1 - confidence: the bisection spends
+:data:`BISECTION_SHARE` e (0.2 e), the walk's last look :data:`WALK_SHARE` e (0.75 e: at confidence
+0.95 its level 0.9625 needs 77 of 80 successes, the same count as a grid's table at 0.95), and the
+walk's early passes the rest (0.05 e):
 
-1. Bracket and bisection. On the lattice low, low + step, low + 2 step, ... (and high), it tests
-   at most K = 2 + ceil(log2(ceil((high - low) / step))) values of k (high, low, then halving the
-   gap between the smallest passing and the largest failing k), each at alpha = (1 - confidence)
-   / (5 K) (Bonferroni: a bisection can look at several k below the true threshold, and each is a
-   chance of a false pass). Its answer k_b is the smallest tested k that passed, above a failing
-   one. When high does not pass there is no claim; when low passes, low is the answer.
-2. Walk down. From k_b the lattice points below it are tested in decreasing order, each at the
-   level 4 (1 - confidence) / 5 by the Clopper–Pearson look on its N trials (a k clearly below
-   the target stops early, on the confidence sequence at the same level); the walk stops at the
-   first k that does not pass, and the answer is the last k that did. This is fixed-sequence
-   testing along a monotone family (Maurer, Hothorn & Lehmacher 1995; Westfall & Krishen 2001):
-   for the true threshold k*, the walk can claim a k below k* only if it passes the first lattice
-   point below k*, a single fixed k whose fixed-N test has level 4 (1 - confidence) / 5, whichever
-   trials the bisection had already read there. The walk is the step-down a full grid applies
-   (:func:`calib.analysis.saferule.safe_k_rule`), run only below k_b; it costs no new trial at a
-   k the bisection already decided, and a whole cap at each new k it passes.
+1. Bracket and bisection. On the lattice low, low + step, ... (and high), high is tested first.
+   If it passes, low, then the gap between the smallest passing and the largest failing k is halved.
+   If it fails and the cell has a reduction above high (``top`` = m - 1, the largest k below the
+   projected dimension m), the search goes on: top, then the gap between high and top on the
+   lattice high + j step is halved; when top fails too, the verdict is "no k below m meets the
+   target". One run bisects one of the two brackets, so it tests at most
+   K = max(K(low, high), K(high, top)) values, K(a, b) = 2 + ceil(log2(ceil((b - a) / step))), and
+   each look gets alpha = 0.2 e / K (Bonferroni over the looks of a run: the j-th look, whichever k
+   the earlier looks chose, is a fresh set of trials at a k tested once, so P(some look at a k
+   below the threshold passes) <= sum_j alpha = 0.2 e; a run that extends has no low look, a run
+   that does not has no top look, so the longer bracket bounds both). Half of a look's alpha is
+   on the sequence, half on the last look. The answer k_b is the smallest tested k that passed,
+   above a failing one (or low, when low passes).
+2. Walk down. From k_b the lattice points below it are tested in decreasing order; at each the
+   test T_k passes when the confidence sequence at 0.05 e lies above t (an early pass) or, at the
+   cap, the Clopper–Pearson look at 0.75 e does, so P(T_k passes | p(k) < t) <= 0.8 e (a union
+   bound). The walk stops at the first k that does not pass; the answer is the last k that did.
+   This is fixed-sequence testing along a monotone family (Maurer, Hothorn & Lehmacher 1995;
+   Westfall & Krishen 2001): for the true threshold k* (the smallest lattice k with p(k) >= t), if
+   k_b >= k* the walk claims a k below k* only if T at the first lattice point below k* passes, a
+   single fixed event on fixed trials, whichever trials the bisection had already read there.
 
-So P(the claimed k has p(k) < t) <= (1 - confidence) / 5 + 4 (1 - confidence) / 5. Both phases
-assume p(k) does not fall as k grows (monotone success), as the grid's rule does; k values
-between tested ones are not checked, and this assumption is stated with every verdict.
+Curtailment (all looks). A look fails as soon as no continuation can pass it: neither the last
+look (too many failures already for the pass threshold at the cap, :func:`fewest_passing`) nor an
+early pass within the cap (all further trials successes). This is the verdict the look would give
+at the cap, known sooner (a curtailed fixed-n test; common practice in group-sequential designs),
+so it changes no verdict and spends no error; only the trials read drop (a bisection look at the
+strict level fails at its first failure).
+
+So P(the claimed k has p(k) < t) <= P(k_b < k*) + P(T at k* - step passes) <= 0.2 e + 0.8 e = e.
+Both phases assume p(k) does not fall as k grows (monotone success), as the grid's rule does; k
+values between tested ones are not checked, and this assumption is stated with every verdict.
+
+What a flat curve costs. Where p(k) rises slowly the walk passes many k, each by the fixed-n look
+(an early pass needs 71 or more successes in a row at 0.05 e with the Beta prior): the walk reproduces the grid's
+step-down decision at every k it passes (same trials, same pass count at a cap of 80), which is
+what keeps its answer on the grid's; a search that skipped lattice points would save trials there
+but could step over the grid's largest failing k, whose place on a flat curve is itself noise.
 
 Costs: each look is O(1) (log-beta functions); a search holds the outcomes at its current k only.
 
@@ -74,12 +93,15 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import betaln
 
-from calib.analysis.stats import clopper_pearson_lower
+from calib.verdicts.stats import clopper_pearson_lower
 
 #: strength a + b of the Beta prior of the mixture (centred on the target rate)
 PRIOR_STRENGTH = 5.0
-#: the share of the error 1 - confidence spent on the bisection; the walk down spends the rest
+#: the share of the error 1 - confidence spent on the bisection (Bonferroni over its looks)
 BISECTION_SHARE = 0.2
+#: the share of the error 1 - confidence spent by the walk's Clopper–Pearson look at the cap; the rest
+#: (1 - BISECTION_SHARE - WALK_SHARE) by the walk's early passes on the confidence sequence
+WALK_SHARE = 0.75
 #: stated with every verdict
 MONOTONE = "bisection assumes the success rate does not fall as k grows; k values between tested ones were not run"
 
@@ -220,6 +242,19 @@ def max_looks(low: int, high: int, step: int = 1) -> int:
     return 2 + math.ceil(math.log2(lattice_count(low, high, step)))
 
 
+def bisection_looks(low: int, high: int, step: int = 1, top: Optional[int] = None) -> int:
+    """Most bisection looks in one run of a search on [low, high], extended up to ``top``: a run
+    either bisects [low, high] (high passes) or [high, top] (high fails, then top), so its looks
+    are at most the larger of the two counts (:func:`max_looks`).
+
+    >>> bisection_looks(10, 150, 2), bisection_looks(10, 150, 2, top=299), bisection_looks(10, 150, 2, top=1199)
+    (9, 9, 12)
+    """
+    if top is None or top <= high:
+        return max_looks(low, high, step)
+    return max(max_looks(low, high, step), max_looks(high, top, step))
+
+
 def all_pass_trials(rate: float, alpha: float) -> int:
     """The fewest trials, all successes, after which a k passes a look at error ``alpha``: the
     smaller of the confidence sequence's first possible pass and the Clopper–Pearson look at a cap
@@ -236,11 +271,33 @@ def all_pass_trials(rate: float, alpha: float) -> int:
     return sequence if passes == "pass" else fixed
 
 
+def fixed_pass_trials(rate: float, alpha: float) -> int:
+    """The fewest trials, all successes, whose one-sided Clopper–Pearson bound at 1 - ``alpha``
+    reaches ``rate``: n of n passes when alpha^(1/n) >= rate, i.e. n >= ln alpha / ln rate.
+
+    >>> fixed_pass_trials(0.9, 0.05), fixed_pass_trials(0.9, 0.01 / 8 / 2)
+    (29, 71)
+    """
+    return math.ceil(math.log(alpha) / math.log(rate) - 1e-12)
+
+
+def fewest_passing(cap: int, rate: float, alpha: float) -> int:
+    """The fewest successes in ``cap`` trials whose one-sided Clopper–Pearson lower bound at
+    1 - ``alpha`` reaches ``rate`` (cap + 1 when none does): the last look's pass threshold.
+
+    >>> fewest_passing(80, 0.9, 0.05), fewest_passing(80, 0.9, 0.0375), fewest_passing(80, 0.9, 0.01 / 11 / 2)
+    (77, 77, 80)
+    """
+    lower = np.asarray(clopper_pearson_lower(np.arange(cap + 1), cap, 1.0 - alpha))
+    passing = np.flatnonzero(lower >= rate)
+    return int(passing[0]) if passing.size else cap + 1
+
+
 @dataclass(frozen=True)
 class CapNeed:
     """What a search's cap of trials per k must reach for a k to pass at all (every trial a success)."""
 
-    bisection: int      # trials for a bisection look to pass (level 1 - alpha / 2)
+    bisection: int      # trials for a bisection look to pass (its last look, level 1 - alpha / 2)
     walk: int           # trials for a look of the walk down to pass (level 1 - walk alpha)
     bisection_level: float
     walk_level: float
@@ -251,16 +308,16 @@ class CapNeed:
         return max(self.bisection, self.walk)
 
 
-def cap_need(low: int, high: int, rate: float, confidence: float, step: int = 1) -> CapNeed:
+def cap_need(low: int, high: int, rate: float, confidence: float, step: int = 1, top: Optional[int] = None) -> CapNeed:
     """The trials per k a search on [low, high] needs before any k can pass (:class:`CapNeed`).
 
     >>> need = cap_need(4, 300, 0.9, 0.95)   # 11 bisection looks: level 1 - 0.01 / 11 / 2
     >>> need.bisection, need.walk, round(need.bisection_level, 5)
-    (74, 31, 0.99955)
+    (74, 32, 0.99955)
     """
-    search = KSearch(low, high, rate, confidence, cap=1, step=step)
+    search = KSearch(low, high, rate, confidence, cap=1, step=step, top=top)
     alpha = search.alpha / 2
-    return CapNeed(all_pass_trials(rate, alpha), all_pass_trials(rate, search.walk_alpha), 1 - alpha, 1 - search.walk_alpha)
+    return CapNeed(all_pass_trials(rate, alpha), fixed_pass_trials(rate, search.walk_alpha), 1 - alpha, 1 - search.walk_alpha)
 
 
 def cap_text(need: CapNeed, cap: int) -> str:
@@ -279,7 +336,7 @@ class Step:
     successes: int
     lower: float
     upper: float
-    verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target)
+    verdict: str  # "pass" | "fail" | "fail at the cap" (the last look did not reach the target) | "fail: cannot pass at the cap"
     phase: str = "bisection"  # "bisection" | "walk"
 
 
@@ -288,7 +345,9 @@ class KSearch:
     """The search on one cell; feed it outcomes at :meth:`demand`'s k until it is done.
 
     ``cap`` is the most trials read at one k (instances x replicates of the spec); ``step`` the
-    lattice of k values below ``high`` (low, low + step, ...): the resolution of the answer.
+    lattice of k values below ``high`` (low, low + step, ...): the resolution of the answer. ``top``
+    (the largest k that is still a reduction, m - 1) lets the search go on above ``high`` when
+    ``high`` fails; None stops at ``high`` (the old behaviour, ``extend = false`` in the spec).
     """
 
     low: int
@@ -297,6 +356,7 @@ class KSearch:
     confidence: float
     cap: int
     step: int = 1
+    top: Optional[int] = None
     steps: list = field(default_factory=list)
     safe_k: Optional[int] = None
     reason: str = ""
@@ -304,41 +364,92 @@ class KSearch:
 
     def __post_init__(self) -> None:
         error = 1.0 - self.confidence
-        self.alpha = error * BISECTION_SHARE / max_looks(self.low, self.high, self.step)  # one bisection look
-        self.walk_alpha = error * (1.0 - BISECTION_SHARE)  # every k of the walk down (fixed sequence)
+        if self.top is not None and self.top <= self.high:
+            self.top = None  # nothing above high is a reduction: no extension
+        self.looks = bisection_looks(self.low, self.high, self.step, self.top)
+        self.alpha = error * BISECTION_SHARE / self.looks  # one bisection look (its last look spends half)
+        self.walk_alpha = error * WALK_SHARE  # the walk's last look at every k (fixed sequence)
+        self.early_alpha = error * (1.0 - BISECTION_SHARE - WALK_SHARE)  # the walk's early passes
         self.phase = "bisection"
         self._passing, self._failing = None, None  # smallest passing, largest failing k so far
+        self._extending = False
         self.k: Optional[int] = self.high
         self._outcomes: list = []
+        self._thresholds: dict[float, int] = {}
+
+    # ----- what one look needs and decides ------------------------------------------------------
+    def _levels(self) -> tuple[Optional[float], float, float]:
+        """(early-pass alpha or None, early-fail alpha, last-look alpha) of the current phase."""
+        if self.phase == "walk":
+            return self.early_alpha, self.walk_alpha, self.walk_alpha
+        return self.alpha / 2, self.alpha / 2, self.alpha / 2  # half on the sequence, half on the last look
+
+    def _threshold(self, alpha: float) -> int:
+        if alpha not in self._thresholds:
+            self._thresholds[alpha] = fewest_passing(self.cap, self.rate, alpha)
+        return self._thresholds[alpha]
+
+    def _can_pass(self, successes: int, read: int) -> bool:
+        """Whether a pass is still possible after ``successes`` in ``read`` trials (all further succeed)."""
+        early, _, last = self._levels()
+        if successes + self.cap - read >= self._threshold(last):
+            return True
+        if early is None or read >= self.cap:
+            return False
+        more = trials_before_decision(successes, read, self.rate, early, self.cap, ("pass",))
+        return first_decision([True] * more, self.rate, early, ("pass",))[0] == "pass" if more else False
+
+    def _to_curtail(self, successes: int, read: int) -> int:
+        """Further trials, all failures, after which no pass is possible (exact curtailment)."""
+        for extra in range(1, self.cap - read + 1):
+            if not self._can_pass(successes, read + extra):
+                return extra
+        return self.cap - read
 
     def demand(self) -> Optional[tuple[int, int]]:
         """(k, n): the search needs the outcomes of the first n trials at k; None once done."""
         if self.done:
             return None
         successes, read = sum(self._outcomes), len(self._outcomes)
-        if self.phase == "walk":  # passes only at the cap: ask up to the first possible early fail
-            more = trials_before_decision(successes, read, self.rate, self.walk_alpha, self.cap, ("fail",))
-        else:
-            more = trials_before_decision(successes, read, self.rate, self.alpha / 2, self.cap)
+        early, fail, _ = self._levels()
+        more = min(trials_before_decision(successes, read, self.rate, fail, self.cap, ("fail",)),
+                   self._to_curtail(successes, read))
+        if early is not None:
+            more = min(more, trials_before_decision(successes, read, self.rate, early, self.cap, ("pass",)))
         return self.k, read + max(1, more)
 
     def offer(self, outcomes: Sequence[bool]) -> None:
         """Outcomes of the first trials at the current k, in trial order (a longer list is fine)."""
         outcomes = [bool(value) for value in outcomes[:self.cap]]
-        walking = self.phase == "walk"
-        alpha = self.walk_alpha if walking else self.alpha / 2
-        verdict, used = first_decision(outcomes, self.rate, alpha, ("fail",) if walking else ("pass", "fail"))
+        verdict, used = self._first_verdict(outcomes)
         if verdict is not None:
             self._record(verdict, outcomes[:used])
         elif len(outcomes) < self.cap:
             self._outcomes = outcomes
         else:  # the last look: a fixed-n Clopper–Pearson bound on all cap trials
-            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - alpha))
+            last = self._levels()[2]
+            lower = float(clopper_pearson_lower(sum(outcomes), len(outcomes), 1.0 - last))
             self._record("pass" if lower >= self.rate else "fail at the cap", outcomes, lower)
+
+    def _first_verdict(self, outcomes: list) -> tuple[Optional[str], int]:
+        """The first prefix that decides: an early pass (walk), an early fail on the sequence, or a
+        curtailed fail (the last look can no longer pass); (None, len) when none does."""
+        early, fail, _ = self._levels()
+        verdict, used = first_decision(outcomes, self.rate, fail, ("fail",))
+        if early is not None:
+            passed, at = first_decision(outcomes, self.rate, early, ("pass",))
+            if passed is not None and at <= used:
+                verdict, used = passed, at
+        successes = 0
+        for read, outcome in enumerate(outcomes[:used], start=1):
+            successes += outcome
+            if not outcome and read < self.cap and not self._can_pass(successes, read):
+                return "fail: cannot pass at the cap", read  # curtailed: the last look's verdict, known sooner
+        return verdict, used
 
     def _record(self, verdict: str, outcomes: list, last_lower: float = 0.0) -> None:
         successes = sum(outcomes)
-        alpha = self.walk_alpha if self.phase == "walk" else self.alpha / 2
+        alpha = self._levels()[1]
         lower, upper = confidence_sequence(successes, len(outcomes), self.rate, alpha)
         lower = max(lower, last_lower)
         self.steps.append(Step(self.k, len(outcomes), successes, lower, upper, verdict, self.phase))
@@ -354,11 +465,18 @@ class KSearch:
         if self.k is None:
             self.done = True
 
+    # ----- where to look next -------------------------------------------------------------------
     def _next_k(self) -> Optional[int]:
         if self._passing is None:
-            need = cap_need(self.low, self.high, self.rate, self.confidence, self.step)
+            if self.top is not None and not self._extending:
+                self._extending = True  # high failed: the range above it, up to top, is searched too
+                return self.top
+            need = cap_need(self.low, self.high, self.rate, self.confidence, self.step, self.top)
             if self.cap < need.bisection:
                 self.reason = cap_text(need, self.cap)
+            elif self._extending:
+                self.reason = (f"k = {self.top} = m - 1 does not reach the target either: no k below "
+                               f"m = {self.top + 1} meets the target")
             else:
                 self.reason = f"the high end k = {self.high} does not reach the target: widen the range"
             return None
@@ -372,13 +490,18 @@ class KSearch:
         return inside[(len(inside) - 1) // 2]
 
     def _lattice_between(self, failing: int, passing: int) -> list[int]:
+        if failing >= self.high:  # above high: the lattice high, high + step, ... (and top)
+            return list(range(failing + self.step, passing, self.step))
         first = self.low + self.step * max(0, -(-(failing + 1 - self.low) // self.step))
         return list(range(first, passing, self.step))
 
     def _walk(self, passed: int) -> Optional[int]:
         """The walk down's next k: the lattice point below ``passed`` (the smallest k passed so far)."""
         self.phase, self._passing = "walk", passed
-        below = self.low + self.step * ((passed - 1 - self.low) // self.step)
+        if passed > self.high:  # above high the lattice is high + j step
+            below = self.high + self.step * ((passed - 1 - self.high) // self.step)
+        else:
+            below = self.low + self.step * ((passed - 1 - self.low) // self.step)
         if below < self.low:
             return self._finish(passed, f"the low end k = {self.low} passes: a smaller k may be safe too")
         return below
@@ -405,9 +528,10 @@ def trace_lines(search: KSearch, target_text: str) -> list[str]:
     for step in sorted(search.steps, key=lambda step: (step.k, step.phase)):
         lines.append(f"  {step.k:>6} {step.trials:>7} {step.successes:>9}  {step.lower:>6.3f} {step.upper:>6.3f}  "
                      f"{step.phase:9}  {step.verdict}")
-    looks = max_looks(search.low, search.high, search.step)
+    looks = search.looks
     if search.safe_k is None:
-        verdict = f"no safe k in [{search.low}, {search.high}]: {search.reason}" if search.done else "search not finished"
+        upper = search.top if search.top is not None else search.high
+        verdict = f"no safe k in [{search.low}, {upper}]: {search.reason}" if search.done else "search not finished"
     else:
         verdict = f"safe k = {search.safe_k}: {target_text} at confidence {search.confidence:g}"
         verdict += f" ({search.reason})" if search.reason else ""
@@ -415,7 +539,7 @@ def trace_lines(search: KSearch, target_text: str) -> list[str]:
     lines.append(f"  bounds: bisection k at {1 - search.alpha / 2:.4g} (a beta-binomial confidence sequence, then a "
                  f"Clopper–Pearson look at the cap; Bonferroni over at most {looks} k values), then a walk down the "
                  f"k lattice (step {search.step}) with a Clopper–Pearson look at the cap at {1 - search.walk_alpha:.4g} "
-                 f"per k (fixed sequence); {MONOTONE}")
+                 f"per k and early passes on the sequence at {1 - search.early_alpha:.4g} (fixed sequence); {MONOTONE}")
     return lines
 
 

@@ -27,7 +27,7 @@ from dataclasses import dataclass
 from typing import Optional, Union
 
 from calib.errors import describe_exception
-from calib.sweep.trial import InstanceRef, Trial
+from calib.trial import InstanceRef, Trial
 
 #: built instances kept per worker process (most recently used)
 INSTANCE_CACHE_SIZE = 4
@@ -145,7 +145,7 @@ def execute(task: Task) -> dict:
 
 @functools.cache
 def worker_environment() -> dict:
-    from calib.sweep.store import environment
+    from calib.store.environment import environment
 
     return environment()
 
@@ -236,7 +236,7 @@ def original_result(fields: dict):
 
 def trial_outcomes(task: TrialTask) -> list[tuple[str, Optional[str], Optional[str]]]:
     """(status, message, metrics JSON) per retrieval; an exception gives "error" for each."""
-    from calib.sweep.trial import run_trial
+    from calib.trial import run_trial
 
     try:
         original = remember_original(task)

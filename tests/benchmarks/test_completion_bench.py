@@ -42,10 +42,11 @@ def run(name: str, out: Path, workers: int = 2) -> Path:
 def measure(store_path: Path, preset: str) -> list[dict]:
     """Per (projector, retrieval, k): usable rate, median end to end, baseline, speed-up; and the safe k."""
     from calib.analysis.rows import load_rows
-    from calib.analysis.success import make_predicate
-    from calib.analysis.tables import Confidence, build_analysis
+    from calib.analysis.tables import build_analysis
     from calib.analysis.timing import timing_frame
-    from calib.sweep.store import Store
+    from calib.store.database import Store
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import make_predicate
 
     store = Store.open_existing(store_path)
     try:

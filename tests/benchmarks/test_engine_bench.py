@@ -111,8 +111,8 @@ def _worker_startup_seconds() -> float:
 @pytest.mark.parametrize("trials", [20_000])
 def test_resume_with_nothing_to_do(benchmark, tmp_path, trials):
     """Resume a complete store: expand the spec, read the stored ids, run nothing."""
-    from calib.sweep.store import Store
-    from calib.sweep.trial import expand
+    from calib.store.database import Store
+    from calib.sweep.expansion import expand
 
     text = THROUGHPUT_SPEC.replace("instances = 2", "instances = 10").replace(
         "k = [60, 80, 100, 120]", "k = [10, 20, 30, 40, 50, 60, 70, 80, 90, 100]").replace("replicates = 25", "replicates = 200")

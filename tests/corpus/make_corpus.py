@@ -45,7 +45,7 @@ def _npz(members: dict, header: dict, pickled: tuple = ()) -> bytes:
 def make_instances() -> int:
     from calib.families import get
     from calib.instance_io import save_instance, sha256_hex
-    from calib.sweep.trial import InstanceRef
+    from calib.trial import InstanceRef
 
     root = CORPUS / "instances"
     shutil.rmtree(root, ignore_errors=True)
@@ -101,12 +101,13 @@ k = {fractions = [0.25, 0.5, 1.0]}
 
 
 def make_tables() -> int:
-    from calib.analysis.success import make_predicate
     from calib.analysis.tablefile import dumps, seal
-    from calib.analysis.tables import Confidence, build_table
+    from calib.analysis.tables import build_table
+    from calib.store.database import Store
     from calib.sweep.runner import run_campaign
     from calib.sweep.spec import parse_spec
-    from calib.sweep.store import Store
+    from calib.verdicts.saferule import Confidence
+    from calib.verdicts.success import make_predicate
 
     import tomllib
 

@@ -1,23 +1,47 @@
-"""Trials: identity, expansion of a spec, and execution of one trial.
+"""One trial: its identity, its random stream, and running it (build, project, solve, retrieve, measure).
 
-A trial is (instance, projector, k, replicate). Its id hashes those canonical parameters with the
+The layer between the problem handlers (:mod:`calib.reduce`, :mod:`calib.families`) and the store:
+it knows nothing of specs, stores or executors. A trial is (instance, projector, k, replicate):
+an :class:`InstanceRef` (family, full parameters, index, root seed), a :class:`ProjectorChoice`
+(name and options), an integer k >= 1 and a replicate index. Its id hashes those canonical parameters with the
 root seed and :data:`calib.SCHEMA_VERSION`. Its random stream is
 ``default_rng([instance_key, projector_key, k, replicate, root_seed])``; instances draw from
 ``default_rng([instance_key, root_seed])``. Neither depends on the order of expansion, so a grown
 grid or a resumed run reproduces every existing number. One trial runs one projected solve and
-then every retrieval method of the spec on it, giving one stored row per retrieval.
+then every retrieval method of the spec on it, giving one stored row per retrieval
+(:func:`run_trial`: one projector draw of k x m, then the handler's projected solve and retrievals;
+the cost is the handler's, see :mod:`calib.reduce`). Expanding a spec into its trials is the
+engine's (:mod:`calib.sweep.expansion`).
 """
 
 from __future__ import annotations
 
-
 from dataclasses import dataclass
 from functools import cached_property
-from typing import Iterator
+
+import numpy as np
 
 from calib import SCHEMA_VERSION
 from calib.keys import stable_id, stable_key, stream
-from calib.sweep.spec import ProjectorChoice, Spec, k_values
+
+
+@dataclass(frozen=True)
+class ProjectorChoice:
+    """A projector of a campaign: its registered name and its options as sorted (key, value) pairs;
+    ``label`` names it in the store and the tables, ``key`` seeds its part of a trial's stream."""
+
+    name: str
+    options: tuple = ()  # sorted (key, value) pairs
+
+    @property
+    def label(self) -> str:
+        if not self.options:
+            return self.name
+        return f"{self.name}(" + ",".join(f"{key}={value}" for key, value in self.options) + ")"
+
+    @property
+    def key(self) -> int:
+        return stable_key({"name": self.name, "options": dict(self.options)})
 
 
 @dataclass(frozen=True)
@@ -31,14 +55,17 @@ class InstanceRef:
 
     @property
     def identity(self) -> dict:
+        """What names the instance: family, full parameters and index (the root seed left out)."""
         return {"family": self.family, "params": self.params, "index": self.index}
 
     @cached_property
     def key(self) -> int:
+        """The stable integer key of :attr:`identity`: the first entropy word of its stream."""
         return stable_key(self.identity)
 
     @cached_property
     def instance_id(self) -> str:
+        """The stored id: the identity with the root seed and the schema version, hashed."""
         return stable_id({**self.identity, "root_seed": self.root_seed, "schema": SCHEMA_VERSION})
 
     def build(self):
@@ -51,6 +78,9 @@ class InstanceRef:
 
 @dataclass(frozen=True)
 class Trial:
+    """One trial: an instance, a projector, a target dimension k >= 1 and a replicate index; ``k_label``
+    says where k came from in the grid (``fraction=0.1``, ``eps=0.3 (rule)``, "" for a value given)."""
+
     instance: InstanceRef
     projector: ProjectorChoice
     k: int
@@ -59,6 +89,7 @@ class Trial:
 
     @cached_property
     def trial_id(self) -> str:
+        """The stored id: a hash of the instance id, projector, options, k and replicate."""
         return stable_id({"instance": self.instance.instance_id, "projector": self.projector.label,
                           "projector_options": dict(self.projector.options), "k": self.k,
                           "replicate": self.replicate})
@@ -68,41 +99,9 @@ class Trial:
         """Entropy of the trial's stream: [instance_key, projector_key, k, replicate, root_seed]."""
         return [self.instance.key, self.projector.key, self.k, self.replicate, self.instance.root_seed]
 
-    def rng(self):
+    def rng(self) -> np.random.Generator:
+        """The trial's own random stream, from :attr:`stream_keys` (the projection is drawn from it)."""
         return stream(*self.stream_keys[:-1], root_seed=self.instance.root_seed)
-
-
-def instance_refs(spec: Spec) -> Iterator[tuple[InstanceRef, list[int], list[str]]]:
-    """Every instance of the spec with its k values and their labels, in a deterministic order."""
-    from calib.families import get
-
-    for cell in spec.families:
-        family = get(cell.name)
-        for params in cell.sizes:
-            ks, labels = k_values(spec.k_grid, family, params)
-            for index in range(cell.instances):
-                yield InstanceRef(cell.name, params, index, spec.root_seed), ks, labels
-
-
-def instance_trials(spec: Spec, ref: InstanceRef, ks: list[int], labels: list[str]) -> list[Trial]:
-    """The trials of one instance: projectors x k x replicates, in a deterministic order."""
-    return [Trial(ref, choice, k, replicate, label)
-            for choice in spec.projectors for k, label in zip(ks, labels)
-            for replicate in range(spec.replicates)]
-
-
-def expand(spec: Spec) -> list[tuple[InstanceRef, list[Trial]]]:
-    """All instances of the spec with their trials, in a deterministic order."""
-    return [(ref, instance_trials(spec, ref, ks, labels)) for ref, ks, labels in instance_refs(spec)]
-
-
-def count_trials(spec: Spec) -> tuple[int, int]:
-    """(instances, trials) of the spec without building any trial."""
-    instances = trials = 0
-    for _, ks, _ in instance_refs(spec):
-        instances += 1
-        trials += len(spec.projectors) * len(ks) * spec.replicates
-    return instances, trials
 
 
 def run_trial(trial: Trial, problem, kind: str, original, retrievals: list[str], solver: dict,

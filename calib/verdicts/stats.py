@@ -13,6 +13,10 @@ One-sided Wilson score lower bound with z = Phi^-1(confidence):
 Reference: E. B. Wilson, "Probable inference, the law of succession, and statistical
 inference", Journal of the American Statistical Association 22(158):209–212, 1927.
 
+Sample size: :func:`trials_per_unit_needed` gives the trials r per unit, all successes, that ``U``
+Bonferroni-corrected bounds need to reach a target t: alpha / U = t^r, r = ceil(ln(alpha / U) / ln t)
+(29 for one unit at 90% and 95%).
+
 Only ``scipy.special`` is imported (the beta quantile is ``betaincinv``, Phi^-1 is ``ndtri``: the
 functions ``scipy.stats.beta.ppf`` and ``scipy.stats.norm.ppf`` evaluate), so that reading a table
 stays light.
@@ -20,7 +24,10 @@ stays light.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
+from numpy.typing import ArrayLike
 from scipy import special
 
 
@@ -34,8 +41,12 @@ def _beta_quantile(q: float, a: np.ndarray, b: np.ndarray) -> np.ndarray:
         return special.betaincinv(a, b, q)
 
 
-def clopper_pearson_lower(successes, trials, confidence: float = 0.95):
-    """One-sided Clopper–Pearson lower confidence bound on a binomial proportion.
+def clopper_pearson_lower(successes: ArrayLike, trials: ArrayLike, confidence: float = 0.95) -> np.ndarray:
+    """One-sided Clopper–Pearson lower confidence bound on a binomial proportion (module text).
+
+    ``successes`` and ``trials`` are counts of any broadcastable shapes (0 <= successes <= trials,
+    trials >= 1); the result, a proportion in [0, 1], has their broadcast shape. ``confidence`` in
+    (0, 1). Checked against ``scipy.stats.beta.ppf(0.05, 30, 1)`` and the closed form:
 
     >>> round(float(clopper_pearson_lower(30, 30, 0.95)), 6)  # 0.05 ** (1/30)
     0.904966
@@ -46,8 +57,11 @@ def clopper_pearson_lower(successes, trials, confidence: float = 0.95):
     return np.where(x <= 0, 0.0, _beta_quantile(1.0 - confidence, x, n - x + 1))
 
 
-def clopper_pearson_upper(successes, trials, confidence: float = 0.95):
-    """One-sided Clopper–Pearson upper confidence bound on a binomial proportion.
+def clopper_pearson_upper(successes: ArrayLike, trials: ArrayLike, confidence: float = 0.95) -> np.ndarray:
+    """One-sided Clopper–Pearson upper confidence bound on a binomial proportion (module text).
+
+    Shapes and units as :func:`clopper_pearson_lower`. Checked against ``scipy.stats.beta.ppf(0.95,
+    1, 30)`` and the closed form:
 
     >>> round(float(clopper_pearson_upper(0, 30, 0.95)), 6)  # 1 - 0.05 ** (1/30)
     0.095034
@@ -58,8 +72,13 @@ def clopper_pearson_upper(successes, trials, confidence: float = 0.95):
     return np.where(x >= n, 1.0, _beta_quantile(confidence, x + 1, n - x))
 
 
-def clopper_pearson_interval(successes, trials, confidence: float = 0.95):
-    """Two-sided Clopper–Pearson interval (lower, upper) at the given confidence.
+def clopper_pearson_interval(successes: ArrayLike, trials: ArrayLike,
+                             confidence: float = 0.95) -> tuple[np.ndarray, np.ndarray]:
+    """Two-sided Clopper–Pearson interval (lower, upper) at the given confidence: each end the
+    one-sided bound at 1 - (1 - confidence) / 2. Shapes as :func:`clopper_pearson_lower`.
+
+    Checked against ``scipy.stats.binomtest(5, 10).proportion_ci(0.95, method="exact")``
+    (0.187086, 0.812914):
 
     >>> low, high = clopper_pearson_interval(5, 10, 0.95)
     >>> round(float(low), 4), round(float(high), 4)
@@ -69,8 +88,12 @@ def clopper_pearson_interval(successes, trials, confidence: float = 0.95):
     return clopper_pearson_lower(successes, trials, one_sided), clopper_pearson_upper(successes, trials, one_sided)
 
 
-def wilson_lower(successes, trials, confidence: float = 0.95):
-    """One-sided Wilson score lower bound.
+def wilson_lower(successes: ArrayLike, trials: ArrayLike, confidence: float = 0.95) -> np.ndarray:
+    """One-sided Wilson score lower bound (formula in the module text; Wilson 1927).
+
+    Shapes and units as :func:`clopper_pearson_lower`. Checked against statsmodels
+    (``proportion_confint(9, 10, alpha=0.10, method="wilson")``, whose two-sided 90% lower end is
+    the one-sided 95% bound: 0.652281):
 
     >>> round(float(wilson_lower(9, 10, 0.95)), 4)
     0.6523
@@ -84,3 +107,14 @@ def wilson_lower(successes, trials, confidence: float = 0.95):
     spread = z * np.sqrt(p * (1 - p) / n + z**2 / (4 * n**2))
     # x = 0 gives exactly 0 (centre = spread); rounding must not print it as 6e-18
     return np.where(x <= 0, 0.0, (centre - spread) / (1 + z**2 / n))
+
+
+def trials_per_unit_needed(units: int, target: float, confidence: float) -> int:
+    """Trials per unit, all successes, for each of ``units`` Clopper–Pearson bounds at confidence
+    1 - (1 - confidence) / units to reach ``target`` (Bonferroni over the units): a unit whose r trials
+    all succeed has the bound ((1 - confidence) / units)^(1/r), so r = ceil(ln((1 - confidence) / units) / ln target).
+
+    >>> trials_per_unit_needed(1, 0.9, 0.95), trials_per_unit_needed(3, 0.9, 0.95)
+    (29, 39)
+    """
+    return int(math.ceil(math.log((1.0 - confidence) / units) / math.log(target) - 1e-12))

@@ -1,7 +1,10 @@
 """Tidy export of a store: one row per (trial, retrieval), metrics expanded into columns.
 
-Builds on :func:`calib.analysis.tables.load_rows` (the same frame the safe-k tables are computed
-from) and adds the package versions of the environment that produced each row.
+Builds on :func:`calib.analysis.rows.load_rows` (the same frame the safe-k tables are computed
+from) and adds ``env_versions``, the package versions (JSON text) of the environment that produced
+each row (:func:`calib.store.reading.environment_versions`). Written as CSV (``\\n`` line ends, no
+index) or Parquet (pyarrow), each file whole or not at all (:func:`calib.outputs.write_file`).
+Costs: O(rows x columns).
 """
 
 from __future__ import annotations
@@ -12,16 +15,16 @@ from typing import Optional
 
 import pandas as pd
 
+from calib.analysis.rows import load_rows
 from calib.errors import InputError
-from calib.sweep.store import Store
+from calib.store.database import Store
+from calib.store.reading import environment_versions
 
 
 def export_frame(store: Store) -> pd.DataFrame:
     """The rows of ``store`` in trial-id order, with an ``env_versions`` JSON column."""
-    from calib.analysis.tables import load_rows
-
     rows = load_rows(store)
-    versions = dict(store.db.execute("SELECT env_id, versions FROM environments").fetchall())
+    versions = environment_versions(store.db)
     rows["env_versions"] = rows["env_id"].map(versions)
     return rows
 

@@ -5,7 +5,7 @@ Two questions have two answers.
 
 *For these instances* (conditional on the instances measured): the trials at one k are independent
 draws of the projection, so the one-sided Clopper–Pearson bound on all x successes of the N trials
-is exact (:func:`calib.analysis.stats.clopper_pearson_lower`).
+is exact (:func:`calib.verdicts.stats.clopper_pearson_lower`).
 
 *For the class* (the instances are a sample of the family's instances): the class-wide success
 probability at k is the mean over instances of each instance's own rate, and trials of one
@@ -56,7 +56,7 @@ from typing import Optional
 import numpy as np
 from scipy import special
 
-from calib.analysis.stats import clopper_pearson_lower
+from calib.verdicts.stats import clopper_pearson_lower
 from calib.wording import counted
 
 
@@ -136,6 +136,7 @@ class Anova:
         return float(min(1.0, max(0.0, (ratio - 1.0) / (ratio + self.n0 - 1.0))))
 
     def as_dict(self) -> dict:
+        """The sums of squares, degrees of freedom, n0 and instance count, JSON-ready."""
         return {"ss_between": self.ss_between, "ss_within": self.ss_within, "df_between": self.df_between,
                 "df_within": self.df_within, "n0": self.n0, "instances": self.groups}
 

@@ -57,6 +57,7 @@ import numpy as np
 if TYPE_CHECKING:
     import pandas as pd
 
+from calib.checks import is_real
 from calib.errors import InputError
 from calib.metrics import FIELDS
 
@@ -149,8 +150,7 @@ PRIMARY = {"usable": ("obj", "feas", "sign"), "policy": ("obj", "feas", "sign"),
 
 
 def _positive(value, where: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)) \
-            or not (np.isfinite(value) and value > 0):
+    if not is_real(value) or not (np.isfinite(value) and value > 0):
         raise InputError(where, f"must be a positive number, got {value!r}", "e.g. 0.05 for 5%")
     return float(value)
 
