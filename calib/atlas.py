@@ -133,6 +133,7 @@ def safe_k(family: str, size: Optional[dict] = None, projector: Optional[str] = 
     """
     from calib.analysis import modelfit
     from calib.analysis.lookup import Query, answer, read_timings, size_of, size_of_mps, timings_beside
+    from calib.analysis.records import SafeKTable
     from calib.analysis.tablefile import read_table
 
     import json
@@ -149,7 +150,7 @@ def safe_k(family: str, size: Optional[dict] = None, projector: Optional[str] = 
     query = Query(family, n, projector, retrieval, texts, tau, m, scope, label)
     path = table_path(family, table)
     beside = timings_beside(path)
-    return answer(read_table(path), query, delta=delta, confidence=confidence,
+    return answer(SafeKTable.from_dict(read_table(path)), query, delta=delta, confidence=confidence,
                   timings=read_timings(beside) if beside else [], model=model, force=force)
 
 

@@ -33,7 +33,9 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"calib {__version__}")
     subparsers = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for module in sorted(pkgutil.iter_modules(commands.__path__), key=lambda mod: mod.name):
-        importlib.import_module(f"calib.commands.{module.name}").register(subparsers)
+        command = importlib.import_module(f"calib.commands.{module.name}")
+        if hasattr(command, "register"):  # options and searches are shared by the commands, not commands
+            command.register(subparsers)
     return parser
 
 

@@ -16,6 +16,7 @@ from xml.etree import ElementTree
 
 from analysis_campaign import run_campaign_in
 from calib.analysis.plots import figure_ids
+from calib.analysis.records import SafeKTable
 from calib.analysis.tables import NOTICE
 from calib.cli import main
 
@@ -40,7 +41,8 @@ def test_report_embeds_every_figure_as_an_svg(report):
     html_path, table, timings = report
     html = html_path.read_text()
     embedded = dict(re.findall(r'<figure id="fig-([^"]+)"><img alt="[^"]*" src="data:image/svg\+xml;base64,([^"]+)"', html))
-    expected = figure_ids(table, table["analyses"][0], timings)
+    typed = SafeKTable.from_dict(table)
+    expected = figure_ids(typed, typed.analyses[0], timings)
     assert sorted(embedded) == sorted(expected)
     assert {f"{kind}-lp-planted" for kind in ("success", "law", "speedup")} <= set(embedded)
     for fig_id, data in embedded.items():
@@ -106,7 +108,8 @@ def test_report_renders_in_headless_chromium(report, tmp_path):
     common = [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--allow-file-access-from-files"]
     dom = subprocess.run(common + ["--dump-dom", html_path.resolve().as_uri()], capture_output=True, text=True,
                          timeout=120, check=True).stdout
-    for fig_id in figure_ids(table, table["analyses"][0], timings):
+    typed = SafeKTable.from_dict(table)
+    for fig_id in figure_ids(typed, typed.analyses[0], timings):
         assert f'id="fig-{fig_id}"' in dom
     shot = tmp_path / "shot.png"
     subprocess.run(common + [f"--screenshot={shot}", "--window-size=1280,2000", html_path.resolve().as_uri()],
@@ -124,11 +127,21 @@ def test_report_refuses_a_missing_store(tmp_path):
 
 
 def test_card_time_verdict_counts_a_saving_only_at_a_policy_k():
-    from calib.analysis.answers import policy_time_line
+    from dataclasses import replace
 
-    fast_but_unusable = {"size": "rows=60", "policy": {"k": None, "speedup": None}}
-    usable_and_faster = {"size": "rows=240", "policy": {"k": 12, "speedup": 20.7}}
-    assert policy_time_line([{"size": "s"}]) is None  # no policy block: the caller falls back to timings
+    from calib.analysis.answers import policy_time_line
+    from calib.analysis.records import ABSENT, Entry, Policy
+
+    golden = json.loads((Path(__file__).parent / "golden" / "quickstart" / "safe_k.json").read_text(encoding="utf-8"))
+    template = Entry.from_dict(golden["analyses"][0]["entries"][0])  # a real entry, its policy block set below
+
+    def entry(size, k=None, speedup=None, policy=True):
+        block = Policy(k=k, answer="", time_median_s=None, baseline_median_s=None, speedup=speedup, grid=[])
+        return replace(template, size=size, policy=block if policy else ABSENT)
+
+    fast_but_unusable = entry("rows=60")
+    usable_and_faster = entry("rows=240", 12, 20.7)
+    assert policy_time_line([entry("s", policy=False)]) is None  # no policy block: the caller falls back to timings
     assert policy_time_line([fast_but_unusable]).startswith("no saving")
     line = policy_time_line([fast_but_unusable, usable_and_faster])
     assert line.startswith("saves time: policy k = 12 at rows=240") and "20.7×" in line

@@ -14,6 +14,7 @@ from scipy import stats
 from analysis_campaign import run_campaign_in
 from calib import theory
 from calib.analysis.lookup import Query, k_for, success_for
+from calib.analysis.records import SafeKTable
 from calib.analysis.tablefile import dumps, read_table, schema
 from calib.analysis.tables import build_table, table_to_frame, write_table
 from calib.cli import main
@@ -153,7 +154,7 @@ def test_not_json_is_refused(tmp_path):
 
 def test_lookup_round_trips_k_to_success_to_k(table_file):
     # The logistic model's two directions are inverses: k -> success p -> k at p returns k.
-    table = read_table(table_file)
+    table = SafeKTable.from_dict(read_table(table_file))  # the records the lookup reads
     for n in (61, 121, 170, 400):  # measured, measured, between sizes, beyond them
         query = Query("lp-planted", n, "gaussian", tau=0.05)
         for k in (6, 7, 9):
@@ -164,7 +165,7 @@ def test_lookup_round_trips_k_to_success_to_k(table_file):
 
 
 def test_lookup_answers_from_the_law_and_flags_extrapolation(table_file, capsys):
-    table = read_table(table_file)
+    table = SafeKTable.from_dict(read_table(table_file))  # the records the lookup reads
     inside = k_for(table, Query("lp-planted", 170, "gaussian", tau=0.05, scope="instances"))
     outside = k_for(table, Query("lp-planted", 5000, "gaussian", tau=0.05, scope="instances"))
     assert inside["safe_k"] == 8 and not inside["extrapolated"]
@@ -195,7 +196,7 @@ def test_lookup_answers_from_the_law_and_flags_extrapolation(table_file, capsys)
 
 
 def test_lookup_refuses_unknown_classes_and_bad_values(table_file):
-    table = read_table(table_file)
+    table = SafeKTable.from_dict(read_table(table_file))  # the records the lookup reads
     with pytest.raises(InputError, match="no entries"):
         k_for(table, Query("lp-planted", 100, "srht"))
     with pytest.raises(InputError, match="--n"):
@@ -210,7 +211,7 @@ def test_single_size_class_has_no_law_and_says_why(table_file):
     table = read_table(table_file)
     law = next(law for law in table["analyses"][0]["laws"] if law["family"] == "lp-farkas")
     assert law["safe_k_law"]["a"] is None and "fewer than two sizes" in law["safe_k_law"]["reason"]
-    answer = k_for(table, Query("lp-farkas", 500, "gaussian"))
+    answer = k_for(SafeKTable.from_dict(table), Query("lp-farkas", 500, "gaussian"))
     assert answer["safe_k"] is None and answer["extrapolated"]
 
 

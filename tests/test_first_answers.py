@@ -15,12 +15,15 @@ from __future__ import annotations
 
 import json
 import math
+from dataclasses import replace
+from pathlib import Path
 
 import pytest
 from scipy import stats
 
 from analysis_campaign import run_campaign_in, run_spec
 from engine_helpers import write_search_spec
+from calib.analysis.records import Analysis
 from calib.analysis.summary import NO_K, NO_REDUCTION, SKETCH, natural_key, summary_lines
 from calib.cli import main
 from calib.sweep.runner import run_campaign
@@ -118,10 +121,20 @@ def test_tables_opens_with_the_answer_in_numeric_order_within_120_columns(campai
     assert "k = 0 + 0 ± 0 ln n" not in text and "rank=null" not in text
 
 
+#: the first analysis of the golden quickstart table (tests/golden): the template of the entries below
+GOLDEN = Path(__file__).parent / "golden" / "quickstart" / "safe_k.json"
+
+
+def _golden_analysis() -> Analysis:
+    return Analysis.from_dict(json.loads(GOLDEN.read_text(encoding="utf-8"))["analyses"][0])
+
+
 def _entry(size, m, k, kind="lp", instances=29, reason=""):
-    return {"family": "f", "class_params": {}, "size": size, "params": {"size": size}, "projector": "gaussian",
-            "retrieval": "r", "kind": kind, "projected_dim": m, "instances": instances, "safe_k": k,
-            "class": {"safe_k": k, "reason": reason, "instances_needed": 29}}
+    """A table entry (a record of the golden table) with the fields the answer reads set."""
+    template = _golden_analysis().entries[0]
+    return replace(template, family="f", class_params={}, size=size, params={"size": size}, projector="gaussian",
+                   retrieval="r", kind=kind, projected_dim=m, instances=instances, safe_k=k,
+                   class_=replace(template.class_, safe_k=k, reason=reason, instances_needed=29))
 
 
 def test_the_answer_says_dont_sketch_where_k_is_m_or_no_k_passes():
@@ -132,7 +145,7 @@ def test_the_answer_says_dont_sketch_where_k_is_m_or_no_k_passes():
     timings = pd.DataFrame([{"family": "f", "params": json.dumps({"size": "rows=600"}, separators=(",", ":")),
                              "projector": "gaussian", "retrieval": "r", "k": 60, "speedup": 13.2,
                              "baseline_median_s": 1.5, "reduced_median_s": 0.11}])
-    lines = summary_lines({"entries": entries}, timings, lambda entry: "")
+    lines = summary_lines(replace(_golden_analysis(), entries=entries), timings, lambda entry: "")
     assert [line["size"] for line in lines] == ["rows=30", "rows=90", "rows=150", "rows=600"]
     verdicts = {line["size"]: line["verdict"] for line in lines}
     assert verdicts == {"rows=30": SKETCH, "rows=90": NO_REDUCTION, "rows=150": NO_K, "rows=600": SKETCH}

@@ -12,7 +12,8 @@ by the longest dotted prefix listed; a module may import modules of lower layers
 unit (the prefix that placed it). Between two units of one layer an import is allowed only in the
 layers marked open (foundation, problems: small modules of one concept, kept acyclic by the cycle
 check); the engine and the analysis never import each other, nor families and reduce, nor one
-command module another. The failure message lists every forbidden edge.
+command module another (the modules the commands share, options and searches, sit in the layer
+below them and import no command). The failure message lists every forbidden edge.
 """
 
 from __future__ import annotations
@@ -40,6 +41,7 @@ LAYERS = (
     ("verdicts", False, ("calib.verdicts",)),
     ("engine and analysis", False, ("calib.sweep", "calib.analysis")),
     ("library answers", False, ("calib.atlas",)),
+    ("command support", False, ("calib.commands.options", "calib.commands.searches")),
     ("commands", False, ("calib.commands", "calib.commands.*")),
     ("cli", True, ("calib.cli", "calib.__main__")),
 )
@@ -186,6 +188,13 @@ def test_the_layer_check_finds_an_upward_and_a_sideways_import():
         "calib.commands.tables (commands) -> calib.commands.run (commands)",
         "calib.store.database (store) -> calib.sweep.spec (engine and analysis)",
         "calib.sweep.spec (engine and analysis) -> calib.analysis.tables (engine and analysis)"]
+
+
+def test_commands_may_import_their_shared_modules_which_import_no_command():
+    graph = {"calib.commands.tables": {"calib.commands.options", "calib.commands.searches"},
+             "calib.commands.options": {"calib.analysis.campaign"}, "calib.commands.searches": {"calib.commands.run"},
+             "calib.commands.run": {"calib.commands.searches"}, "calib.analysis.campaign": set()}
+    assert forbidden_edges(graph) == ["calib.commands.searches (command support) -> calib.commands.run (commands)"]
 
 
 def test_every_module_of_calib_has_a_layer():

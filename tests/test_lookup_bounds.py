@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+from types import SimpleNamespace
 
 import numpy as np
 import pandas as pd
@@ -12,6 +13,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from calib.analysis.lookup import Query, bounded, class_entries, k_for, safe_ks, size_of, size_of_mps
+from calib.analysis.records import Analysis
 from calib.analysis.tables import build_analysis
 from calib.cli import main
 from calib.families import get
@@ -53,11 +55,20 @@ def _table(seed: int) -> dict:
     return {"target": {"delta": 0.1, "confidence": 0.95}, "analyses": [analysis]}
 
 
+def _typed(table: dict) -> SimpleNamespace:
+    """What the lookup reads of a table (its typed records, :mod:`calib.analysis.records`): the target
+    and the analyses; the partial table here has no campaign, theory or checksum to build a whole one."""
+    target = table["target"]
+    return SimpleNamespace(target=SimpleNamespace(delta=target["delta"], confidence=target["confidence"]),
+                           analyses=[Analysis.from_dict(analysis) for analysis in table["analyses"]])
+
+
 TABLES = [_table(seed) for seed in range(4)]
+TYPED = [_typed(table) for table in TABLES]
 
 
 @settings(max_examples=60, deadline=None)
-@given(table=st.sampled_from(TABLES), cols=st.integers(2, 10**6), share=st.floats(0.001, 0.999),
+@given(table=st.sampled_from(TYPED), cols=st.integers(2, 10**6), share=st.floats(0.001, 0.999),
        scope=st.sampled_from(["class", "instances"]))
 def test_lookup_never_answers_k_above_the_projected_dimension(table, cols, share, scope):
     rows = max(1, min(cols - 1, int(share * cols))) if cols > 1 else 1
@@ -71,12 +82,12 @@ def test_lookup_never_answers_k_above_the_projected_dimension(table, cols, share
 
 
 def test_a_measured_size_gets_its_measured_safe_k():
-    for table in TABLES:
+    for table, typed in zip(TABLES, TYPED):
         for entry in table["analyses"][0]["entries"]:
             query = Query(FAMILY, entry["n_points"], "gaussian", m=entry["projected_dim"], scope="instances")
-            answer = k_for(table, query)
+            answer = k_for(typed, query)
             assert answer["safe_k"] == entry["safe_k"] and answer["method"].startswith("measured at this size")
-            klass = k_for(table, Query(FAMILY, entry["n_points"], "gaussian", m=entry["projected_dim"]))
+            klass = k_for(typed, Query(FAMILY, entry["n_points"], "gaussian", m=entry["projected_dim"]))
             assert klass["safe_k"] == entry["class"]["safe_k"]
 
 
@@ -86,8 +97,8 @@ def test_stated_safe_k_equals_the_recomputation_from_the_counts(scope):
     # the stored counts otherwise: both paths must agree at the table's target (the reference for the
     # bounds themselves is scipy.stats, see tests/test_analysis_stats.py)
     stated = Confidence(0.1, 0.95)
-    for table in TABLES:
-        entries = class_entries(table["analyses"][0], Query(FAMILY, 2, "gaussian"))
+    for table in TYPED:
+        entries = class_entries(table.analyses[0], Query(FAMILY, 2, "gaussian"))
         assert safe_ks(entries, stated, scope, stated) == safe_ks(entries, stated, scope)
 
 

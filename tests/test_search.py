@@ -26,8 +26,9 @@ from engine_helpers import write_search_spec as _spec
 from calib.cli import main
 from calib.errors import InputError
 from calib.spec_problems import SpecError
-from calib.sweep.runner import run_campaign
-from calib.sweep.search import KSearch, PRIOR_STRENGTH, confidence_sequence, decide, max_looks
+from calib.store.database import Store
+from calib.sweep.runner import replay_searches, run_campaign
+from calib.sweep.search import PRIOR_STRENGTH, KSearch, confidence_sequence, decide, drive, max_looks, replay
 from calib.sweep.spec import load_spec, parse_spec
 
 BASE = {"campaign": {"name": "s", "root_seed": 3, "replicates": 5},
@@ -240,6 +241,35 @@ def test_high_end_failing_gives_no_claim():
     assert search.safe_k is None and "high end" in search.reason and len(search.steps) == 1
 
 
+def _steps(search: KSearch) -> list:
+    return [(s.k, s.trials, s.successes, s.lower, s.upper, s.verdict, s.phase) for s in search.steps]
+
+
+def test_replay_of_the_recorded_outcomes_gives_the_live_verdict():
+    # the live search runs its trials as it asks for them (Bernoulli draws on a step curve); a fresh
+    # search replayed from every outcome it read reaches the same steps, bounds and verdict, and a
+    # record cut short at the last k it tested stops there, not finished (a search is a pure
+    # function of its outcomes in trial order: the module text)
+    curve = {k: (0.6 if k < 17 else 0.99) for k in range(1, 41)}
+    rng = np.random.default_rng([20261202, 9])
+    ran: dict[int, list] = {}
+
+    def run_trials(k: int, count: int) -> list:
+        have = ran.setdefault(k, [])
+        have += list(rng.random(count - len(have)) < curve[k]) if count > len(have) else []
+        return have[:count]
+
+    live = KSearch(1, 40, 0.9, 0.95, 200)
+    assert drive(live, run_trials) and live.done
+    replayed = replay(KSearch(1, 40, 0.9, 0.95, 200), ran)
+    assert replayed.done and (replayed.safe_k, replayed.reason) == (live.safe_k, live.reason)
+    assert _steps(replayed) == _steps(live) and live.safe_k == 17
+    last = live.steps[-1].k
+    first = next(index for index, step in enumerate(live.steps) if step.k == last)  # the walk may test a k again
+    cut = replay(KSearch(1, 40, 0.9, 0.95, 200), {**ran, last: ran[last][:live.steps[first].trials - 1]})
+    assert not cut.done and cut.safe_k is None and _steps(cut) == _steps(live)[:first]
+
+
 def test_decisions_and_bounds_agree():
     alpha = 0.05 / 7
     for successes, trials in [(64, 64), (0, 6), (50, 60), (59, 60)]:
@@ -259,6 +289,13 @@ def test_search_runs_then_a_grid_reuses_every_search_trial(tmp_path, capsys):
     searched = _trial_ids(first.store_path)
     again = run_campaign(load_spec(spec), tmp_path / "out", inline=True)
     assert again.ran == 0 and _verdicts(again) == _verdicts(first)  # replayed from the store
+    store = Store.open_existing(first.store_path)
+    try:  # the read-only replay (calib tables) gives the run's verdicts, nothing run
+        replayed = replay_searches(load_spec(spec), store)
+    finally:
+        store.close()
+    assert [(c.search.safe_k, [(s.k, s.trials, s.successes, s.verdict) for s in c.search.steps]) for c in replayed] \
+        == _verdicts(first) and not any(c.interrupted for c in replayed)
     capsys.readouterr()
     assert main(["tables", str(first.store_path), "--tau", "1e-6"]) == 0  # the table shows the tested k
     text = capsys.readouterr().out

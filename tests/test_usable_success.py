@@ -12,12 +12,12 @@ from calib.reduce.base import Context
 from calib.reduce.lp import LPHandler
 from calib.reduce.qp import QPHandler, ReducedQP
 from calib.solvers.result import SolveResult
-from calib.verdicts.success import PRESETS, evaluate, make_predicate, saves_time
+from calib.verdicts.success import PRESETS, evaluate, judge_records, make_predicate, saves_time
 from reduce_helpers import SOLVER, instance
 
 
 def _verdicts(records, predicate, kind="lp"):
-    return evaluate(pd.DataFrame(records).assign(status="ok", kind=kind), predicate).tolist()
+    return judge_records(records, predicate, kind)
 
 
 def _scaled_qp(qp: QP, factor: float) -> QP:

@@ -19,9 +19,12 @@ Pure functions of the table (and the timings frame of :mod:`calib.analysis.timin
 from __future__ import annotations
 
 import json
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import pandas as pd
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Analysis, Entry, LawClass, SafeKTable
 
 #: the time verdict of a point set: there is no solve to save, the timings hold the sketch cost alone
 NO_SOLVE = "no solve to save (a point set): the timings show the sketch cost only"
@@ -29,50 +32,49 @@ NO_SOLVE = "no solve to save (a point set): the timings show the sketch cost onl
 NO_SAVING = "no saving: at every measured k the reduced pipeline was slower end to end than the original"
 
 
-def _key(item: dict) -> tuple:
-    return (item["family"], json.dumps(item["class_params"], sort_keys=True), item["projector"], item["retrieval"])
+def _key(item: Entry | LawClass) -> tuple:
+    return (item.family, json.dumps(item.class_params, sort_keys=True), item.projector, item.retrieval)
 
 
 def _fraction(k: Optional[int], m: int) -> Optional[float]:
     return None if k is None else k / m
 
 
-def size_line(entry: dict) -> dict:
+def size_line(entry: Entry) -> dict:
     """One size of a class: m, instances, both scopes' safe k with k / m, policy answer."""
-    policy = entry.get("policy")
-    scope = entry["class"]
-    return {"size": entry["size"], "m": entry["projected_dim"], "n": entry["n_points"], "instances": entry["instances"],
-            "class_safe_k": scope["safe_k"], "class_fraction": _fraction(scope["safe_k"], entry["projected_dim"]),
-            "class_reason": scope["reason"], "safe_k": entry["safe_k"],
-            "fraction": _fraction(entry["safe_k"], entry["projected_dim"]), "reason": entry["safe_k_reason"],
-            "policy_k": None if policy is None else policy["k"],
-            "policy_answer": None if policy is None else policy["answer"]}
+    policy = entry.policy or None
+    scope = entry.class_
+    return {"size": entry.size, "m": entry.projected_dim, "n": entry.n_points, "instances": entry.instances,
+            "class_safe_k": scope.safe_k, "class_fraction": _fraction(scope.safe_k, entry.projected_dim),
+            "class_reason": scope.reason, "safe_k": entry.safe_k,
+            "fraction": _fraction(entry.safe_k, entry.projected_dim), "reason": entry.safe_k_reason,
+            "policy_k": None if policy is None else policy.k,
+            "policy_answer": None if policy is None else policy.answer}
 
 
-def law_line(law: dict) -> dict:
+def law_line(law: LawClass) -> dict:
     """The class's law: the class-scope one when it exists, else the instances-scope one, with the bounds' C."""
-    for scope, name in (("class", "class_safe_k_law"), ("instances", "safe_k_law")):
-        fitted = law.get(name)
-        if fitted and fitted["C"] is not None:
-            return {"scope": scope, "a": fitted["a"], "C": fitted["C"], "censored": fitted.get("censored", 0),
-                    "reason": "", "eps": law["theory"]["eps"], "rules": law["theory"]["rules"]}
-    fitted = law.get("safe_k_law") or {}
-    return {"scope": None, "a": None, "C": None, "censored": fitted.get("censored", 0),
-            "reason": fitted.get("reason", "no law"), "eps": law["theory"]["eps"], "rules": law["theory"]["rules"]}
+    for scope, fitted in (("class", law.class_safe_k_law), ("instances", law.safe_k_law)):
+        if fitted.C is not None:
+            return {"scope": scope, "a": fitted.a, "C": fitted.C, "censored": fitted.censored,
+                    "reason": "", "eps": law.theory.eps, "rules": law.theory.rules}
+    fitted = law.safe_k_law
+    return {"scope": None, "a": None, "C": None, "censored": fitted.censored,
+            "reason": fitted.reason, "eps": law.theory.eps, "rules": law.theory.rules}
 
 
-def policy_time_line(entries: list[dict]) -> Optional[str]:
+def policy_time_line(entries: list[Entry]) -> Optional[str]:
     """The time verdict from the policy blocks (a saving counts only where it is usable often enough),
     None when the table carries no policy block."""
-    blocks = [(entry["size"], entry["policy"]) for entry in entries if entry.get("policy") is not None]
+    blocks = [(entry.size, entry.policy) for entry in entries if entry.policy]
     if not blocks:
         return None
-    saving = [(size, block) for size, block in blocks if block["k"] is not None]
+    saving = [(size, block) for size, block in blocks if block.k is not None]
     if not saving:
         return "no saving: at no measured k was the answer both usable and faster often enough (no policy k)"
-    size, block = max(saving, key=lambda item: item[1]["speedup"] or 0.0)
-    speedup = "" if block["speedup"] is None else f", {block['speedup']:.3g}× faster than the baseline"
-    return f"saves time: policy k = {block['k']} at {size}{speedup} (usable and faster in enough trials)"
+    size, block = max(saving, key=lambda item: item[1].speedup or 0.0)
+    speedup = "" if block.speedup is None else f", {block.speedup:.3g}× faster than the baseline"
+    return f"saves time: policy k = {block.k} at {size}{speedup} (usable and faster in enough trials)"
 
 
 def time_line(timings: pd.DataFrame, key: tuple) -> str:
@@ -92,24 +94,24 @@ def time_line(timings: pd.DataFrame, key: tuple) -> str:
             f"k = {int(best['k'])} ({best['size']})")
 
 
-def class_answers(table: dict, analysis: dict, timings: Optional[pd.DataFrame], label) -> list[dict]:
+def class_answers(table: SafeKTable, analysis: Analysis, timings: Optional[pd.DataFrame], label) -> list[dict]:
     """One answer per class of ``analysis`` (module docstring); ``label(entry)`` names the class parameters."""
-    laws = {_key(law): law for law in analysis["laws"]}
-    ladder = [other for other in table["analyses"] if other is not analysis]
+    laws = {_key(law): law for law in analysis.laws}
+    ladder = [other for other in table.analyses if other is not analysis]
     classes: dict[tuple, list] = {}
-    for entry in analysis["entries"]:
+    for entry in analysis.entries:
         classes.setdefault(_key(entry), []).append(entry)
     answers = []
     for key, entries in sorted(classes.items()):
-        entries = sorted(entries, key=lambda entry: (entry["n_points"], entry["size"]))
+        entries = sorted(entries, key=lambda entry: (entry.n_points, entry.size))
         first = entries[0]
         others = []
         for other in ladder:
-            by_size = {entry["size"]: entry["safe_k"] for entry in other["entries"] if _key(entry) == key}
-            others.append({"tau": other["tau"], "safe_k": [by_size.get(entry["size"]) for entry in entries]})
-        answers.append({"family": first["family"], "label": label(first), "projector": first["projector"],
-                        "retrieval": first["retrieval"], "kind": first["kind"],
+            by_size = {entry.size: entry.safe_k for entry in other.entries if _key(entry) == key}
+            others.append({"tau": other.tau, "safe_k": [by_size.get(entry.size) for entry in entries]})
+        answers.append({"family": first.family, "label": label(first), "projector": first.projector,
+                        "retrieval": first.retrieval, "kind": first.kind,
                         "sizes": [size_line(entry) for entry in entries], "ladder": others,
                         "law": law_line(laws[key]) if key in laws else None,
-                        "time": NO_SOLVE if first["kind"] == "points" else (policy_time_line(entries) or time_line(timings, key))})
+                        "time": NO_SOLVE if first.kind == "points" else (policy_time_line(entries) or time_line(timings, key))})
     return answers

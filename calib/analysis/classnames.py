@@ -2,7 +2,7 @@
 
 A table's entries each carry ``class_params`` (the family's non-size parameters, dict of scalars).
 Naming every class by all of them buries the one that matters, so :func:`class_namer` keeps only the
-keys whose values differ between the items, in sorted order: ``rank=12`` beside ``without rank``.
+keys whose values differ between the classes, in sorted order: ``rank=12`` beside ``without rank``.
 Costs: O(items x keys) once, then O(keys) per name. The tables, the plots, the comparison, the
 predictor and the lookup all name classes through it.
 """
@@ -12,18 +12,19 @@ from __future__ import annotations
 import json
 
 
-def class_namer(items: list[dict]):
-    """class_params -> short text naming only the parameters that differ between the items' classes.
+def class_namer(classes: list[dict]):
+    """class_params -> short text naming only the parameters that differ between ``classes`` (the
+    class_params of the items named, one dict each).
 
     A parameter left at None (its family's default, e.g. no low rank) reads "without KEY"; text values
     read without quotes.
 
-    >>> name = class_namer([{"class_params": {"rank": 12, "cost": "c"}}, {"class_params": {"rank": None, "cost": "c"}}])
+    >>> name = class_namer([{"rank": 12, "cost": "c"}, {"rank": None, "cost": "c"}])
     >>> name({"rank": 12, "cost": "c"}), name({"rank": None, "cost": "c"})
     ('rank=12', 'without rank')
     """
-    keys = sorted({key for item in items for key in item["class_params"]})
-    varying = [key for key in keys if len({json.dumps(item["class_params"].get(key)) for item in items}) > 1]
+    keys = sorted({key for params in classes for key in params})
+    varying = [key for key in keys if len({json.dumps(params.get(key)) for params in classes}) > 1]
 
     def text(key: str, value) -> str:
         if value is None:

@@ -51,7 +51,7 @@ import itertools
 import json
 import math
 from dataclasses import dataclass
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
 import pandas as pd
@@ -61,6 +61,9 @@ from calib.analysis.logistic import fit_logistic
 from calib.analysis.tables import num, solver_error_mask
 from calib.verdicts.saferule import Confidence, safe_k_rule
 from calib.verdicts.stats import clopper_pearson_lower
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Comparison
 
 #: the columns that make a comparison group (a cell without its projector)
 GROUP_KEYS = ["family", "size", "params", "retrieval"]
@@ -435,17 +438,17 @@ def build_comparison(store, rows: pd.DataFrame, predicate, settings: Settings, p
     return document
 
 
-def verdict_lines(document: dict) -> list[str]:
-    """The human-readable summary: one header per group (named by the parameters that tell its family's
-    classes apart), one verdict line per pair."""
+def verdict_lines(document: "Comparison") -> list[str]:
+    """The human-readable summary of a comparison (:class:`calib.analysis.records.Comparison`): one header
+    per group (named by the parameters that tell its family's classes apart), one verdict line per pair."""
     from calib.analysis.classnames import class_namer
 
-    namers = {family: class_namer([group for group in document["groups"] if group["family"] == family])
-              for family in {group["family"] for group in document["groups"]}}
+    namers = {family: class_namer([group.class_params for group in document.groups if group.family == family])
+              for family in {group.family for group in document.groups}}
     lines = []
-    for group in document["groups"]:
-        name = " ".join(filter(None, [group["family"], group["size"], namers[group["family"]](group["class_params"])]))
-        lines.append(f"{name} | {group['retrieval']} | m={group['projected_dim']}")
-        for pair in group["pairs"]:
-            lines.append(f"   {pair['verdict']}")
+    for group in document.groups:
+        name = " ".join(filter(None, [group.family, group.size, namers[group.family](group.class_params)]))
+        lines.append(f"{name} | {group.retrieval} | m={group.projected_dim}")
+        for pair in group.pairs:
+            lines.append(f"   {pair.verdict}")
     return lines

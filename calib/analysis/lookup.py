@@ -23,6 +23,10 @@ The logistic model at n: k50(n) from the law fitted to the per-size k50, the slo
 linearly in ln n between the measured sizes (held constant beyond them); success(k) =
 expit(slope (ln k - ln k50(n))) and k(p) = k50(n) exp(logit(p) / slope), exact inverses of each
 other.
+
+The table is read as its typed records (:class:`calib.analysis.records.SafeKTable`, built from the
+read file by the caller: `calib lookup`, :func:`calib.atlas.safe_k`); the answer is a plain dict,
+what ``calib lookup --json`` prints.
 """
 
 from __future__ import annotations
@@ -30,7 +34,7 @@ from __future__ import annotations
 import json
 import math
 from dataclasses import dataclass, field
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
 
@@ -41,6 +45,9 @@ from calib.checks import is_integer
 from calib.errors import InputError
 from calib.keys import canonical_json
 from calib.verdicts.saferule import Confidence, censoring, safe_k_rule
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Analysis, Entry, SafeKTable
 
 SCOPES = ("class", "instances")
 
@@ -108,23 +115,23 @@ def size_of_instance(path) -> tuple[str, int, int, str, dict]:
             {key: value for key, value in params.items() if key not in keys})
 
 
-def select_analysis(table: dict, tau: Optional[float]) -> tuple[dict, str]:
+def select_analysis(table: "SafeKTable", tau: Optional[float]) -> tuple["Analysis", str]:
     """The analysis answering tolerance ``tau``: exact, else the nearest stricter one (noted)."""
-    analyses = sorted(table["analyses"], key=lambda analysis: (analysis["tau"] is None, analysis["tau"] or 0.0))
-    available = [analysis["tau"] for analysis in analyses if analysis["tau"] is not None]
+    analyses = sorted(table.analyses, key=lambda analysis: (analysis.tau is None, analysis.tau or 0.0))
+    available = [analysis.tau for analysis in analyses if analysis.tau is not None]
     if tau is None:
         chosen = analyses[0]
-        note = "" if len(analyses) == 1 else f"the table holds tau {available}; answering for the strictest, {chosen['tau']:g}"
+        note = "" if len(analyses) == 1 else f"the table holds tau {available}; answering for the strictest, {chosen.tau:g}"
         return chosen, note
     if not available:
         raise InputError("--tau", "the table's predicate has no tolerance", "omit --tau")
-    stricter = [analysis for analysis in analyses if analysis["tau"] is not None and analysis["tau"] <= tau * (1 + 1e-12)]
+    stricter = [analysis for analysis in analyses if analysis.tau is not None and analysis.tau <= tau * (1 + 1e-12)]
     if not stricter:
         raise InputError("--tau", f"{tau:g} is stricter than every tolerance of the table ({', '.join(f'{t:g}' for t in available)})",
                          "rebuild the table with that tolerance: `calib tables STORE --tau ...`")
     chosen = stricter[-1]
-    note = "" if math.isclose(chosen["tau"], tau) else \
-        f"tau {tau:g} is not in the table; answering for the nearest stricter tolerance {chosen['tau']:g} (conservative)"
+    note = "" if math.isclose(chosen.tau, tau) else \
+        f"tau {tau:g} is not in the table; answering for the nearest stricter tolerance {chosen.tau:g} (conservative)"
     return chosen, note
 
 
@@ -137,57 +144,57 @@ def _same(stored, given: str) -> bool:
     return stored == given
 
 
-def class_projectors(analysis: dict, query: Query) -> list[str]:
+def class_projectors(analysis: "Analysis", query: Query) -> list[str]:
     """The projectors the table holds for the queried family (and class parameters), sorted."""
-    return sorted({entry["projector"] for entry in analysis["entries"] if entry["family"] == query.family
-                   and (query.retrieval is None or entry["retrieval"] == query.retrieval)
-                   and all(_same(entry["class_params"].get(key), value) for key, value in query.params.items())})
+    return sorted({entry.projector for entry in analysis.entries if entry.family == query.family
+                   and (query.retrieval is None or entry.retrieval == query.retrieval)
+                   and all(_same(entry.class_params.get(key), value) for key, value in query.params.items())})
 
 
-def class_entries(analysis: dict, query: Query) -> list[dict]:
+def class_entries(analysis: "Analysis", query: Query) -> list["Entry"]:
     """Entries of the queried class across sizes, sorted by n; InputError when none or ambiguous."""
-    def matches(entry: dict) -> bool:
-        return (entry["family"] == query.family and entry["projector"] == query.projector
-                and (query.retrieval is None or entry["retrieval"] == query.retrieval)
-                and all(_same(entry["class_params"].get(key), value) for key, value in query.params.items()))
+    def matches(entry: "Entry") -> bool:
+        return (entry.family == query.family and entry.projector == query.projector
+                and (query.retrieval is None or entry.retrieval == query.retrieval)
+                and all(_same(entry.class_params.get(key), value) for key, value in query.params.items()))
 
-    found = [entry for entry in analysis["entries"] if matches(entry)]
+    found = [entry for entry in analysis.entries if matches(entry)]
     if not found:
-        offered = sorted({f"{entry['family']} / {entry['projector']}" for entry in analysis["entries"]})
+        offered = sorted({f"{entry.family} / {entry.projector}" for entry in analysis.entries})
         raise InputError("lookup", f"no entries for family {query.family!r} with projector {query.projector!r}",
                          f"the table has: {'; '.join(offered)}")
-    name = class_namer(found)
-    classes = sorted({f"retrieval {entry['retrieval']} {name(entry['class_params'])}".strip() for entry in found})
+    name = class_namer([entry.class_params for entry in found])
+    classes = sorted({f"retrieval {entry.retrieval} {name(entry.class_params)}".strip() for entry in found})
     if len(classes) > 1:
         raise InputError("lookup", f"{len(classes)} classes match: {'; '.join(classes)}",
                          "narrow it with --retrieval and --param KEY=VALUE")
-    return sorted(found, key=lambda entry: entry["n_points"])
+    return sorted(found, key=lambda entry: entry.n_points)
 
 
-def _lower_bounds(entry: dict, confidence: Confidence, scope: str) -> np.ndarray:
+def _lower_bounds(entry: "Entry", confidence: Confidence, scope: str) -> np.ndarray:
     """Per-k lower bounds of one entry in ``scope`` at ``confidence``, recomputed from its counts."""
     from calib.verdicts.scope import Anova, class_lower_bound, design_rho
     from calib.verdicts.stats import clopper_pearson_lower
 
-    grid = entry["grid"]
-    successes, trials = [p["successes"] for p in grid], [p["trials"] for p in grid]
+    grid = entry.grid
+    successes, trials = [p.successes for p in grid], [p.trials for p in grid]
     if scope == "instances":
         return clopper_pearson_lower(successes, trials, confidence.level)
-    anova = entry["class"]["anova"]
+    anova = entry.class_.anova
     fields = Anova(anova["ss_between"], anova["ss_within"], int(anova["df_between"]), int(anova["df_within"]),
                    anova["n0"], int(anova["instances"]))
-    sizes = [p["cluster_size"] for p in grid]
+    sizes = [p.cluster_size for p in grid]
     return class_lower_bound(successes, trials, sizes, design_rho(fields, sizes, confidence.level), confidence.level)
 
 
-def _stored_safe_k(entry: dict, scope: str) -> tuple[Optional[int], str]:
+def _stored_safe_k(entry: "Entry", scope: str) -> tuple[Optional[int], str]:
     """(safe k, reason) of one entry in ``scope`` as the table states it (at the table's target)."""
     if scope == "instances":
-        return entry["safe_k"], entry["safe_k_reason"]
-    return entry["class"]["safe_k"], entry["class"]["reason"]
+        return entry.safe_k, entry.safe_k_reason
+    return entry.class_.safe_k, entry.class_.reason
 
 
-def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class",
+def safe_ks(entries: list["Entry"], confidence: Confidence, scope: str = "class",
             stated: Optional[Confidence] = None) -> list[tuple[Optional[int], str]]:
     """(safe k, reason) of each size in ``scope`` by the monotone rule at ``confidence``.
 
@@ -199,13 +206,13 @@ def safe_ks(entries: list[dict], confidence: Confidence, scope: str = "class",
     out = []
     for entry in entries:
         lower = _lower_bounds(entry, confidence, scope)
-        safe, reason = safe_k_rule([p["k"] for p in entry["grid"]], lower >= confidence.target)
+        safe, reason = safe_k_rule([p.k for p in entry.grid], lower >= confidence.target)
         if scope == "class" and safe is None:
             from calib.verdicts.scope import class_reason
 
             pooled = _lower_bounds(entry, confidence, "instances")
-            mine, mine_reason = safe_k_rule([p["k"] for p in entry["grid"]], pooled >= confidence.target)
-            reason = class_reason(safe, reason, entry["instances"], confidence.target, confidence.level,
+            mine, mine_reason = safe_k_rule([p.k for p in entry.grid], pooled >= confidence.target)
+            reason = class_reason(safe, reason, entry.instances, confidence.target, confidence.level,
                                   mine_reason if mine is None else None)
         out.append((safe, reason))
     return out
@@ -247,29 +254,29 @@ class Transition:
         return float(self.k50 * math.exp(_logit(rate) / self.slope))
 
 
-def transition_at(entries: list[dict], n: int) -> Transition:
+def transition_at(entries: list["Entry"], n: int) -> Transition:
     """The logistic model of the class at ``n`` (see the module text)."""
-    fitted = [entry for entry in entries if entry["transition"]["k50"] is not None]
+    fitted = [entry for entry in entries if entry.transition.k50 is not None]
     if not fitted:
-        reasons = sorted({entry["transition"]["reason"] for entry in entries})
+        reasons = sorted({entry.transition.reason for entry in entries})
         return Transition(reason="no size has a logistic fit: " + "; ".join(reasons))
-    sizes = [entry["n_points"] for entry in fitted]
-    law = fit_law(sizes, [entry["transition"]["k50"] for entry in fitted])
+    sizes = [entry.n_points for entry in fitted]
+    law = fit_law(sizes, [entry.transition.k50 for entry in fitted])
     if law.ok:
         k50 = law.at(n)
     elif n in sizes:
-        k50 = fitted[sizes.index(n)]["transition"]["k50"]
+        k50 = fitted[sizes.index(n)].transition.k50
     else:
         return Transition(reason=f"one fitted size (n={sizes[0]}): no law to carry k50 to n={n}")
     if k50 <= 0:
         return Transition(reason=f"the k50 law gives {k50:.3g} <= 0 at n={n}")
-    slope = float(np.interp(math.log(n), np.log(sizes), [entry["transition"]["slope"] for entry in fitted]))
+    slope = float(np.interp(math.log(n), np.log(sizes), [entry.transition.slope for entry in fitted]))
     return Transition(k50, slope)
 
 
-def _measured_range(entries: list[dict], n: int) -> dict:
+def _measured_range(entries: list["Entry"], n: int) -> dict:
     """The measured n, whether ``n`` lies outside them, and how far (x the largest / smallest measured n)."""
-    sizes = [entry["n_points"] for entry in entries]
+    sizes = [entry.n_points for entry in entries]
     low, high = min(sizes), max(sizes)
     factor = n / high if n > high else (low / n if n < low else None)
     side = "largest" if n > high else "smallest"
@@ -294,48 +301,48 @@ def bounded(value: float, m: Optional[int]) -> tuple[Optional[int], str]:
     return k, ""
 
 
-def _measured(entries: list[dict], query: Query) -> Optional[int]:
+def _measured(entries: list["Entry"], query: Query) -> Optional[int]:
     """Index of the measured size the query names (same n, and same m when known), else None."""
     for index, entry in enumerate(entries):
-        if entry["n_points"] == query.n and (query.m is None or entry["projected_dim"] == query.m):
+        if entry.n_points == query.n and (query.m is None or entry.projected_dim == query.m):
             return index
     return None
 
 
-def decision_caveat(analysis: dict, entry: dict) -> str:
+def decision_caveat(analysis: "Analysis", entry: "Entry") -> str:
     """A note when an LP's answer comes from a predicate that never looks at the retrieved point
     (``bound``, ``classify``): the user's decision, completed (retrieval ``completion``), can be usable
     at a smaller k than the projected optimum is close (docs/decision.md); "" otherwise.
 
-    >>> decision_caveat({"predicate": {"name": "bound"}}, {"kind": "lp"})[:40]
+    >>> from types import SimpleNamespace as record
+    >>> decision_caveat(record(predicate=record(name="bound")), record(kind="lp"))[:40]
     'this table judges the projected optimum '
-    >>> decision_caveat({"predicate": {"name": "usable"}}, {"kind": "lp"})
+    >>> decision_caveat(record(predicate=record(name="usable")), record(kind="lp"))
     ''
     """
-    if entry["kind"] != "lp" or analysis["predicate"]["name"].split("+")[0] not in ("bound", "classify"):
+    if entry.kind != "lp" or analysis.predicate.name.split("+")[0] not in ("bound", "classify"):
         return ""
     return ("this table judges the projected optimum (preset bound), not the decision a user takes from it: completed "
             "(retrieval completion) the decision can be usable at a smaller k (docs/decision.md); measure your model "
             "with `calib probe MODEL --retrieval completion --find-k`")
 
 
-def k_for(table: dict, query: Query, confidence: Optional[Confidence] = None) -> dict:
+def k_for(table: "SafeKTable", query: Query, confidence: Optional[Confidence] = None) -> dict:
     """The k for ``query`` at ``confidence`` (default: the table's target), with how it was found."""
-    target = table["target"]
-    stated = Confidence(target["delta"], target["confidence"])
+    stated = Confidence(table.target.delta, table.target.confidence)
     confidence = confidence or stated
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)
     note = "; ".join(filter(None, [note, decision_caveat(analysis, entries[0])]))
-    sizes = [entry["n_points"] for entry in entries]
+    sizes = [entry.n_points for entry in entries]
     answers = safe_ks(entries, confidence, query.scope, stated)
-    censored = [censoring(k, reason, entry["projected_dim"]) for (k, reason), entry in zip(answers, entries)]
+    censored = [censoring(k, reason, entry.projected_dim) for (k, reason), entry in zip(answers, entries)]
     law = censored_law(sizes, [k for k, _ in answers], censored)
     answer = {"family": query.family, "n": query.n, "m": query.m, "size": query.size, "scope": query.scope,
-              "projector": query.projector, "retrieval": entries[0]["retrieval"], "kind": entries[0]["kind"],
-              "tau": analysis["tau"], "predicate": analysis["predicate"]["name"], "delta": confidence.delta,
+              "projector": query.projector, "retrieval": entries[0].retrieval, "kind": entries[0].kind,
+              "tau": analysis.tau, "predicate": analysis.predicate.name, "delta": confidence.delta,
               "confidence": confidence.level, "note": note, **_measured_range(entries, query.n),
-              "instances": [entry["instances"] for entry in entries],
+              "instances": [entry.instances for entry in entries],
               "measured_safe_k": [k for k, _ in answers], "censored": censored,
               "law": {"a": law.a, "C": law.C, "reason": law.reason}, "flag": ""}
     if query.m is None:
@@ -383,7 +390,7 @@ def none_flag(answers: list[tuple[Optional[int], str]], law, measured_reason: Op
     return f"no answer at this size: {law.reason}" if law is not None and law.reason else "no answer at this size"
 
 
-def answer(table: dict, query: Query, k: Optional[int] = None, delta: Optional[float] = None,
+def answer(table: "SafeKTable", query: Query, k: Optional[int] = None, delta: Optional[float] = None,
            confidence: Optional[float] = None, timings: Optional[list] = None, model: Optional[dict] = None,
            force: bool = False, check: bool = True) -> dict:
     """The answer of ``calib lookup``: :func:`success_for` at ``k`` when given, else :func:`k_for` at the
@@ -407,9 +414,9 @@ def answer(table: dict, query: Query, k: Optional[int] = None, delta: Optional[f
         return best_projector(table, query, k, delta, confidence, timings)
     if k is not None:
         return success_for(table, query, k)
-    target = table["target"]
-    found = k_for(table, query, Confidence(delta if delta is not None else target["delta"],
-                                           confidence if confidence is not None else target["confidence"]))
+    target = table.target
+    found = k_for(table, query, Confidence(delta if delta is not None else target.delta,
+                                           confidence if confidence is not None else target.confidence))
     found["speedup"] = speedup_at(found, table, query, timings)
     found["projector_named"] = True
     found["answer"] = headline(found)
@@ -425,7 +432,7 @@ def _rank(found: dict) -> tuple:
     return (not usable, k if k is not None else math.inf, -speed, found["projector"])
 
 
-def best_projector(table: dict, query: Query, k: Optional[int], delta: Optional[float], confidence: Optional[float],
+def best_projector(table: "SafeKTable", query: Query, k: Optional[int], delta: Optional[float], confidence: Optional[float],
                    timings: Optional[list]) -> dict:
     """The answer for the projector with the smallest safe k among those the table holds for the class
     (ties: the larger measured speed-up, then the name), with every other projector's safe k beside it."""
@@ -475,7 +482,7 @@ def timings_beside(table_path) -> Optional[object]:
     return path.with_name("timings" + path.stem[len("safe_k"):] + ".csv")
 
 
-def speedup_at(found: dict, table: dict, query: Query, timings: Optional[list]) -> Optional[dict]:
+def speedup_at(found: dict, table: "SafeKTable", query: Query, timings: Optional[list]) -> Optional[dict]:
     """The measured speed-up at the answered k (the original's fastest solve over sketch + projected
     solve + retrieval, medians, from the timings file): at the queried size when it was measured
     there, else at the measured size nearest in n at that size's own answered k (a measurement, not
@@ -484,26 +491,26 @@ def speedup_at(found: dict, table: dict, query: Query, timings: Optional[list]) 
         return None
     analysis, _ = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)
-    if entries[0]["kind"] == "points":
+    if entries[0].kind == "points":
         return None
     measured = _measured(entries, query)
     if measured is not None:
         entry, k, where = entries[measured], found["safe_k"], "at this size"
     else:
-        entry = min(entries, key=lambda item: abs(math.log(item["n_points"]) - math.log(query.n)))
+        entry = min(entries, key=lambda item: abs(math.log(item.n_points) - math.log(query.n)))
         index = entries.index(entry)
         k = found["measured_safe_k"][index]
-        where = f"measured at {entry['size']} (k = {k}), the nearest measured size; not extrapolated"
+        where = f"measured at {entry.size} (k = {k}), the nearest measured size; not extrapolated"
         if k is None:
             return None
-    params = canonical_json(entry["params"])
+    params = canonical_json(entry.params)
     for row in timings:
         if (row.get("family"), row.get("params"), row.get("projector"), row.get("retrieval")) == \
-                (entry["family"], params, entry["projector"], entry["retrieval"]) and str(row.get("k")) == str(k):
+                (entry.family, params, entry.projector, entry.retrieval) and str(row.get("k")) == str(k):
             values = {name: _number(row.get(name)) for name in ("speedup", "baseline_median_s", "reduced_median_s")}
             if values["speedup"] is None:
                 return None
-            return {"size": entry["size"], "k": k, "where": where, **values}
+            return {"size": entry.size, "k": k, "where": where, **values}
     return None
 
 
@@ -541,55 +548,55 @@ def headline(found: dict) -> str:
     return f"safe k = {k}{share} with {found['projector']}: {time}"
 
 
-def policy_at(entries: list[dict], n: int) -> dict:
+def policy_at(entries: list["Entry"], n: int) -> dict:
     """``{"policy": ...}``: the policy answer measured at the size nearest to n (on ln n), when the table has it.
 
     The policy k rests on measured times at one size; it is not extrapolated across sizes.
     """
-    nearest = min(entries, key=lambda entry: abs(math.log(entry["n_points"]) - math.log(n)))
-    block = nearest.get("policy")
-    if block is None:
+    nearest = min(entries, key=lambda entry: abs(math.log(entry.n_points) - math.log(n)))
+    block = nearest.policy
+    if not block:
         return {}
-    return {"policy": {"from_size": nearest["size"], "n": nearest["n_points"], "k": block["k"], "answer": block["answer"],
-                       "time_median_s": block["time_median_s"], "baseline_median_s": block["baseline_median_s"],
-                       "speedup": block["speedup"]}}
+    return {"policy": {"from_size": nearest.size, "n": nearest.n_points, "k": block.k, "answer": block.answer,
+                       "time_median_s": block.time_median_s, "baseline_median_s": block.baseline_median_s,
+                       "speedup": block.speedup}}
 
 
-def _interpolate_error(entry: dict, k: float) -> dict:
-    points = [p for p in entry["grid"] if p["error_median"] is not None]
-    if entry["error_metric"] is None or not points:
-        return {"metric": entry["error_metric"], "median": None, "q90": None, "from_size": entry["size"]}
-    x = np.log([p["k"] for p in points])
+def _interpolate_error(entry: "Entry", k: float) -> dict:
+    points = [p for p in entry.grid if p.error_median is not None]
+    if entry.error_metric is None or not points:
+        return {"metric": entry.error_metric, "median": None, "q90": None, "from_size": entry.size}
+    x = np.log([p.k for p in points])
     logk = math.log(k)
-    return {"metric": entry["error_metric"], "from_size": entry["size"],
-            "median": float(np.interp(logk, x, [p["error_median"] for p in points])),
-            "q90": float(np.interp(logk, x, [p["error_q90"] for p in points])),
+    return {"metric": entry.error_metric, "from_size": entry.size,
+            "median": float(np.interp(logk, x, [p.error_median for p in points])),
+            "q90": float(np.interp(logk, x, [p.error_q90 for p in points])),
             "k_outside_grid": not (x[0] <= logk <= x[-1])}
 
 
-def success_for(table: dict, query: Query, k: int) -> dict:
+def success_for(table: "SafeKTable", query: Query, k: int) -> dict:
     """Expected success at ``k`` (logistic model) and the measured error there (nearest size)."""
     if not is_integer(k) or k < 1:
         raise InputError("--k", f"must be a positive integer, got {k!r}", "e.g. --k 64")
     analysis, note = select_analysis(table, query.tau)
     entries = class_entries(analysis, query)
     model = transition_at(entries, query.n)
-    nearest = min(entries, key=lambda entry: abs(math.log(entry["n_points"]) - math.log(query.n)))
-    measured = min(nearest["grid"], key=lambda point: abs(math.log(point["k"]) - math.log(k)))
-    return {"family": query.family, "n": query.n, "projector": query.projector, "retrieval": entries[0]["retrieval"],
-            "tau": analysis["tau"], "predicate": analysis["predicate"]["name"], "k": int(k), "note": note,
+    nearest = min(entries, key=lambda entry: abs(math.log(entry.n_points) - math.log(query.n)))
+    measured = min(nearest.grid, key=lambda point: abs(math.log(point.k) - math.log(k)))
+    return {"family": query.family, "n": query.n, "projector": query.projector, "retrieval": entries[0].retrieval,
+            "tau": analysis.tau, "predicate": analysis.predicate.name, "k": int(k), "note": note,
             **_measured_range(entries, query.n),
             "success": model.success(k) if model.k50 else None, "model_reason": model.reason,
-            "nearest_measured": {"size": nearest["size"], "n": nearest["n_points"], "k": measured["k"],
-                                 "rate": measured["rate"], "lower_bound": measured["lower_bound"],
-                                 "trials": measured["trials"]},
+            "nearest_measured": {"size": nearest.size, "n": nearest.n_points, "k": measured.k,
+                                 "rate": measured.rate, "lower_bound": measured.lower_bound,
+                                 "trials": measured.trials},
             "error": _interpolate_error(nearest, k)} | _policy_point(nearest, k)
 
 
-def _policy_point(entry: dict, k: int) -> dict:
+def _policy_point(entry: "Entry", k: int) -> dict:
     """``{"policy_at_k": ...}``: usable-and-faster trials at the measured k nearest to ``k``, when the table has them."""
-    block = entry.get("policy")
-    if block is None:
+    block = entry.policy
+    if not block:
         return {}
-    point = min(block["grid"], key=lambda p: abs(math.log(p["k"]) - math.log(k)))
-    return {"policy_at_k": {"size": entry["size"], **point, "policy_k": block["k"], "answer": block["answer"]}}
+    point = min(block.grid, key=lambda p: abs(math.log(p.k) - math.log(k)))
+    return {"policy_at_k": {"size": entry.size, **point.to_dict(), "policy_k": block.k, "answer": block.answer}}

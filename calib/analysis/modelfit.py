@@ -24,10 +24,13 @@ the answer under ``fit_check``:
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 from calib.analysis.fitcheck import compare, measured_ranges
 from calib.errors import InputError
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Entry, SafeKTable
 
 #: the thin SVD budget of the check's features (m N min(m, N) flops)
 CHECK_SVD_FLOPS = 1e9
@@ -105,15 +108,16 @@ def _numeric(features: dict) -> dict:
     return {key: value for key, value in features.items() if key != "skipped"}
 
 
-def checked(result: dict, entries: list[dict], model: Optional[dict], force: bool, table: dict) -> dict:
-    """``result`` (a k answer of :func:`calib.analysis.lookup.k_for`) with its fit check (module text)."""
+def checked(result: dict, entries: list["Entry"], model: Optional[dict], force: bool, table: "SafeKTable") -> dict:
+    """``result`` (a k answer of :func:`calib.analysis.lookup.k_for`) with its fit check (module text);
+    ``entries`` the answering class's entries, ``table`` the table they come from."""
     if model is None:
         return result | {"fit_check": {"verdict": "not compared", "reason": "no model given (--n names a size only)",
                                        "features": {}, "outside": [], "near": [], "not_compared": [],
                                        "model_features": None}, "withheld": False}
     if "features" not in model:  # a size of the family: a fresh instance of the answering class
-        model = size_model(*resolved_size(model["family"], model["size"], {**entries[0]["class_params"], **model["params"]}))
-    check = compare(model["features"], measured_ranges([entry.get("features") for entry in entries]))
+        model = size_model(*resolved_size(model["family"], model["size"], {**entries[0].class_params, **model["params"]}))
+    check = compare(model["features"], measured_ranges([entry.features.to_dict() if entry.features else None for entry in entries]))
     check |= {"model": model["source"], "model_features": _numeric(model["features"])}
     result = result | {"fit_check": check, "withheld": False}
     if check["verdict"] == "near":
@@ -127,7 +131,7 @@ def checked(result: dict, entries: list[dict], model: Optional[dict], force: boo
         return result
     from calib.analysis.predict import predict
 
-    prediction = predict([table], model["features"], result["projector"], result["tau"] or 0.05)
+    prediction = predict([table.to_dict()], model["features"], result["projector"], result["tau"] or 0.05)
     return result | {
         "withheld": True, "withheld_safe_k": result["safe_k"], "safe_k": None, "next_step": step,
         "prediction": prediction,

@@ -28,7 +28,7 @@ from __future__ import annotations
 import io
 import math
 from dataclasses import dataclass
-from typing import Callable
+from typing import TYPE_CHECKING, Callable
 
 import matplotlib
 import numpy as np
@@ -44,6 +44,9 @@ from calib.analysis.law import law_formula
 from calib.analysis.summary import natural_key
 from calib.keys import canonical_json
 from calib.verdicts.stats import clopper_pearson_interval
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Analysis, Entry, SafeKTable, TableTarget
 
 _PANEL = (4.2, 3.2)
 #: font size of legends, ticks and panel titles (points)
@@ -95,61 +98,61 @@ def _log_x(ax) -> None:
     axis.set_minor_formatter(NullFormatter())
 
 
-def _line_label(entry: dict) -> str:
-    return f"{entry['projector']} / {entry['retrieval']}"
+def _line_label(entry: Entry) -> str:
+    return f"{entry.projector} / {entry.retrieval}"
 
 
-def _families(analysis: dict) -> list[str]:
-    return sorted({entry["family"] for entry in analysis["entries"]})
+def _families(analysis: Analysis) -> list[str]:
+    return sorted({entry.family for entry in analysis.entries})
 
 
 def _panel_key(name):
-    return lambda entry: (natural_key(entry["size"]), entry["size"], name(entry["class_params"]), entry["n_points"])
+    return lambda entry: (natural_key(entry.size), entry.size, name(entry.class_params), entry.n_points)
 
 
-def panel_texts(analysis: dict, family: str) -> dict[str, bool]:
+def panel_texts(analysis: Analysis, family: str) -> dict[str, bool]:
     """Each size (with its class text) of ``family`` -> whether any tested k of any projector succeeded once there."""
-    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
-    name = class_namer(entries)
+    entries = [entry for entry in analysis.entries if entry.family == family]
+    name = class_namer([entry.class_params for entry in entries])
     panels: dict[str, bool] = {}
     for entry in sorted(entries, key=_panel_key(name)):
-        text = " ".join(filter(None, [entry["size"], name(entry["class_params"])]))
-        panels[text] = panels.get(text, False) or any(point["successes"] > 0 for point in entry["grid"])
+        text = " ".join(filter(None, [entry.size, name(entry.class_params)]))
+        panels[text] = panels.get(text, False) or any(point.successes > 0 for point in entry.grid)
     return panels
 
 
-def empty_panels(analysis: dict, family: str) -> list[str]:
+def empty_panels(analysis: Analysis, family: str) -> list[str]:
     """Sizes (with their class text) of ``family`` where no tested k of any projector succeeded once."""
     return [text for text, drawn in panel_texts(analysis, family).items() if not drawn]
 
 
-def success_plot(analysis: dict, family: str, target: dict) -> Plot:
+def success_plot(analysis: Analysis, family: str, target: TableTarget) -> Plot:
     """Success vs k for one family (see the module text); panels without a single success are left out."""
-    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
-    name = class_namer(entries)
+    entries = [entry for entry in analysis.entries if entry.family == family]
+    name = class_namer([entry.class_params for entry in entries])
     key = _panel_key(name)
     empty = set(empty_panels(analysis, family))
     panels = [panel for panel in sorted({key(entry) for entry in entries})
               if " ".join(filter(None, [panel[1], panel[2]])) not in empty]
-    figure, axes = _panels(len(panels), f"{family}: success rate against k ({analysis['predicate']['name']}, tau = {analysis['tau']})")
+    figure, axes = _panels(len(panels), f"{family}: success rate against k ({analysis.predicate.name}, tau = {analysis.tau})")
     colours = {label: f"C{i % 10}" for i, label in enumerate(sorted({_line_label(entry) for entry in entries}))}
     for ax, panel in zip(axes, panels):
         _, size, params, n = panel
         for entry in (e for e in entries if key(e) == panel):
             colour = colours[_line_label(entry)]
-            k = np.array([point["k"] for point in entry["grid"]], dtype=float)
-            successes = np.array([point["successes"] for point in entry["grid"]])
-            trials = np.array([point["trials"] for point in entry["grid"]])
-            low, high = clopper_pearson_interval(successes, trials, target["confidence"])
+            k = np.array([point.k for point in entry.grid], dtype=float)
+            successes = np.array([point.successes for point in entry.grid])
+            trials = np.array([point.trials for point in entry.grid])
+            low, high = clopper_pearson_interval(successes, trials, target.confidence)
             ax.fill_between(k, low, high, color=colour, alpha=0.2, linewidth=0)
             ax.plot(k, successes / trials, "o-", color=colour, markersize=3, label=_line_label(entry))
-            fit = entry["transition"]
-            if fit["k50"] is not None:
+            fit = entry.transition
+            if fit.k50 is not None:
                 curve = np.geomspace(k.min(), k.max(), 200)
-                ax.plot(curve, special.expit(fit["intercept"] + fit["slope"] * np.log(curve)), "--", color=colour, linewidth=1)
-            if entry["safe_k"] is not None:
-                ax.axvline(entry["safe_k"], color=colour, linestyle=":", linewidth=1)
-        ax.axhline(target["success_rate"], color="grey", linewidth=0.8)
+                ax.plot(curve, special.expit(fit.intercept + fit.slope * np.log(curve)), "--", color=colour, linewidth=1)
+            if entry.safe_k is not None:
+                ax.axvline(entry.safe_k, color=colour, linestyle=":", linewidth=1)
+        ax.axhline(target.success_rate, color="grey", linewidth=0.8)
         _log_x(ax)
         ax.set_ylim(-0.03, 1.03)
         ax.set_title(f"{size} {params} (n = {n})".replace("  ", " "), fontsize=FONT)
@@ -161,41 +164,41 @@ def success_plot(analysis: dict, family: str, target: dict) -> Plot:
         for handle, label in zip(*ax.get_legend_handles_labels()):
             legend.setdefault(label, handle)
     figure.legend(legend.values(), legend.keys(), loc="outside lower center", ncols=min(4, max(1, len(legend))), fontsize=FONT)
-    caption = (f"Dots: measured success rate; band: two-sided Clopper-Pearson interval at {target['confidence']:.0%}; "
-               f"dashed: logistic fit on ln k; grey line: target {target['success_rate']:g}; dotted: safe k."
+    caption = (f"Dots: measured success rate; band: two-sided Clopper-Pearson interval at {target.confidence:.0%}; "
+               f"dashed: logistic fit on ln k; grey line: target {target.success_rate:g}; dotted: safe k."
                + (f" Not drawn, since no tested k succeeded even once there: {'; '.join(sorted(empty, key=natural_key))}."
                   if empty else ""))
     return Plot(f"success-{family}", f"Success against k: {family}", caption, _svg(figure))
 
 
-def law_plot(analysis: dict, family: str) -> Plot:
+def law_plot(analysis: Analysis, family: str) -> Plot:
     """Safe k vs n with the fitted law and the published bounds for one family."""
-    laws = [law for law in analysis["laws"] if law["family"] == family]
-    name = class_namer(laws)
+    laws = [law for law in analysis.laws if law.family == family]
+    name = class_namer([law.class_params for law in laws])
     figure = Figure(figsize=(7.6, 4.4), layout="constrained")
     ax = figure.subplots()
-    n_all = [point["n"] for law in laws for point in law["safe_k_law"]["points"]]
-    largest_m = max((entry["projected_dim"] for entry in analysis["entries"] if entry["family"] == family), default=None)
+    n_all = [point.n for law in laws for point in law.safe_k_law.points]
+    largest_m = max((entry.projected_dim for entry in analysis.entries if entry.family == family), default=None)
     span = np.geomspace(max(2.0, min(n_all) / 2.0), max(n_all) * 2.0, 200)
     for i, law in enumerate(laws):
         colour = f"C{i % 10}"
-        fit = law["safe_k_law"]
-        label = f"{law['projector']} / {law['retrieval']} {name(law['class_params'])}".strip()
-        measured = [(point["n"], point["safe_k"]) for point in fit["points"] if point["safe_k"] is not None]
-        formula = "" if fit["a"] is None else ": " + law_formula(fit["a"], fit["C"], None)
+        fit = law.safe_k_law
+        label = f"{law.projector} / {law.retrieval} {name(law.class_params)}".strip()
+        measured = [(point.n, point.safe_k) for point in fit.points if point.safe_k is not None]
+        formula = "" if fit.a is None else ": " + law_formula(fit.a, fit.C, None)
         if measured:
             ax.plot(*zip(*measured), "o", color=colour, label=f"{label}{formula}")
-        if fit["a"] is not None:
-            values = fit["a"] + fit["C"] * np.log(span)
+        if fit.a is not None:
+            values = fit.a + fit.C * np.log(span)
             # a law is a statement about k: drawn only where it is one, 1 <= k <= the largest projected dimension
             drawable = (values >= 1.0) & (values <= (largest_m or np.inf))
-            inside = drawable & (span >= fit["n_min"]) & (span <= fit["n_max"])
+            inside = drawable & (span >= fit.n_min) & (span <= fit.n_max)
             ax.plot(span[inside], values[inside], "-", color=colour)
-            for side in (drawable & (span < fit["n_min"]), drawable & (span > fit["n_max"])):
+            for side in (drawable & (span < fit.n_min), drawable & (span > fit.n_max)):
                 ax.plot(span[side], values[side], "--", color=colour)
-    eps = laws[0]["theory"]["eps"] if laws else None
+    eps = laws[0].theory.eps if laws else None
     if eps is not None:
-        for name, bound in sorted(theory.bounds_for(laws[0]["kind"]).items()):
+        for name, bound in sorted(theory.bounds_for(laws[0].kind).items()):
             ax.plot(span, bound.k(span, np.asarray(eps)), ":", color=BOUND_COLOURS.get(name, "grey"), label=f"{name} at eps = {eps:g}")
     _log_x(ax)
     ax.set_yscale("log")
@@ -207,48 +210,48 @@ def law_plot(analysis: dict, family: str) -> Plot:
     caption = ("Dots: measured safe k per size (the legend gives each class's law); solid: least-squares law "
                "k = a + C ln n over the measured sizes, dashed where it extrapolates, drawn only where "
                "1 <= k <= the largest projected dimension; dotted: published bounds (one colour each, in every figure) "
-               "at the eps the table states (" + (laws[0]["theory"]["eps_source"] if laws else "") + ").")
+               "at the eps the table states (" + (laws[0].theory.eps_source if laws else "") + ").")
     return Plot(f"law-{family}", f"Safe k against n: {family}", caption, _svg(figure))
 
 
-def _speed_points(entry: dict, metric, timings: pd.DataFrame) -> list[tuple]:
+def _speed_points(entry: Entry, metric, timings: pd.DataFrame) -> list[tuple]:
     """(speed-up, error or failure rate, k) per timed k of one entry (point sets: none, no solve)."""
-    if entry["kind"] == "points" or timings is None or timings.empty:
+    if entry.kind == "points" or timings is None or timings.empty:
         return []
-    times = timings[(timings["family"] == entry["family"]) & (timings["params"] == canonical_json(entry["params"]))
-                    & (timings["projector"] == entry["projector"]) & (timings["retrieval"] == entry["retrieval"])]
+    times = timings[(timings["family"] == entry.family) & (timings["params"] == canonical_json(entry.params))
+                    & (timings["projector"] == entry.projector) & (timings["retrieval"] == entry.retrieval)]
     speed = dict(zip(times["k"], times["speedup"]))
-    points = [(speed.get(point["k"]), point["error_median"] if metric else 1.0 - point["rate"], point["k"])
-              for point in entry["grid"]]
+    points = [(speed.get(point.k), point.error_median if metric else 1.0 - point.rate, point.k)
+              for point in entry.grid]
     return [(float(x), float(y), k) for x, y, k in points if x is not None and np.isfinite(x) and y is not None]
 
 
-def _speed_metric(entries: list[dict]):
-    measured = [entry for entry in entries if any(point["error_median"] is not None for point in entry["grid"])]
-    return measured[0]["error_metric"] if measured else None
+def _speed_metric(entries: list[Entry]):
+    measured = [entry for entry in entries if any(point.error_median is not None for point in entry.grid)]
+    return measured[0].error_metric if measured else None
 
 
-def has_speed_points(analysis: dict, family: str, timings: pd.DataFrame) -> bool:
+def has_speed_points(analysis: Analysis, family: str, timings: pd.DataFrame) -> bool:
     """Whether the error-against-speed-up figure of ``family`` has a point to draw."""
-    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
+    entries = [entry for entry in analysis.entries if entry.family == family]
     metric = _speed_metric(entries)
     return any(_speed_points(entry, metric, timings) for entry in entries)
 
 
-def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
+def speedup_plot(analysis: Analysis, family: str, timings: pd.DataFrame) -> Plot:
     """Error vs speed-up for one family, one point per (cell, k): colour = projector / retrieval (and
     class), marker = size; a compact legend of each."""
-    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
+    entries = [entry for entry in analysis.entries if entry.family == family]
     metric = _speed_metric(entries)
     figure = Figure(figsize=(8.0, 4.4), layout="constrained")
     ax = figure.subplots()
-    name = class_namer(entries)
+    name = class_namer([entry.class_params for entry in entries])
 
-    def _colour_label(entry: dict) -> str:
-        return f"{entry['projector']} / {entry['retrieval']} {name(entry['class_params'])}".strip()
+    def _colour_label(entry: Entry) -> str:
+        return f"{entry.projector} / {entry.retrieval} {name(entry.class_params)}".strip()
 
     colours = {label: f"C{i % 10}" for i, label in enumerate(sorted({_colour_label(entry) for entry in entries}))}
-    sizes = sorted({entry["size"] for entry in entries}, key=natural_key)
+    sizes = sorted({entry.size for entry in entries}, key=natural_key)
     markers = {size: MARKERS[i % len(MARKERS)] for i, size in enumerate(sizes)}
     floor = ERROR_FLOOR if metric else 0.0
     clipped = False
@@ -260,9 +263,9 @@ def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
         ys = [max(y, floor) for y in ys] if metric else list(ys)
         clipped |= metric is not None and any(y <= floor for y in ys)
         colour = colours[_colour_label(entry)]
-        ax.plot(xs, ys, "-", color=colour, linewidth=0.8, marker=markers[entry["size"]], markersize=4)
+        ax.plot(xs, ys, "-", color=colour, linewidth=0.8, marker=markers[entry.size], markersize=4)
         for x, y, k in zip(xs, ys, ks):
-            if k == entry["safe_k"]:
+            if k == entry.safe_k:
                 ax.plot([x], [y], "o", markersize=11, markerfacecolor="none", markeredgecolor=colour)
     _log_x(ax)
     if metric:
@@ -285,33 +288,33 @@ def speedup_plot(analysis: dict, family: str, timings: pd.DataFrame) -> Plot:
     return Plot(f"speedup-{family}", f"Error against speed-up: {family}", caption, _svg(figure))
 
 
-def _compares_projectors(analysis: dict, family: str) -> bool:
+def _compares_projectors(analysis: Analysis, family: str) -> bool:
     """Two projectors or more in the family, and at least one fitted k50 to draw."""
-    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
-    return len({entry["projector"] for entry in entries}) > 1 and any(entry["transition"]["k50"] for entry in entries)
+    entries = [entry for entry in analysis.entries if entry.family == family]
+    return len({entry.projector for entry in entries}) > 1 and any(entry.transition.k50 for entry in entries)
 
 
-def projectors_plot(analysis: dict, family: str, target: dict) -> Plot:
+def projectors_plot(analysis: Analysis, family: str, target: TableTarget) -> Plot:
     """k50 per projector with its interval, one row per (size, class, retrieval) of one family."""
-    entries = [entry for entry in analysis["entries"] if entry["family"] == family]
-    name = class_namer(entries)
-    rows = sorted({(entry["n_points"], entry["size"], name(entry["class_params"]), entry["retrieval"]) for entry in entries})
-    projectors = sorted({entry["projector"] for entry in entries})
+    entries = [entry for entry in analysis.entries if entry.family == family]
+    name = class_namer([entry.class_params for entry in entries])
+    rows = sorted({(entry.n_points, entry.size, name(entry.class_params), entry.retrieval) for entry in entries})
+    projectors = sorted({entry.projector for entry in entries})
     figure = Figure(figsize=(7.2, 0.9 + 0.5 * len(rows) * max(1, len(projectors)) / 2.0), layout="constrained")
     ax = figure.subplots()
     step = 0.8 / max(1, len(projectors))
     missing = 0
     for row, (n, size, params, retrieval) in enumerate(rows):
         for index, projector in enumerate(projectors):
-            match = [e for e in entries if (e["n_points"], e["size"], name(e["class_params"]), e["retrieval"], e["projector"])
+            match = [e for e in entries if (e.n_points, e.size, name(e.class_params), e.retrieval, e.projector)
                      == (n, size, params, retrieval, projector)]
-            fit = match[0]["transition"] if match else None
+            fit = match[0].transition if match else None
             y = row - 0.4 + step * (index + 0.5)
-            if fit is None or fit["k50"] is None:
+            if fit is None or fit.k50 is None:
                 missing += bool(match)
                 continue
-            low, high = fit["k50_interval"]
-            ax.errorbar([fit["k50"]], [y], xerr=[[fit["k50"] - low], [high - fit["k50"]]], fmt="o", markersize=4,
+            low, high = fit.k50_interval
+            ax.errorbar([fit.k50], [y], xerr=[[fit.k50 - low], [high - fit.k50]], fmt="o", markersize=4,
                         color=f"C{index}", capsize=2, label=projector)
     ax.set_yticks(range(len(rows)), [" ".join(filter(None, [size, params, retrieval])) for _, size, params, retrieval in rows], fontsize=FONT)
     ax.invert_yaxis()
@@ -322,7 +325,7 @@ def projectors_plot(analysis: dict, family: str, target: dict) -> Plot:
     if handles:
         unique = dict(zip(labels, handles))  # one legend entry per projector
         figure.legend(unique.values(), unique.keys(), loc="outside lower center", ncols=len(unique), fontsize=FONT)
-    caption = (f"Dot: k50 of the logistic fit; bar: its interval at {target['confidence']:.0%} (over instances when the "
+    caption = (f"Dot: k50 of the logistic fit; bar: its interval at {target.confidence:.0%} (over instances when the "
                "cell has several). Cells whose outcomes separate completely have no k50 and are not drawn"
                + (f" ({missing} here)" if missing else "") + ". `calib compare` tests the differences paired on the same instances.")
     return Plot(f"projectors-{family}", f"k50 per projector: {family}", caption, _svg(figure))
@@ -337,7 +340,7 @@ class Planned:
     note: str = ""
 
 
-def figure_plan(table: dict, analysis: dict, timings: pd.DataFrame) -> list[Planned]:
+def figure_plan(table: SafeKTable, analysis: Analysis, timings: pd.DataFrame) -> list[Planned]:
     """Every figure of one analysis in order, or the sentence replacing it (module text)."""
     plan = []
     for family in _families(analysis):
@@ -346,24 +349,24 @@ def figure_plan(table: dict, analysis: dict, timings: pd.DataFrame) -> list[Plan
                                 f"{family}: no success at any tested k, at any size, with any projector: no success "
                                 f"figure (the class does not reduce under this predicate)."))
         else:
-            plan.append(Planned(f"success-{family}", lambda family=family: success_plot(analysis, family, table["target"])))
+            plan.append(Planned(f"success-{family}", lambda family=family: success_plot(analysis, family, table.target)))
         plan.append(Planned(f"law-{family}", lambda family=family: law_plot(analysis, family)))
         if has_speed_points(analysis, family, timings):
             plan.append(Planned(f"speedup-{family}", lambda family=family: speedup_plot(analysis, family, timings)))
         else:
-            kind = next(entry["kind"] for entry in analysis["entries"] if entry["family"] == family)
+            kind = next(entry.kind for entry in analysis.entries if entry.family == family)
             why = "a point set has no solve to save" if kind == "points" else "nothing was timed"
             plan.append(Planned(f"speedup-{family}", None, f"{family}: no error-against-speed-up figure ({why})."))
         if _compares_projectors(analysis, family):
-            plan.append(Planned(f"projectors-{family}", lambda family=family: projectors_plot(analysis, family, table["target"])))
+            plan.append(Planned(f"projectors-{family}", lambda family=family: projectors_plot(analysis, family, table.target)))
     return plan
 
 
-def figure_ids(table: dict, analysis: dict, timings: pd.DataFrame) -> list[str]:
+def figure_ids(table: SafeKTable, analysis: Analysis, timings: pd.DataFrame) -> list[str]:
     """Ids of every figure :func:`all_plots` draws for ``analysis``."""
     return [item.fig_id for item in figure_plan(table, analysis, timings) if item.draw is not None]
 
 
-def all_plots(table: dict, analysis: dict, timings: pd.DataFrame) -> list[Plot]:
+def all_plots(table: SafeKTable, analysis: Analysis, timings: pd.DataFrame) -> list[Plot]:
     """Every figure of one analysis, in :func:`figure_ids` order."""
     return [item.draw() for item in figure_plan(table, analysis, timings) if item.draw is not None]

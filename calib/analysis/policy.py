@@ -31,8 +31,9 @@ from numpy.typing import ArrayLike
 from calib.verdicts.stats import clopper_pearson_lower
 from calib.verdicts.success import OPTIMIZATION_KINDS, Predicate, evaluate
 
-if TYPE_CHECKING:  # annotation only
-    from calib.analysis.saferule import Confidence
+if TYPE_CHECKING:  # annotations only
+    from calib.analysis.records import Entry
+    from calib.verdicts.saferule import Confidence
 
 #: the answer of a cell where no swept k is usable and faster often enough
 NO_SAVING = "no k saves time at this size"
@@ -107,12 +108,13 @@ def entry_block(cell: pd.DataFrame, confidence: Confidence) -> dict:
     return {"policy": block}
 
 
-def policy_text(entry: dict) -> str:
-    """One line for text views (tables, lookup): the policy k or the explicit no-saving answer."""
-    block = entry.get("policy")
-    if block is None:
+def policy_text(entry: "Entry") -> str:
+    """One line for text views (tables): the policy k of a :class:`calib.analysis.records.Entry`, or the
+    explicit no-saving answer."""
+    block = entry.policy
+    if not block:
         return "policy k: not computed (ask with --policy)"
-    if block["k"] is None:
+    if block.k is None:
         return f"policy k: none, {NO_SAVING}"
-    return f"policy k = {block['k']} (median {block['time_median_s']:.3g} s end to end against the baseline's " \
-           f"{block['baseline_median_s']:.3g} s, speed-up {block['speedup']:.3g}x)"
+    return f"policy k = {block.k} (median {block.time_median_s:.3g} s end to end against the baseline's " \
+           f"{block.baseline_median_s:.3g} s, speed-up {block.speedup:.3g}x)"

@@ -95,7 +95,7 @@ def table_cells(tables: Sequence[dict]) -> list[Cell]:
             by_family: dict = {}
             for entry in analysis["entries"]:
                 by_family.setdefault(entry["family"], []).append(entry)
-            namers = {family: class_namer(items) for family, items in by_family.items()}
+            namers = {family: class_namer([item["class_params"] for item in items]) for family, items in by_family.items()}
             for entry in analysis["entries"]:
                 safe = entry["class"]["safe_k"]
                 k50 = entry["transition"]["k50"]

@@ -24,13 +24,16 @@ lines as fixed-width text of at most :data:`WIDTH` characters a line when the na
 from __future__ import annotations
 
 import re
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import pandas as pd
 
 from calib.checks import is_real
 from calib.keys import canonical_json
 from calib.metrics import DEFAULT_RETRIEVALS
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Analysis, Entry, Predicate, SafeKTable
 
 #: the widest line :func:`summary_text` aims for
 WIDTH = 120
@@ -50,9 +53,9 @@ def natural_key(text: str) -> tuple:
                  for part in re.split(r"(\d+(?:\.\d+)?)", text) if part)
 
 
-def entry_order(entry: dict, label: str = "") -> tuple:
+def entry_order(entry: Entry, label: str = "") -> tuple:
     """Display order of table entries: family, class label, size numerically, projector, retrieval."""
-    return (entry["family"], label, natural_key(entry["size"]), entry["projector"], entry["retrieval"])
+    return (entry.family, label, natural_key(entry.size), entry.projector, entry.retrieval)
 
 
 def _timing_index(timings: Optional[pd.DataFrame]) -> dict:
@@ -62,31 +65,31 @@ def _timing_index(timings: Optional[pd.DataFrame]) -> dict:
             for row in timings.itertuples(index=False)}
 
 
-def _verdict(entry: dict, k: Optional[int], speedup: Optional[float]) -> str:
+def _verdict(entry: Entry, k: Optional[int], speedup: Optional[float]) -> str:
     if k is None:
-        klass = entry["class"]
-        if "already for the instances measured" not in klass["reason"] and klass["instances_needed"] > entry["instances"]:
-            return f"no class answer ({entry['instances']} of {klass['instances_needed']} instances)"
+        klass = entry.class_
+        if "already for the instances measured" not in klass.reason and klass.instances_needed > entry.instances:
+            return f"no class answer ({entry.instances} of {klass.instances_needed} instances)"
         return NO_K
-    if k >= entry["projected_dim"]:
+    if k >= entry.projected_dim:
         return NO_REDUCTION
     if speedup is not None and speedup <= 1.0:
         return SLOWER
     return SKETCH
 
 
-def summary_lines(analysis: dict, timings: Optional[pd.DataFrame], label) -> list[dict]:
+def summary_lines(analysis: Analysis, timings: Optional[pd.DataFrame], label) -> list[dict]:
     """One dict per cell of ``analysis`` (module text); ``label(entry)`` names the class parameters."""
     times = _timing_index(timings)
     lines = []
-    for entry in sorted(analysis["entries"], key=lambda item: entry_order(item, label(item))):
-        k, m = entry["class"]["safe_k"], entry["projected_dim"]
-        row = times.get((entry["family"], canonical_json(entry["params"]), entry["projector"], entry["retrieval"], k))
-        solves = entry["kind"] != "points"
+    for entry in sorted(analysis.entries, key=lambda item: entry_order(item, label(item))):
+        k, m = entry.class_.safe_k, entry.projected_dim
+        row = times.get((entry.family, canonical_json(entry.params), entry.projector, entry.retrieval, k))
+        solves = entry.kind != "points"
         speedup = None if (row is None or not solves or pd.isna(row.speedup)) else float(row.speedup)
-        lines.append({"family": entry["family"], "label": label(entry), "size": entry["size"], "m": m,
-                      "projector": entry["projector"], "retrieval": entry["retrieval"], "kind": entry["kind"],
-                      "instances": entry["instances"], "k": k, "fraction": None if k is None else k / m,
+        lines.append({"family": entry.family, "label": label(entry), "size": entry.size, "m": m,
+                      "projector": entry.projector, "retrieval": entry.retrieval, "kind": entry.kind,
+                      "instances": entry.instances, "k": k, "fraction": None if k is None else k / m,
                       "speedup": speedup,
                       "baseline_s": None if row is None or not solves else _float(row.baseline_median_s),
                       "reduced_s": None if row is None or not solves else _float(row.reduced_median_s),
@@ -139,8 +142,9 @@ TOLERANCE_WORDS = {"gap": "projected optimum's gap", "obj": "objective error", "
                    "sign": "sign/cone violation", "distortion": "worst pairwise distortion"}
 
 
-def predicate_text(predicate: dict) -> str:
+def predicate_text(record: Predicate) -> str:
     """The predicate in words: each tolerance it checks, and whether the verdict must match (no None, no dict)."""
+    predicate = record.to_dict()
     checks = [f"{TOLERANCE_WORDS.get(key, key)} ≤ {value:g}" for key, value in sorted(predicate.items())
               if key in TOLERANCE_WORDS and is_real(value)]
     if predicate.get("classify"):
@@ -150,13 +154,13 @@ def predicate_text(predicate: dict) -> str:
     return f"{predicate['name']}: " + "; ".join(checks + extras) if checks or extras else predicate["name"]
 
 
-def heading(table: dict, analysis: dict) -> list[str]:
+def heading(table: SafeKTable, analysis: Analysis) -> list[str]:
     """What the summary answers: the predicate and tolerance, the target and scope, the time measure."""
-    target = table["target"]
-    tau = "" if analysis["tau"] is None else f" at tau = {analysis['tau']:g}"
-    return [f"The answer{tau} ({predicate_text(analysis['predicate'])})",
-            f"safe k: the smallest tested k with at least {target['success_rate']:.0%} success at "
-            f"{target['confidence']:.0%} confidence for the class (instances are the unit); speed-up: the original "
+    target = table.target
+    tau = "" if analysis.tau is None else f" at tau = {analysis.tau:g}"
+    return [f"The answer{tau} ({predicate_text(analysis.predicate)})",
+            f"safe k: the smallest tested k with at least {target.success_rate:.0%} success at "
+            f"{target.confidence:.0%} confidence for the class (instances are the unit); speed-up: the original "
             f"solved by its fastest method over sketch + projected solve + retrieval at that k (medians)"]
 
 
@@ -185,7 +189,7 @@ def retrieval_note(lines: list[dict], one: Optional[str]) -> Optional[str]:
             f"(ties to the kind's default)")
 
 
-def summary_text(table: dict, analysis: dict, timings: Optional[pd.DataFrame], label) -> str:
+def summary_text(table: SafeKTable, analysis: Analysis, timings: Optional[pd.DataFrame], label) -> str:
     """The :func:`answer_table` of :func:`summary_lines` as a fixed-width block under :func:`heading` (wrapped)."""
     import textwrap
 

@@ -39,7 +39,7 @@ from __future__ import annotations
 import json
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Iterable, Optional
+from typing import TYPE_CHECKING, Iterable, Optional
 
 import numpy as np
 import pandas as pd
@@ -59,6 +59,9 @@ from calib.store.database import Store
 from calib.verdicts.saferule import Confidence, censoring
 from calib.verdicts.scope import instances_needed
 from calib.verdicts.success import OPTIMIZATION_KINDS, Predicate, evaluate, metric_error, primary_tau, with_tau
+
+if TYPE_CHECKING:
+    from calib.analysis.records import Analysis
 
 CELL_KEYS = ["family", "size", "params", "projector", "retrieval"]
 CLASS_KEYS = ["family", "class_params", "projector", "retrieval"]
@@ -341,11 +344,12 @@ def _rule_units(rows: pd.DataFrame, solver_errors: str):
     return rows, unit, names, word
 
 
-def class_labels(analysis: dict):
-    """(family, class_params) -> the short class text of :func:`class_namer`, per family of the analysis."""
-    namers = {family: class_namer([item for item in analysis["entries"] if item["family"] == family])
-              for family in {item["family"] for item in analysis["entries"]}}
-    return lambda item: namers[item["family"]](item["class_params"]) if item["family"] in namers else ""
+def class_labels(analysis: "Analysis"):
+    """entry or law of ``analysis`` (a :class:`calib.analysis.records.Analysis`) -> the short class text of
+    :func:`class_namer` of its class_params, per family of the analysis."""
+    namers = {family: class_namer([item.class_params for item in analysis.entries if item.family == family])
+              for family in {item.family for item in analysis.entries}}
+    return lambda item: namers[item.family](item.class_params) if item.family in namers else ""
 
 
 def _class_key(entry: dict) -> tuple:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from calib.commands.tables import add_predicate_options
+from calib.commands import options
 
 
 def register(subparsers) -> None:
@@ -30,15 +30,16 @@ def register(subparsers) -> None:
     pairs.add_argument("--all-pairs", action="store_true", help="compare every pair of projectors")
     parser.add_argument("--resamples", type=int, default=1000, help="bootstrap resamples over instances (default 1000)")
     parser.add_argument("--json", type=Path, metavar="FILE", help="write the comparison as JSON")
-    add_predicate_options(parser)
+    options.add_predicate_options(parser)
     parser.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
     from calib.analysis.compare import Settings, build_comparison, verdict_lines
+    from calib.analysis.campaign import store_defaults
+    from calib.analysis.records import Comparison
     from calib.analysis.rows import load_rows
     from calib.analysis.tablefile import dumps
-    from calib.commands.tables import predicate_from, store_defaults
     from calib.errors import InputError
     from calib.outputs import check_target, write_file
     from calib.store.database import Store
@@ -53,7 +54,7 @@ def run(args: argparse.Namespace) -> int:
         if rows.empty:
             raise InputError(str(store.path), "the store has no trial rows yet", "run `calib run SPEC` first")
         default, stated, _ = store_defaults(store, rows)  # a predicate that decides something on every kind
-        predicate, confidence = predicate_from(args, default, stated)
+        predicate, confidence = options.predicate_options(args).resolve(default, stated)
         stored = set(rows["projector"])
         for name in (args.projectors or []) + ([] if args.all_pairs else [args.reference]):
             if name not in stored:
@@ -70,7 +71,8 @@ def run(args: argparse.Namespace) -> int:
                          "sweep at least two projectors over the same instances")
     from calib.wording import fold
 
-    print(fold(verdict_lines(document) + [document["notice"]]))
+    typed = Comparison.from_dict(document)
+    print(fold(verdict_lines(typed) + [typed.notice]))
     if args.json is not None:
         write_file(args.json, dumps(document), "--json")
         print(f"wrote {args.json}")

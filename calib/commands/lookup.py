@@ -76,12 +76,13 @@ def register(subparsers) -> None:
 
 def run(args: argparse.Namespace) -> int:
     from calib.analysis.lookup import answer, read_timings, timings_beside
-    from calib.atlas import table_path
+    from calib.analysis.records import SafeKTable
     from calib.analysis.tablefile import read_table
+    from calib.atlas import table_path
 
     query = query_from(args)
     path = table_path(query.family, args.table)
-    table = read_table(path)
+    table = SafeKTable.from_dict(read_table(path))  # the typed records the lookup reads
     beside = timings_beside(path)
     timings = read_timings(args.timings) if args.timings else (read_timings(beside) if beside else [])
     model = None if args.k is not None else model_from(args, query)

@@ -13,7 +13,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from calib.commands.tables import add_analysis_options
+from calib.commands import options
 
 #: analysis options a table file already fixed (its own predicate, tolerances and target)
 _FIXED = ("preset", "max_gap", "max_obj_error", "max_infeasibility", "max_sign_violation", "max_distortion",
@@ -38,14 +38,16 @@ def register(subparsers) -> None:
     parser.add_argument("--spec", type=Path, metavar="SPEC",
                         help="with a table file: the campaign's spec (TOML), shown in the report once its fingerprint "
                              "matches the table's")
-    add_analysis_options(parser)
+    options.add_analysis_options(parser)
     parser.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.analysis.campaign import analyse_store
+    from calib.analysis.records import SafeKTable
     from calib.analysis.report import build_report
     from calib.analysis.timing import timing_frame
-    from calib.commands.tables import analyse
+    from calib.commands.searches import replay_stored
     from calib.errors import InputError
     from calib.outputs import check_target, write_file
 
@@ -55,9 +57,10 @@ def run(args: argparse.Namespace) -> int:
     else:
         if args.timings is not None or args.spec is not None:
             raise InputError("--timings/--spec", "only go with a table file", "drop them: a store holds its own")
-        table, rows, spec, _ = analyse(args, policy=True)
+        keywords = {**options.analysis_keywords(args), "policy": True}
+        table, rows, spec, _ = analyse_store(args.store, options.predicate_options(args), replay=replay_stored, **keywords)
         timings = timing_frame(rows, table["analyses"][0])
-    write_file(args.html, build_report(table, timings, spec), "--html")
+    write_file(args.html, build_report(SafeKTable.from_dict(table), timings, spec), "--html")
     print(f"wrote {args.html}")
     return 0
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import signal
 import sys
+from typing import Optional
 
 
 def register(subparsers) -> None:
@@ -46,7 +47,8 @@ def run(args: argparse.Namespace) -> int:
         check_scheduler_address(args.scheduler)
     spec = load_spec(args.spec)
     if args.dry_run:
-        print(dry_run(spec, args))
+        print(dry_run(spec, out=args.out, new_campaign=args.new_campaign, scheduler=args.scheduler,
+                      probe=not args.no_probe, in_process=args.in_process, workers=args.workers))
         return 0
     from calib.store.reading import count_solver_errors
     from calib.sweep.estimate import check_memory, design_warning, search_warning, size_plans, skipped_lines
@@ -87,33 +89,14 @@ def run(args: argparse.Namespace) -> int:
         print(f"{counted(solver_errors, 'projected solve')} ended in a solver error: counted apart and left out of the success "
               f"rates by `calib tables` (--solver-errors fail counts them as failures)")
     if summary.searches:
+        from calib.commands.searches import search_report
+
         print(search_report(spec, summary.searches))
     if summary.lost:
         print(f"warning: {summary.lost} trials were lost by the executor and not stored; run the same command again to retry them",
               file=sys.stderr)
         return 1
     return 0
-
-
-def search_report(spec, cells) -> str:
-    """The trace and verdict of every k search of a run, then the evidence notice."""
-    from calib.analysis.tables import NOTICE
-    from calib.sweep.search import trace_lines
-    from calib.wording import fold
-
-    target = spec.target
-    rule = target_text(target.predicate)
-    lines = [f"k search: smallest k with success rate >= {target.rate:g} under {rule}, per cell"]
-    for cell in cells:
-        lines.append(cell.label + (f" ({cell.interrupted})" if cell.interrupted else ""))
-        lines += trace_lines(cell.search, f"success rate >= {target.rate:g}")
-    lines.append(NOTICE)
-    return fold(lines)
-
-
-def target_text(predicate) -> str:
-    """``'bound' (feasibility verdict matches, gap <= 1e-06)``: the predicate's name and what it checks."""
-    return f"'{predicate.name}' ({predicate.describe()})"
 
 
 #: local worker processes allowed per core: each runs one solver thread, more only adds memory
@@ -174,14 +157,17 @@ def _stored_in_plan(spec, done: set, planned: int) -> int:
     return sum(trial.trial_id in done for _, trials in expand(spec) for trial in trials)
 
 
-def dry_run(spec, args: argparse.Namespace) -> str:
-    """The --dry-run report (creates nothing)."""
+def dry_run(spec, *, out: str, new_campaign: bool = False, scheduler: Optional[str] = None, probe: bool = True,
+            in_process: bool = False, workers: Optional[int] = None) -> str:
+    """The --dry-run report of ``spec`` (creates nothing): the store it would write under ``out``, the
+    trial counts and the work estimate, with a timing probe unless ``probe`` is False; ``workers``
+    (default: the cores), ``in_process`` and ``scheduler`` as the options of ``calib run``."""
     from calib.store.database import Store
     from calib.store.resume import locate
     from calib.sweep.estimate import check_memory, probe_sizes, render_plan, size_plans
     from calib.sweep.executors import default_workers
 
-    path, exists = locate(spec, args.out, args.new_campaign)
+    path, exists = locate(spec, out, new_campaign)
     stored = 0
     plans = size_plans(spec)
     if exists:
@@ -191,10 +177,10 @@ def dry_run(spec, args: argparse.Namespace) -> str:
         finally:
             store.close()
     note = f"{path} ({'resumes: ' + str(stored) + ' of its trials stored' if exists else 'new'})"
-    if not args.scheduler:  # a cluster's workers have memory of their own
+    if not scheduler:  # a cluster's workers have memory of their own
         check_memory(plans)
-    probes = None if args.no_probe else probe_sizes(spec, plans)
-    workers = 1 if args.in_process else (args.workers or default_workers())
-    if args.scheduler:
+    probes = probe_sizes(spec, plans) if probe else None
+    workers = 1 if in_process else (workers or default_workers())
+    if scheduler:
         note += "; the estimate below assumes local workers, divide the CPU time by your Dask threads"
     return render_plan(spec, plans, probes, stored, note, workers)

@@ -5,144 +5,13 @@ from __future__ import annotations
 import argparse
 import json
 from pathlib import Path
+from typing import TYPE_CHECKING
 
+from calib.commands import options
 from calib.wording import fold, wrapped
 
-
-def add_predicate_options(parser: argparse.ArgumentParser) -> None:
-    """Options that choose the success predicate and the confidence target (shared with `probe`)."""
-    from calib.verdicts.success import PRESETS
-
-    group = parser.add_argument_group("success predicate (decided now, from stored metrics; no re-run needed)")
-    group.add_argument("--preset", default=None, choices=sorted(PRESETS) + ["solution"],
-                       help="default: a store written by a k search is read under its search's own [target]; otherwise "
-                            "'usable' for LPs, SDPs and QPs and 'distortion' for point sets (every kind gets a predicate "
-                            "that decides something on it). "
-                            "'usable': the verdict matches and "
-                            "the point of each retrieval meets --max-obj-error, --max-infeasibility and --max-sign-violation; "
-                            "'policy': usable and faster end to end than the original solved by its fastest method; "
-                            "'bound': the projected optimum is within --max-gap of the original; "
-                            "'classify': only the feasibility verdict must match; "
-                            "'distortion': point sets, worst pairwise distortion within --max-distortion; "
-                            "'clustering': the projected partition's cost on the original points within 1 + "
-                            "--max-cost-excess of the original partition's")
-    group.add_argument("--faster", action="store_true",
-                       help="on any preset: a trial also has to be faster end to end (sketch + projected solve + "
-                            "retrieval) than the fair baseline; depends on measured times")
-    group.add_argument("--max-gap", type=float, metavar="TAU", help="relative gap of the projected optimum (bound preset: 0.05)")
-    group.add_argument("--max-obj-error", type=float, metavar="TAU", help="objective error of the retrieved point relative to the objective's scale (usable preset: 0.05)")
-    group.add_argument("--max-infeasibility", type=float, metavar="TAU", help="feasibility error, e.g. ||Ax-b|| over the kind's scale (usable preset: 0.05)")
-    group.add_argument("--max-sign-violation", type=float, metavar="TAU", help="cone violation ||min(x,0)||/||x|| or the PSD analogue (usable preset: 0.05)")
-    group.add_argument("--max-distortion", type=float, metavar="TAU", help="worst pairwise distortion of squared distances for point sets (distortion preset: 0.2)")
-    group.add_argument("--max-cost-excess", type=float, metavar="TAU", help="clustering: cluster_cost_ratio - 1 of the projected partition (clustering preset: 0.05)")
-    group.add_argument("--delta", type=float, help="target success rate is 1 - delta (default 0.1, or the k search's own)")
-    group.add_argument("--confidence", type=float,
-                       help="confidence of the lower bound and the intervals (default 0.95, or the k search's own)")
-
-
-def add_analysis_options(parser: argparse.ArgumentParser) -> None:
-    """The predicate options plus the tolerance ladder and the eps of the bounds (tables, report)."""
-    add_predicate_options(parser)
-    group = parser.add_argument_group("tolerance ladder and theory")
-    group.add_argument("--tau", type=float, nargs="+", metavar="TAU",
-                       help="a ladder of primary tolerances: one analysis per value, each setting the tolerance(s) of the preset "
-                            "(e.g. --tau 0.01 0.05 0.1); `calib lookup --tau` then picks among them")
-    group.add_argument("--policy", action="store_true",
-                       help="add the policy answer per cell: the k with the smallest median end-to-end time among the k "
-                            "where usable-and-faster trials reach the target, or 'no k saves time at this size' (rests on "
-                            "measured times, so the table then differs between runs)")
-    group.add_argument("--eps", type=float, help="eps at which the published JL bounds are compared for LPs/SDPs/QPs "
-                                                 "(default: the primary tolerance tau; point sets always use the distortion tolerance)")
-    group.add_argument("--solver-errors", default="exclude", metavar="{exclude,fail}",
-                       help="projected solves that end in a solver error: 'exclude' counts them in their own column and "
-                            "leaves them out of the rates (default); 'fail' counts them as failures (strict reading). "
-                            "A time limit is always a failure")
-
-
-def predicate_from(args: argparse.Namespace, default="usable", default_confidence=None):
-    """(predicate, confidence) from the parsed options; ``default`` (a preset name or a predicate) when
-    --preset is not given, ``default_confidence`` (else 0.1 at 0.95) for --delta and --confidence not given."""
-    from calib.verdicts.saferule import Confidence
-    from calib.verdicts.success import make_predicate
-
-    predicate = make_predicate(args.preset or default, faster=args.faster, gap=args.max_gap, obj=args.max_obj_error,
-                               feas=args.max_infeasibility, sign=args.max_sign_violation, distortion=args.max_distortion,
-                               cost=getattr(args, "max_cost_excess", None))
-    stated = default_confidence or Confidence()
-    return predicate, Confidence(delta=stated.delta if args.delta is None else args.delta,
-                                 level=stated.level if args.confidence is None else args.confidence)
-
-
-def search_spec(raw_spec: dict, store_path):
-    """The parsed spec of a store written by a k search, else None (also when it no longer parses here)."""
-    from calib.errors import InputError
-    from calib.sweep.spec import parse_spec
-
-    k = raw_spec.get("sweep", {}).get("k")
-    if not (isinstance(k, dict) and "search" in k):
-        return None
-    try:
-        return parse_spec(raw_spec, source=str(store_path))
-    except InputError:
-        return None
-
-
-def store_defaults(store, rows) -> tuple:
-    """(default predicate, default confidence, parsed search spec or None) of a store: a k search's
-    own [target], else :func:`calib.verdicts.success.default_predicate` of the kinds it holds."""
-    from calib.verdicts.saferule import Confidence
-    from calib.verdicts.success import default_predicate
-
-    spec = search_spec(store.stored_spec(), store.path)
-    if spec is not None:
-        return spec.target.predicate, Confidence(spec.target.delta, spec.target.confidence), spec
-    return default_predicate(set(rows["kind"]) if not rows.empty else set()), Confidence(), None
-
-
-def search_verdicts(spec, store):
-    """The store's k searches replayed (:func:`calib.sweep.runner.replay_searches`) as the
-    :class:`calib.analysis.tables.SearchVerdicts` a table states for the searched cells."""
-    from calib.analysis.tables import SearchVerdicts
-    from calib.sweep.runner import replay_searches
-    from calib.verdicts.saferule import Confidence
-
-    cells = replay_searches(spec, store)
-    verdicts = {}
-    for cell in cells:
-        search = cell.search
-        verdict = (search.safe_k, search.reason) if search.done and not cell.interrupted else \
-            (None, cell.interrupted or "search not finished")
-        for ref in cell.refs:
-            verdicts[(ref.instance_id, cell.projector.label, cell.retrieval)] = verdict
-    target = spec.target
-    return SearchVerdicts(target.predicate, Confidence(target.delta, target.confidence), verdicts), cells
-
-
-def analyse(args: argparse.Namespace, policy: bool = False):
-    """(table, tidy rows, stored spec, replayed searches or None) of ``args.store`` under the parsed analysis
-    options (defaults from the store: :func:`store_defaults`); a store written by a k search states the
-    searches' claims in the analysis of their own rule; the policy answer is added when ``policy`` or
-    ``--policy`` asks for it."""
-    from calib.analysis.rows import load_rows
-    from calib.analysis.tables import build_table
-    from calib.errors import InputError
-    from calib.store.database import Store
-
-    if args.eps is not None and not 0.0 < args.eps < 1.0:
-        raise InputError("--eps", f"must lie in (0, 1), got {args.eps!r}", "e.g. --eps 0.2")
-    store = Store.open_existing(args.store)
-    try:
-        rows = load_rows(store)
-        default, stated, searched = store_defaults(store, rows)
-        predicate, confidence = predicate_from(args, default, stated)
-        verdicts, cells = search_verdicts(searched, store) if searched is not None else (None, None)
-        table = build_table(store, predicate, confidence, taus=args.tau, eps=args.eps, rows=rows,
-                            solver_errors=getattr(args, "solver_errors", "exclude"),
-                            policy=policy or getattr(args, "policy", False), searches=verdicts)
-        spec = store.stored_spec()
-    finally:
-        store.close()
-    return table, rows, spec, (searched, cells) if searched is not None else None
+if TYPE_CHECKING:
+    from calib.analysis.records import Analysis, Entry, Law, LawClass, SafeKTable, SweptRule, Transition
 
 
 def register(subparsers) -> None:
@@ -165,12 +34,15 @@ def register(subparsers) -> None:
                         help="write the certified rule per class (k = f m, k = a + C ln n, scope, confidence, the size and "
                              "feature ranges it holds for) as JSON for pipelines (schema: calib/schemas/k-rule.v1.json); "
                              "`calib.atlas.rule_k(FILE, ...)` answers a new model from it")
-    add_analysis_options(parser)
+    options.add_analysis_options(parser)
     parser.set_defaults(func=run)
 
 
 def run(args: argparse.Namespace) -> int:
+    from calib.analysis.campaign import analyse_store
+    from calib.analysis.records import SafeKTable
     from calib.analysis.tables import strip_policy, write_table
+    from calib.commands.searches import replay_stored
     from calib.analysis.timing import timing_frame, write_timings
     from calib.outputs import check_target
 
@@ -179,7 +51,10 @@ def run(args: argparse.Namespace) -> int:
         check_target(path, option)
     # one analysis for the table and the report: the report needs the policy answer, the table holds it
     # only when asked (it rests on measured times)
-    table, rows, spec, searched = analyse(args, policy=args.html is not None)
+    keywords = options.analysis_keywords(args)
+    keywords["policy"] |= args.html is not None
+    table, rows, spec, searched = analyse_store(args.store, options.predicate_options(args), replay=replay_stored,
+                                                **keywords)
     timings = timing_frame(rows, table["analyses"][0])
     written = table if args.policy else strip_policy(table)
     write_table(written, args.json, args.csv)
@@ -189,12 +64,12 @@ def run(args: argparse.Namespace) -> int:
         from calib.analysis.report import build_report
         from calib.outputs import write_file
 
-        write_file(args.html, build_report(table, timings, spec), "--html")
+        write_file(args.html, build_report(SafeKTable.from_dict(table), timings, spec), "--html")
     if args.rule is not None:
         from calib.analysis.rulefile import write_rules
 
         write_rules(written, args.rule)
-    print(render_summary(written, timings))
+    print(render_summary(SafeKTable.from_dict(written), timings))
     if searched is not None:
         print(search_summary(*searched))
     for path in (args.json, args.csv, args.timings, args.html, args.rule):
@@ -206,60 +81,60 @@ def run(args: argparse.Namespace) -> int:
 def search_summary(spec, cells) -> str:
     """For a store written by a k search: the k values above are the ones the search tested, and its own
     verdicts (replayed from the stored trials under the spec's [target]) follow."""
-    from calib.commands.run import search_report
+    from calib.commands.searches import search_report
 
     return "\n" + fold(["the k values above are those a k search tested (counts per tested k); the table states the "
                         "search's own claims under its [target]; the search itself, replayed from the stored trials:"]
                        + search_report(spec, cells).splitlines())
 
 
-def _transition_text(transition: dict, rate: float) -> str:
-    if transition["k50"] is None:
-        return f"no logistic fit: {transition['reason']}"
-    low, high = transition["k50_interval"]
-    return (f"logistic fit: k50 = {transition['k50']:.3g} [{low:.3g}, {high:.3g}]; it reaches {rate:.0%} success at "
-            f"k = {transition['k_target']:.3g} (the fit's point estimate, no confidence claim: the safe k above is the "
-            f"certified answer); intervals for {transition['interval_scope']}")
+def _transition_text(transition: Transition, rate: float) -> str:
+    if transition.k50 is None:
+        return f"no logistic fit: {transition.reason}"
+    low, high = transition.k50_interval
+    return (f"logistic fit: k50 = {transition.k50:.3g} [{low:.3g}, {high:.3g}]; it reaches {rate:.0%} success at "
+            f"k = {transition.k_target:.3g} (the fit's point estimate, no confidence claim: the safe k above is the "
+            f"certified answer); intervals for {transition.interval_scope}")
 
 
-def _fit_text(name: str, fit: dict, eps: str = "") -> str:
+def _fit_text(name: str, fit: Law, eps: str = "") -> str:
     from calib.analysis.law import law_formula
 
-    censored = f"; {fit['censored']} censored size(s) not fitted" if fit["censored"] else ""
-    if fit["a"] is None:
-        return f"{name} law: {fit['reason']}"
-    return (f"{name} law: {law_formula(fit['a'], fit['C'], fit['C_se'])} over n in [{fit['n_min']}, {fit['n_max']}]"
+    censored = f"; {fit.censored} censored size(s) not fitted" if fit.censored else ""
+    if fit.a is None:
+        return f"{name} law: {fit.reason}"
+    return (f"{name} law: {law_formula(fit.a, fit.C, fit.C_se)} over n in [{fit.n_min}, {fit.n_max}]"
             f"{censored}{eps}")
 
 
-def _law_lines(law: dict) -> list[str]:
-    rules = ", ".join(f"{name} C = {rule['C']:.4g}" for name, rule in law["theory"]["rules"].items())
-    eps = f" (bounds at eps = {law['theory']['eps']:g}: {rules})" if law["theory"]["eps"] is not None else ""
+def _law_lines(law: LawClass) -> list[str]:
+    rules = ", ".join(f"{name} C = {rule.C:.4g}" for name, rule in law.theory.rules.items())
+    eps = f" (bounds at eps = {law.theory.eps:g}: {rules})" if law.theory.eps is not None else ""
     lines = []
-    for text in (_fit_text("class safe k", law["class_safe_k_law"]),
-                 _fit_text("safe k (these instances)", law["safe_k_law"], eps), _fit_text("k50", law["k50_law"])):
+    for text in (_fit_text("class safe k", law.class_safe_k_law),
+                 _fit_text("safe k (these instances)", law.safe_k_law, eps), _fit_text("k50", law.k50_law)):
         lines += wrapped(text, "  ")
-    rule = law.get("policy_rule")
-    if rule and rule["grid"] and not law.get("rules"):  # else said at both scopes below
-        lines += wrapped(f"policy rule {rule['rule']}: {rule['statement']}", "  ")
-        if rule["failing"]:
-            lines += wrapped(f"{rule['unit']}s below the target at f = {rule['failing_at']:g}: {', '.join(rule['failing'])}",
+    rule = law.policy_rule
+    if rule and rule.grid and not law.rules:  # else said at both scopes below
+        lines += wrapped(f"policy rule {rule.rule}: {rule.statement}", "  ")
+        if rule.failing:
+            lines += wrapped(f"{rule.unit}s below the target at f = {rule.failing_at:g}: {', '.join(rule.failing)}",
                              "    ")
-    for swept in law.get("rules", []):
+    for swept in law.rules or []:
         lines += swept_rule_lines(swept)
     return lines
 
 
-def swept_rule_lines(swept: dict) -> list[str]:
+def swept_rule_lines(swept: SweptRule) -> list[str]:
     """The rule of the swept grid at both scopes: these units, then the class."""
-    mine, klass = swept["instances"], swept["class"]
-    lines = wrapped(f"rule {swept['rule']}, these {mine['units']} {swept['unit']}s: {mine['statement']}", "  ")
-    lines += wrapped(f"{mine['trials_per_unit']} trials per {swept['unit']} at each value; "
-                     f"{mine['trials_per_unit_needed']} needed when all succeed (set replicates)", "    ")
-    if mine["value"] is None and mine["failing"]:
-        lines += wrapped(f"{swept['unit']}s below the target at {swept['coefficient']} = {mine['failing_at']:g}: "
-                         f"{', '.join(mine['failing'])}", "    ")
-    lines += wrapped(f"rule {swept['rule']}, the class: {klass['statement'] or klass['reason']}", "  ")
+    mine, klass = swept.instances, swept.class_
+    lines = wrapped(f"rule {swept.rule}, these {mine.units} {swept.unit}s: {mine.statement}", "  ")
+    lines += wrapped(f"{mine.trials_per_unit} trials per {swept.unit} at each value; "
+                     f"{mine.trials_per_unit_needed} needed when all succeed (set replicates)", "    ")
+    if mine.value is None and mine.failing:
+        lines += wrapped(f"{swept.unit}s below the target at {swept.coefficient} = {mine.failing_at:g}: "
+                         f"{', '.join(mine.failing)}", "    ")
+    lines += wrapped(f"rule {swept.rule}, the class: {klass.statement or klass.reason}", "  ")
     return lines
 
 
@@ -269,78 +144,78 @@ def _k_text(k, m: int) -> str:
     return f"{k} (k = m: no reduction)" if k >= m else f"{k} (k/m = {k / m:.2f})"
 
 
-def scope_lines(entry: dict) -> list[str]:
+def scope_lines(entry: Entry) -> list[str]:
     """The class answer first (the default), then the answer for the instances measured."""
-    klass, m = entry["class"], entry["projected_dim"]
-    return [f"class safe k = {_k_text(klass['safe_k'], m)}" + (f"  [{klass['reason']}]" if klass["reason"] else ""),
-            f"for these {entry['instances']} instance(s) only: safe k = {_k_text(entry['safe_k'], m)}"
-            + (f"  [{entry['safe_k_reason']}]" if entry["safe_k_reason"] else "")]
+    klass, m = entry.class_, entry.projected_dim
+    return [f"class safe k = {_k_text(klass.safe_k, m)}" + (f"  [{klass.reason}]" if klass.reason else ""),
+            f"for these {entry.instances} instance(s) only: safe k = {_k_text(entry.safe_k, m)}"
+            + (f"  [{entry.safe_k_reason}]" if entry.safe_k_reason else "")]
 
 
-def ladder_note(table: dict, analysis: dict) -> str:
+def ladder_note(table: SafeKTable, analysis: Analysis) -> str:
     """Whether the other tolerances of the ladder give the same class answers as ``analysis``."""
-    others = [other for other in table["analyses"] if other is not analysis and other["tau"] is not None]
+    others = [other for other in table.analyses if other is not analysis and other.tau is not None]
     if not others:
         return ""
 
-    def answers(item: dict) -> dict:
-        return {(e["family"], e["size"], json.dumps(e["params"], sort_keys=True), e["projector"], e["retrieval"]):
-                e["class"]["safe_k"] for e in item["entries"]}
+    def answers(item: Analysis) -> dict:
+        return {(e.family, e.size, json.dumps(e.params, sort_keys=True), e.projector, e.retrieval):
+                e.class_.safe_k for e in item.entries}
 
     mine = answers(analysis)
     parts = []
     for other in others:
         differ = sum(mine.get(key, "missing") != value for key, value in answers(other).items())
-        parts.append(f"tau = {other['tau']:g}: " + ("the same class safe k in every cell" if not differ else
+        parts.append(f"tau = {other.tau:g}: " + ("the same class safe k in every cell" if not differ else
                                                    f"{differ} cell(s) differ (blocks below)"))
     return "At the other tolerances of the ladder: " + "; ".join(parts) + "."
 
 
-def render_summary(table: dict, timings=None) -> str:
+def render_summary(table: SafeKTable, timings=None) -> str:
     """A plain-text view: the one-screen answer (:mod:`calib.analysis.summary`) of the first (strictest)
     analysis, then per tolerance one block per cell (sizes in numeric order, one line per k) and the laws."""
     from calib.analysis.policy import policy_text
     from calib.analysis.summary import entry_order, summary_text
     from calib.analysis.tables import class_labels
 
-    target = table["target"]
-    first = table["analyses"][0]
-    lines = [f"campaign {table['campaign']['name']}: target rate {target['success_rate']:.2f} at "
-             f"{target['confidence']:.0%} confidence", ""]
-    if first["entries"]:
+    target = table.target
+    first = table.analyses[0]
+    lines = [f"campaign {table.campaign.name}: target rate {target.success_rate:.2f} at "
+             f"{target.confidence:.0%} confidence", ""]
+    if first.entries:
         lines.append(summary_text(table, first, timings, class_labels(first)))
         lines += wrapped(ladder_note(table, first), "", "")
     lines.append("")
     lines += wrapped("The details follow: per tolerance, one block per cell (its answer in both scopes, the fit and "
                      "every tested k), then the laws across sizes.", "", "")
-    for analysis in table["analyses"]:
-        lines.append(f"\n=== predicate {analysis['predicate']['name']} (tau = {analysis['tau']})")
-        for excluded in analysis["excluded"]:
-            lines += wrapped(f"left out {excluded['family']}: {excluded['reason']}", "  ")
+    for analysis in table.analyses:
+        lines.append(f"\n=== predicate {analysis.predicate.name} (tau = {analysis.tau})")
+        for excluded in analysis.excluded:
+            lines += wrapped(f"left out {excluded.family}: {excluded.reason}", "  ")
         label = class_labels(analysis)
-        for entry in sorted(analysis["entries"], key=lambda item: entry_order(item, label(item))):
+        for entry in sorted(analysis.entries, key=lambda item: entry_order(item, label(item))):
             extra = label(entry)
             lines.append("")
-            lines += wrapped(f"{entry['family']} {entry['size']}{' ' + extra if extra else ''} | {entry['projector']} | "
-                             f"{entry['retrieval']} | m={entry['projected_dim']} n={entry['n_points']}, "
-                             f"{entry['instances']} instance(s)", "")
-            for text in scope_lines(entry) + [_transition_text(entry["transition"], target["success_rate"])]:
+            lines += wrapped(f"{entry.family} {entry.size}{' ' + extra if extra else ''} | {entry.projector} | "
+                             f"{entry.retrieval} | m={entry.projected_dim} n={entry.n_points}, "
+                             f"{entry.instances} instance(s)", "")
+            for text in scope_lines(entry) + [_transition_text(entry.transition, target.success_rate)]:
                 lines += wrapped(text)
-            if "policy" in entry:
+            if entry.policy:
                 lines += wrapped(policy_text(entry))
-            if entry["solver_errors"]:
-                lines += wrapped(f"{entry['solver_errors']} projected solve(s) ended in a solver error: "
-                                 + ("left out of the rates" if target["solver_errors"] == "exclude" else "counted as failures"))
-            for point in entry["grid"]:
-                mark = "pass" if point["passes"] else "fail"
-                klass = "pass" if point["class_passes"] else "fail"
-                lines.append(f"   k={point['k']:>6}  {point['successes']:>4}/{point['trials']:<4} rate={point['rate']:.3f}"
-                             f"  lower={point['lower_bound']:.3f} {mark}  class lower={point['class_lower_bound']:.3f} {klass}"
-                             + (f"  solver errors {point['solver_errors']}" if point["solver_errors"] else ""))
-        for law in analysis["laws"]:
+            if entry.solver_errors:
+                lines += wrapped(f"{entry.solver_errors} projected solve(s) ended in a solver error: "
+                                 + ("left out of the rates" if target.solver_errors == "exclude" else "counted as failures"))
+            for point in entry.grid:
+                mark = "pass" if point.passes else "fail"
+                klass = "pass" if point.class_passes else "fail"
+                lines.append(f"   k={point.k:>6}  {point.successes:>4}/{point.trials:<4} rate={point.rate:.3f}"
+                             f"  lower={point.lower_bound:.3f} {mark}  class lower={point.class_lower_bound:.3f} {klass}"
+                             + (f"  solver errors {point.solver_errors}" if point.solver_errors else ""))
+        for law in analysis.laws:
             extra = label(law)
-            lines.append(f"\n{law['family']}{' ' + extra if extra else ''} | {law['projector']} | {law['retrieval']}")
+            lines.append(f"\n{law.family}{' ' + extra if extra else ''} | {law.projector} | {law.retrieval}")
             lines += _law_lines(law)
     lines.append("")
-    lines += wrapped(table["notice"], "", "")
+    lines += wrapped(table.notice, "", "")
     return "\n".join(lines)

@@ -120,7 +120,7 @@ class Family:
 
     def make(self, params: dict, index: int, rng: np.random.Generator) -> Instance:
         """Instance number ``index`` of this family at full ``params``, drawn from ``rng`` (the
-        instance's own stream, :meth:`calib.sweep.trial.InstanceRef.build`)."""
+        instance's own stream, :meth:`calib.trial.InstanceRef.build`)."""
         problem, info = self.build(params, rng)
         return Instance(family=self.name, params=params, index=index, kind=self.kind, problem=problem, info=info)
 

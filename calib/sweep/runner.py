@@ -332,95 +332,38 @@ def search_cells(spec: Spec, extend: bool = True) -> list[SearchCell]:
 
 def trial_successes(rows: list[dict], kinds: dict[str, str], predicate) -> dict[str, dict[str, bool]]:
     """trial id -> retrieval -> success of stored trial rows under ``predicate``, in one
-    :func:`calib.verdicts.success.evaluate` call; ``kinds`` maps each row's instance id to its kind."""
+    :func:`calib.verdicts.success.judge_records` call; ``kinds`` maps each row's instance id to its kind."""
     import json
 
-    import pandas as pd
+    from calib.verdicts.success import judge_records
 
-    from calib.metrics import FIELDS
-    from calib.verdicts.success import evaluate
-
-    records = []
-    for row in rows:
-        metrics = json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}
-        record = {name: metrics.get(name) for name in FIELDS}  # as calib.analysis.tables.load_rows reads them
-        record.update(status=row["status"], kind=kinds[row["instance_id"]])
-        records.append(record)
-    frame = pd.DataFrame.from_records(records, columns=["status", "kind", *FIELDS])
+    records = [{**(json.loads(row["metrics"]) if isinstance(row["metrics"], str) else {}),
+                "status": row["status"], "kind": kinds[row["instance_id"]]} for row in rows]
     successes: dict[str, dict[str, bool]] = {}
-    for row, success in zip(rows, evaluate(frame, predicate).tolist()):
-        successes.setdefault(row["trial_id"], {})[row["retrieval"]] = bool(success)
+    for row, success in zip(rows, judge_records(records, predicate)):
+        successes.setdefault(row["trial_id"], {})[row["retrieval"]] = success
     return successes
 
 
-class SearchCoordinator(Coordinator):
-    """Drives the k searches of a spec on the executor; trials and originals stored as by the grid."""
+class StoredOutcomes:
+    """The success of stored trials under the spec's ``[target]`` predicate, each read from the store once.
 
-    def run(self) -> RunSummary:
-        start = time.perf_counter()
-        self._prepare()
-        self._notify()
-        self._advance()
-        while self._in_flight:
-            finished = self.executor.next_done()
-            self._in_flight -= 1
-            self._handle(finished.token, finished.result)
-            self._advance()
-        return RunSummary(self.store.path, self.executor.name, len(self.requested), self.reused,
-                          self.progress.done, dict(self.progress.statuses), self.lost, self.originals,
-                          time.perf_counter() - start, searches=self.cells)
+    ``stored`` (trial id -> the retrievals it has rows for, :meth:`Store.stored_retrievals`) is shared
+    with a running coordinator, which adds to it as trials are stored.
+    """
 
-    def _prepare(self) -> None:
-        self.stored = self.store.stored_retrievals()
-        self.cells = search_cells(self.spec, extend=self.store.searches_extend())  # as the store was run
-        self.progress = Progress(total=0)
-        self.requested: set[str] = set()   # trial ids some search asked for
-        self.reused = 0
+    def __init__(self, spec: Spec, store: Store, stored: Optional[dict] = None):
+        self.spec, self.store = spec, store
+        self.stored = store.stored_retrievals() if stored is None else stored
         self._outcomes: dict[str, dict] = {}   # trial id -> retrieval -> success
         self._rows: dict[str, dict] = {}       # instance id -> stored instance row
-        self._pending_originals: set[str] = set()
-        self._lost_ids: set[str] = set()
 
-    def _advance(self) -> None:
-        """Feed every search what the store holds; submit what they still need."""
-        for cell in self.cells:
-            while not cell.interrupted and (demand := cell.search.demand()) is not None:
-                outcomes = self._read(cell, *demand)
-                if outcomes is None:
-                    break
-                cell.search.offer(outcomes)
+    def holds(self, trial: Trial, retrieval: str) -> bool:
+        """Whether the store has the row of ``trial`` for ``retrieval``."""
+        return retrieval in self.stored.get(trial.trial_id, ())
 
-    def _read(self, cell: SearchCell, k: int, count: int) -> Optional[list]:
-        """The outcomes of the first ``count`` trials at k, or None after submitting the missing ones."""
-        trials = cell.trials_at(k, count)
-        missing = []
-        for trial in trials:
-            stored = not self._missing(trial, (cell.retrieval,))
-            if trial.trial_id not in self.requested:
-                self.requested.add(trial.trial_id)
-                self.reused += stored
-            if not stored:
-                missing.append(trial)
-        if not missing:
-            return self._successes(trials, cell.retrieval)
-        for trial in missing:
-            if trial.trial_id in self._lost_ids:
-                cell.interrupted = "the executor lost trials of this search: run the same command again to resume"
-                return None
-            self._request(trial, cell.retrieval)
-        return None
-
-    def _successes(self, trials: list[Trial], retrieval: str) -> list[bool]:
-        """Success of each stored trial for ``retrieval``; the ones not yet known are read in one batch."""
-        unknown = [trial for trial in trials if retrieval not in self._outcomes.get(trial.trial_id, {})]
-        if unknown:
-            rows = self.store.trial_rows_of([trial.trial_id for trial in unknown])
-            kinds = {trial.instance.instance_id: self._instance(trial.instance.instance_id)["kind"] for trial in unknown}
-            for trial_id, known in trial_successes(rows, kinds, self.spec.target.predicate).items():
-                self._outcomes.setdefault(trial_id, {}).update(known)
-        return [self._outcomes[trial.trial_id][retrieval] for trial in trials]
-
-    def _instance(self, instance_id: str) -> Optional[dict]:
+    def instance(self, instance_id: str) -> Optional[dict]:
+        """The stored instance row, or None when its original is not stored yet."""
         if instance_id not in self._rows:
             row = self.store.instance_row(instance_id)
             if row is None:
@@ -428,18 +371,103 @@ class SearchCoordinator(Coordinator):
             self._rows[instance_id] = row
         return self._rows[instance_id]
 
+    def successes(self, trials: list[Trial], retrieval: str) -> list[bool]:
+        """Success of each stored trial for ``retrieval``; the ones not yet known are read in one batch."""
+        unknown = [trial for trial in trials if retrieval not in self._outcomes.get(trial.trial_id, {})]
+        if unknown:
+            rows = self.store.trial_rows_of([trial.trial_id for trial in unknown])
+            kinds = {trial.instance.instance_id: self.instance(trial.instance.instance_id)["kind"] for trial in unknown}
+            for trial_id, known in trial_successes(rows, kinds, self.spec.target.predicate).items():
+                self._outcomes.setdefault(trial_id, {}).update(known)
+        return [self._outcomes[trial.trial_id][retrieval] for trial in trials]
+
+    def source(self, cell: SearchCell):
+        """The :data:`calib.sweep.search.OutcomeSource` of ``cell`` from the store alone: None as soon
+        as one of the trials asked for is not stored."""
+        def read(k: int, count: int) -> Optional[list[bool]]:
+            trials = cell.trials_at(k, count)
+            if not all(self.holds(trial, cell.retrieval) for trial in trials):
+                return None
+            return self.successes(trials, cell.retrieval)
+
+        return read
+
+
+class SearchCoordinator(Coordinator):
+    """Drives the k searches of a spec on the executor; trials and originals stored as by the grid.
+
+    Each search is fed through :func:`calib.sweep.search.drive`: its source reads the stored trials and
+    submits the missing ones, answering None until they are stored.
+    """
+
+    def run(self) -> RunSummary:
+        from calib.sweep.search import drive
+
+        start = time.perf_counter()
+        self.stored = self.store.stored_retrievals()
+        self.known = StoredOutcomes(self.spec, self.store, self.stored)
+        self.cells = search_cells(self.spec, extend=self.store.searches_extend())  # as the store was run
+        self.progress = Progress(total=0)
+        self.requested: set[str] = set()   # trial ids some search asked for
+        self.reused = 0
+        self._pending_originals: set[str] = set()
+        self._lost_ids: set[str] = set()
+        sources = [(cell, self._source(cell)) for cell in self.cells]
+        self._notify()
+        while True:
+            for cell, source in sources:  # feed every search what the store holds; submit what they still need
+                if not cell.interrupted:
+                    drive(cell.search, source)
+            if not self._in_flight:
+                break
+            finished = self.executor.next_done()
+            self._in_flight -= 1
+            self._handle(finished.token, finished.result)
+        return RunSummary(self.store.path, self.executor.name, len(self.requested), self.reused,
+                          self.progress.done, dict(self.progress.statuses), self.lost, self.originals,
+                          time.perf_counter() - start, searches=self.cells)
+
+    def _source(self, cell: SearchCell):
+        """The outcome source of ``cell`` on the live run: None (waiting) after submitting missing trials."""
+        def read(k: int, count: int) -> Optional[list]:
+            if cell.interrupted:
+                return None
+            return self._read(cell, k, count)
+
+        return read
+
+    def _read(self, cell: SearchCell, k: int, count: int) -> Optional[list]:
+        """The outcomes of the first ``count`` trials at k, or None after submitting the missing ones."""
+        trials = cell.trials_at(k, count)
+        missing = []
+        for trial in trials:
+            stored = self.known.holds(trial, cell.retrieval)
+            if trial.trial_id not in self.requested:
+                self.requested.add(trial.trial_id)
+                self.reused += stored
+            if not stored:
+                missing.append(trial)
+        if not missing:
+            return self.known.successes(trials, cell.retrieval)
+        for trial in missing:
+            if trial.trial_id in self._lost_ids:
+                cell.interrupted = "the executor lost trials of this search: run the same command again to resume"
+                return None
+            self._request(trial, cell.retrieval)
+        return None
+
     def _request(self, trial: Trial, retrieval: str) -> None:
         """Submit ``trial`` (once) for ``retrieval``, after its instance's original solve."""
         if trial.trial_id in self._submitted:
             return
         ref = trial.instance
-        row = self._instance(ref.instance_id)
+        row = self.known.instance(ref.instance_id)
         if row is None:
             if ref.instance_id not in self._pending_originals:
                 self._pending_originals.add(ref.instance_id)
-                self._waiting[ref.instance_id] = (ref, [])
+                self._waiting[ref.instance_id] = (ref, [])  # no trials queued: the search asks again once it is stored
                 self._submit(OriginalTask(ref, self.spec.solver, self.spec.plugins))
-            return  # re-requested by _advance once the original is stored
+            return
         missing = self._missing(trial, retrieval_names(row["kind"], self.spec.retrievals))  # every search of the size
         self.progress.total += 1
         self._notify()
@@ -456,35 +484,24 @@ class SearchCoordinator(Coordinator):
             return
         super()._store_original(instance_id, result)
 
-    def _queue_trials(self, todo, stored_row: dict) -> None:
-        return  # searches submit their own trials (see _advance)
-
     def _store_trial(self, trial_id: str, result) -> None:
         if isinstance(result, Failure) and result.status == "lost":
             self._lost_ids.add(trial_id)
         super()._store_trial(trial_id, result)
 
 
-class _NoExecutor:
-    """Takes tasks and runs none: what a replay of stored searches submits is what is missing."""
-
-    name = "none"
-    slots = 0
-
-    def submit(self, token: str, task, timeout) -> None:
-        pass
-
-
 def replay_searches(spec: Spec, store: Store) -> list[SearchCell]:
     """The k searches of ``spec`` decided from ``store`` alone (read only, nothing runs).
 
-    A search is a pure function of its trials' outcomes, so this gives the verdicts `calib run`
-    printed; a search that needs a trial the store lacks is marked not finished.
+    Each search is driven (:func:`calib.sweep.search.drive`) by :meth:`StoredOutcomes.source`, the
+    same reading of stored trials a live run feeds it, so this gives the verdicts `calib run` printed;
+    a search that needs a trial the store lacks is marked not finished.
     """
-    coordinator = SearchCoordinator(spec, store, _NoExecutor())
-    coordinator._prepare()
-    coordinator._advance()
-    for cell in coordinator.cells:
-        if not cell.search.done and not cell.interrupted:
+    from calib.sweep.search import drive
+
+    known = StoredOutcomes(spec, store)
+    cells = search_cells(spec, extend=store.searches_extend())  # replayed as the store was run
+    for cell in cells:
+        if not drive(cell.search, known.source(cell)):
             cell.interrupted = "search not finished: run the campaign again to complete it"
-    return coordinator.cells
+    return cells

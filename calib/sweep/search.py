@@ -75,13 +75,19 @@ what keeps its answer on the grid's; a search that skipped lattice points would 
 but could step over the grid's largest failing k, whose place on a flat curve is itself noise.
 
 Costs: each look is O(1) (log-beta functions); a search holds the outcomes at its current k only.
+
+Driving a search. A search is a pure function of its trials' outcomes in trial order, so every
+caller feeds it the same way, through :func:`drive` with a source ``(k, n) -> the outcomes of the
+first n trials at k``: `calib run` reads the store and submits what is missing (the source answers
+None until the trials come back), `calib probe --find-k` runs the trials in place, and
+:func:`replay` answers from stored outcomes alone, giving the verdict the live search gave.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Optional, Sequence
+from typing import Callable, Mapping, Optional, Sequence
 
 import numpy as np
 from scipy.optimize import brentq
@@ -535,3 +541,38 @@ def trace_lines(search: KSearch, target_text: str) -> list[str]:
                  f"k lattice (step {search.step}) with a Clopper–Pearson look at the cap at {1 - search.walk_alpha:.4g} "
                  f"per k and early passes on the sequence at {1 - search.early_alpha:.4g} (fixed sequence); {MONOTONE}")
     return lines
+
+
+#: a search's source of outcomes: ``(k, n)`` -> the outcomes (True = success) of the first n trials at
+#: k in trial order, or None while they are not known (the search then waits where it is)
+OutcomeSource = Callable[[int, int], Optional[Sequence[bool]]]
+
+
+def drive(search: KSearch, source: OutcomeSource) -> bool:
+    """Feed ``search`` from ``source`` until it is done or the source has no answer yet.
+
+    Each round asks :meth:`KSearch.demand` for (k, n) and offers the source's first n outcomes at k;
+    a source returning None leaves the search where it stands, so calling again later resumes.
+    Returns whether the search is done. Costs: one source call per look.
+    """
+    while (demand := search.demand()) is not None:
+        outcomes = source(*demand)
+        if outcomes is None:
+            return False
+        search.offer(outcomes)
+    return True
+
+
+def replay(search: KSearch, outcomes: Mapping[int, Sequence[bool]]) -> KSearch:
+    """``search`` (fresh, or part-way) decided from stored outcomes: k -> outcomes in trial order.
+
+    A k with fewer stored outcomes than the search asks for stops the replay there (``done`` stays
+    False): the store lacked trials the live search read. Outcomes beyond what it asks are not read,
+    so the live search's own record (every trial it ran at each k) replays into its own verdict.
+    """
+    def stored(k: int, count: int) -> Optional[Sequence[bool]]:
+        known = outcomes.get(k, ())
+        return known[:count] if len(known) >= count else None
+
+    drive(search, stored)
+    return search

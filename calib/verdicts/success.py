@@ -50,7 +50,7 @@ together, which is how a table carries a ladder of tolerances.
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, replace
-from typing import TYPE_CHECKING, Optional
+from typing import TYPE_CHECKING, Any, Mapping, Optional, Sequence
 
 import numpy as np
 
@@ -296,3 +296,25 @@ def evaluate(rows: pd.DataFrame, predicate: Predicate) -> pd.Series:
         success &= ~rows["exact"].eq(True)  # solved the original: no answer of the reduction, and no time to judge it by
     covered = rows["kind"].map(predicate.covers).astype(bool)
     return success & covered
+
+
+def record_frame(records: Sequence[Mapping[str, Any]], kind: Optional[str] = None, status: str = "ok") -> pd.DataFrame:
+    """The frame :func:`evaluate` reads, from trial records (dicts of :mod:`calib.metrics` fields).
+
+    One row per record, in order; a column per metric field of :data:`calib.metrics.FIELDS` (a field
+    the record lacks is None, as :func:`calib.analysis.rows.load_rows` reads a stored row), then
+    ``status`` and ``kind``: the record's own when it has them, else the given ones. Shape
+    (len(records), 2 + len(FIELDS)). Costs O(len(records) x len(FIELDS)).
+    """
+    import pandas as pd
+
+    rows = [{"status": record.get("status", status), "kind": record.get("kind", kind),
+             **{name: record.get(name) for name in FIELDS}} for record in records]
+    return pd.DataFrame.from_records(rows, columns=["status", "kind", *FIELDS])
+
+
+def judge_records(records: Sequence[Mapping[str, Any]], predicate: Predicate, kind: Optional[str] = None,
+                  status: str = "ok") -> list[bool]:
+    """Success of each trial record under ``predicate``: :func:`evaluate` on :func:`record_frame`, the
+    one path from records to verdicts (the k search, `calib probe` and the tests use it)."""
+    return [bool(value) for value in evaluate(record_frame(records, kind, status), predicate).tolist()]
