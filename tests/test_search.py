@@ -427,7 +427,7 @@ def test_a_failing_high_end_goes_on_up_to_m_minus_1():
     assert search.looks == max(max_looks(1, 40), max_looks(40, 99))
     assert all(step.k >= 40 for step in search.steps)  # low is not tested once high failed
     nothing = _all_at(lambda k: False, KSearch(1, 40, 0.9, 0.95, 80, top=99))
-    assert nothing.safe_k is None and "no k below m = 100 meets the target" in nothing.reason
+    assert nothing.safe_k is None and "no k below m = 100 is shown to meet the target" in nothing.reason
     assert [step.k for step in nothing.steps] == [40, 99]
     old = _all_at(lambda k: k >= 70, KSearch(1, 40, 0.9, 0.95, 80))  # top=None: stop at high
     assert old.safe_k is None and "widen the range" in old.reason

@@ -475,8 +475,8 @@ class KSearch:
             if self.cap < need.bisection:
                 self.reason = cap_text(need, self.cap)
             elif self._extending:
-                self.reason = (f"k = {self.top} = m - 1 does not reach the target either: no k below "
-                               f"m = {self.top + 1} meets the target")
+                self.reason = (f"k = {self.top} = m - 1 is not shown to reach the target either (a failure came "
+                               f"before its look could pass): no k below m = {self.top + 1} is shown to meet the target")
             else:
                 self.reason = f"the high end k = {self.high} does not reach the target: widen the range"
             return None
