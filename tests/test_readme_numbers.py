@@ -21,7 +21,7 @@ import readme_numbers
 from readme_numbers import ATLAS, DEMO, README, ROOT, quoted, sections
 
 TEXT = README.read_text(encoding="utf-8")
-ATLAS_SECTIONS = {"lookup", "atlas-lp", "atlas-points", "atlas-run", "decision"}
+ATLAS_SECTIONS = {"lookup", "atlas-lp", "atlas-points", "atlas-run", "decision", "atlas-large"}
 DEMO_SECTIONS = {"demo-screen", "demo-story", "demo-detail"}
 
 
