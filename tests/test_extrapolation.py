@@ -60,3 +60,28 @@ def test_no_law_and_no_reduction_are_said_not_divided():
     assert check.predicted == pytest.approx(20 + 18 / math.log(61 / 21) * math.log(81 / 61), rel=1e-12)
     assert "predicts no reduction" in check.reason and "m = 24" in check.reason
     assert held_out_checks(_analysis(censored[:2])) == []  # two sizes: nothing to hold out and still fit
+
+
+def test_lookup_quotes_how_far_one_step_of_extrapolation_was_off_on_the_class(capsys):
+    """On the shipped atlas: the law of the three smaller basis-pursuit sizes (numpy.polyfit in ln n,
+    the outside reference) against the largest one, quoted by `calib lookup` beside its EXTRAPOLATED flag."""
+    import json
+    from pathlib import Path
+
+    from calib.cli import main
+
+    table_path = Path(__file__).resolve().parents[1] / "results" / "atlas" / "safe_k.json"
+    if not table_path.is_file():
+        pytest.skip("no atlas shipped")
+    analysis = json.loads(table_path.read_text(encoding="utf-8"))["analyses"][0]
+    entries = sorted((e for e in analysis["entries"] if e["family"] == "lp-basis-pursuit" and e["projector"] == "gaussian"),
+                     key=lambda e: e["n_points"])
+    n = [e["n_points"] for e in entries]
+    ks = [e["class"]["safe_k"] for e in entries]
+    slope, intercept = np.polyfit(np.log(n[:-1]), ks[:-1], 1)
+    predicted = intercept + slope * math.log(n[-1])
+    assert main(["lookup", str(table_path), "--family", "lp-basis-pursuit", "--projector", "gaussian",
+                 "--size", "measurements=4000,length=8000"]) == 0
+    out = " ".join(capsys.readouterr().out.split())
+    assert (f"the law of the smaller sizes gave k = {predicted:.0f} at its largest measured size, where {ks[-1]} was "
+            f"measured (x{ks[-1] / predicted:.3g})") in out

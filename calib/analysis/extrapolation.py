@@ -117,6 +117,30 @@ def _check(law: dict, point: dict, m: Optional[int], small: list[dict]) -> HeldO
                    int(point["n"]), m, tuple(p["size"] for p in small), predicted, measured, reason)
 
 
+def largest_held_out(n: list[int], ks: list, censored: list[str]) -> Optional[tuple[float, int, float]]:
+    """(law's k, measured k, measured / law) at the largest of the measured sizes ``n`` (JL point
+    counts), the law fitted on the others (uncensored ones only); None with fewer than three sizes,
+    no law, a censored largest size or a law at or below 0 there. What `calib lookup` quotes beside
+    an extrapolation: how far one step of extrapolation was off on this class's own data.
+
+    >>> largest_held_out([201, 601, 2001, 6001], [20, 26, 31, 40], ["", "", "", ""])[2] > 1
+    True
+    >>> largest_held_out([201, 601], [20, 26], ["", ""]) is None
+    True
+    """
+    if len(n) < 3:
+        return None
+    order = sorted(range(len(n)), key=lambda index: n[index])
+    *small, last = order
+    if censored[last] or ks[last] is None:
+        return None
+    law = censored_law([n[i] for i in small], [ks[i] for i in small], [censored[i] for i in small])
+    if not law.ok or law.at(n[last]) <= 0:
+        return None
+    predicted = law.at(n[last])
+    return predicted, int(ks[last]), ks[last] / predicted
+
+
 def ratio_text(check: HeldOut) -> str:
     """One phrase: 'measured 49 against 38 predicted (x1.29)', or the reason there is no ratio.
 

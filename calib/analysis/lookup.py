@@ -39,6 +39,7 @@ from typing import TYPE_CHECKING, Optional
 import numpy as np
 
 from calib.analysis.classnames import class_namer
+from calib.analysis.extrapolation import largest_held_out
 from calib.analysis.law import censored_law, fit_law
 from calib.analysis.modelfit import resolved_size
 from calib.checks import is_integer
@@ -338,10 +339,15 @@ def k_for(table: "SafeKTable", query: Query, confidence: Optional[Confidence] = 
     answers = safe_ks(entries, confidence, query.scope, stated)
     censored = [censoring(k, reason, entry.projected_dim) for (k, reason), entry in zip(answers, entries)]
     law = censored_law(sizes, [k for k, _ in answers], censored)
+    range_fields = _measured_range(entries, query.n)
+    held = largest_held_out(sizes, [k for k, _ in answers], censored)
+    if range_fields["extrapolated"] and held is not None:  # how far one step of extrapolation was off here
+        range_fields["extrapolation"] += (f"; on this class the law of the smaller sizes gave k = {held[0]:.0f} at its "
+                                          f"largest measured size, where {held[1]} was measured (x{held[2]:.3g})")
     answer = {"family": query.family, "n": query.n, "m": query.m, "size": query.size, "scope": query.scope,
               "projector": query.projector, "retrieval": entries[0].retrieval, "kind": entries[0].kind,
               "tau": analysis.tau, "predicate": analysis.predicate.name, "delta": confidence.delta,
-              "confidence": confidence.level, "note": note, **_measured_range(entries, query.n),
+              "confidence": confidence.level, "note": note, **range_fields,
               "instances": [entry.instances for entry in entries],
               "measured_safe_k": [k for k, _ in answers], "censored": censored,
               "law": {"a": law.a, "C": law.C, "reason": law.reason}, "flag": ""}
