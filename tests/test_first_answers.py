@@ -55,7 +55,7 @@ def test_the_cap_a_search_needs_is_the_clopper_pearson_n_of_n(low, high, rate, c
     assert _fewest_all_success_trials(rate, 0.05) == math.ceil(math.log(0.05) / math.log(rate)) == all_pass_trials(rate, 0.05)
 
 
-def test_the_issue_example_a_cap_of_30_cannot_pass_at_0_9994():
+def test_a_cap_of_30_cannot_pass_at_0_9994():
     # 1 instance x 30 replicates searched on [4, 40]: 8 bisection looks at 1 - 0.01 / 8 / 2 = 0.999375
     need = cap_need(4, 40, 0.9, 0.95)
     assert round(need.bisection_level, 4) == 0.9994 and need.bisection == 71

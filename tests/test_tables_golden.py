@@ -2,8 +2,8 @@
 
 tests/golden/quickstart.sqlite.gz is the store of `make demo` (instances/quickstart.toml) as written at
 commit cbbc6ad; tests/golden/quickstart/ holds what `calib tables`, `calib compare` and `calib lookup`
-wrote from it then. A restructuring that keeps behaviour keeps every byte (the issue "Layers you can
-see" asks for exactly that); a change that means to alter a table rewrites these files in the same
+wrote from it then. A restructuring that keeps behaviour keeps every byte (the layers of docs/layers.md
+were drawn under this check); a change that means to alter a table rewrites these files in the same
 commit and says why. The report's figures are replaced by a marker before the comparison: they are
 matplotlib's SVG, whose bytes follow the installed matplotlib, not calib (common practice for
 golden-file tests of rendered output).

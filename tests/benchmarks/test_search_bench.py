@@ -36,7 +36,7 @@ CASES = {
                              '["gaussian", "srht", "countsketch", "sparse-jl"]', (2, 240), 'preset = "bound"\ntolerance = 1e-6'),
     "points": ('"points-gaussian"', "{points = 100, dim = 1000}", "{}", '["gaussian"]', (10, 1000),
                'preset = "distortion"\ntolerance = 0.2'),
-    # a family the search was not tuned on: sparse 0/1 vectors, CountSketch (issue 24)
+    # a family the search was not tuned on: sparse 0/1 vectors, CountSketch
     "points-binary": ('"points-binary"', "{points = 100, dim = 1000}", "{density = 0.05}", '["countsketch"]', (10, 1000),
                       'preset = "distortion"\ntolerance = 0.2'),
 }
