@@ -485,19 +485,6 @@ def atlas_run_section() -> str:
                      f"{number(counts[1])} for the point sets (the counts of `safe_k.json` and `safe_k-points.json`).") + "\n"
 
 
-def _policy_speedups(tables_text: str) -> dict:
-    """(family, size) -> (policy k, speed-up) from the details that `calib tables --policy` printed."""
-    found, head = {}, None
-    for line in tables_text.splitlines():
-        match = re.match(r"^(\S+) (\S+) \| ", line)
-        if match:
-            head = (match[1], match[2])
-        match = re.match(r"^\s+policy k = (\d+) .*speed-up ([0-9.]+)x", line)
-        if match and head:
-            found[head] = (int(match[1]), float(match[2]))
-    return found
-
-
 def atlas_large_section() -> str:
     """The large tier: class safe k under usable and under bound, the policy k, and the held-out law."""
     from calib.analysis.extrapolation import held_out_checks, ratio_text
@@ -505,7 +492,8 @@ def atlas_large_section() -> str:
     usable = read_json(LARGE / "safe_k-sparse.json")["analyses"][0]
     bound = {(e["family"], e["size"]): e["class"]["safe_k"]
              for e in read_json(LARGE / "safe_k-sparse-bound.json")["analyses"][0]["entries"]}
-    policy = _policy_speedups((LARGE / "tables-sparse.txt").read_text(encoding="utf-8"))
+    policy = {(e["family"], e["size"]): (e["policy"]["k"], e["policy"]["speedup"])
+              for e in usable["entries"] if e.get("policy", {}).get("k") is not None}
     rows = ["| class | size | m | class safe k, usable (k/m) | policy k: speed-up | class safe k, bound |",
             "|---|---|---|---|---|---|"]
     for entry in sorted(usable["entries"], key=lambda e: (e["family"], e["projected_dim"])):

@@ -99,14 +99,20 @@ def held_out_checks(analysis: dict, tier_rows: Optional[int] = None) -> list[Hel
     return checks
 
 
+def _law_at(n: list[int], ks: list, censored: list[str], n_held: int) -> tuple[Optional[float], str]:
+    """(a + C ln n_held of the law over the given sizes, or None; the law's reason when it has none)."""
+    law = censored_law(n, ks, censored)
+    return (law.at(n_held), "") if law.ok else (None, law.reason)
+
+
 def _check(law: dict, point: dict, m: Optional[int], small: list[dict]) -> HeldOut:
-    fitted = censored_law([p["n"] for p in small], [p["safe_k"] for p in small], [p["censoring"] for p in small])
+    predicted, why = _law_at([p["n"] for p in small], [p["safe_k"] for p in small], [p["censoring"] for p in small],
+                             point["n"])
     measured = None if point["censored"] or point["safe_k"] is None else int(point["safe_k"])
-    predicted = fitted.at(point["n"]) if fitted.ok else None
     if predicted is None and measured is None and all(p["censored"] for p in small):
         reason = "no k met the target at any size, so there is no law to check"
     elif predicted is None:
-        reason = f"no law from the smaller sizes: {fitted.reason}"
+        reason = f"no law from the smaller sizes: {why}"
     elif m is not None and predicted > m:
         reason = f"the law predicts no reduction (k {predicted:.0f} above m = {m})"
     elif measured is None:
@@ -134,10 +140,9 @@ def largest_held_out(n: list[int], ks: list, censored: list[str]) -> Optional[tu
     *small, last = order
     if censored[last] or ks[last] is None:
         return None
-    law = censored_law([n[i] for i in small], [ks[i] for i in small], [censored[i] for i in small])
-    if not law.ok or law.at(n[last]) <= 0:
+    predicted, _ = _law_at([n[i] for i in small], [ks[i] for i in small], [censored[i] for i in small], n[last])
+    if predicted is None or predicted <= 0:
         return None
-    predicted = law.at(n[last])
     return predicted, int(ks[last]), ks[last] / predicted
 
 
